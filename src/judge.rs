@@ -1,0 +1,419 @@
+//! Judge: conformity verdicts (ILAC-G8), safety checks, citation checks and the sign-off
+//! state. Turns a notebook and its reduction into the `Record` the renderer prints.
+
+use crate::diag::{Diagnostic, Span};
+use crate::networks::{BlockResult, NamedResult, Reduction};
+use crate::notebook::{Decision, Item, Notebook, Part, PartKind, ReadingsBlock, Tolerance};
+use crate::quantity::{format_value_u, parse_quantity, Unit};
+use crate::signoff;
+use std::collections::BTreeMap;
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Outcome {
+    Pass,
+    Fail,
+    Inconclusive,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Verdict {
+    pub block: String,
+    /// Result name (C, L, R).
+    pub name: String,
+    pub part: String,
+    pub nominal: f64,
+    pub unit: Unit,
+    pub low: f64,
+    pub high: f64,
+    pub value: f64,
+    /// Expanded uncertainty U.
+    pub expanded: f64,
+    pub k: f64,
+    pub outcome: Outcome,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct SafetyCheck {
+    pub block: String,
+    pub part: String,
+    /// What was checked, e.g. "dissipation VR²/R".
+    pub what: String,
+    /// Worst value over the block's rows.
+    pub value: f64,
+    /// The part's rating.
+    pub rating: f64,
+    /// Derated limit (rating × derating).
+    pub limit: f64,
+    pub unit: Unit,
+    pub ok: bool,
+    pub span: Option<Span>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub enum SignState {
+    Unsigned,
+    Valid { by: String, on: String, digest: String },
+    /// Signed, but the readings changed since.
+    Void { by: String, on: String, recorded: String },
+}
+
+#[derive(Debug, Clone)]
+pub struct Record {
+    pub notebook: Notebook,
+    pub reduction: Reduction,
+    pub verdicts: Vec<Verdict>,
+    pub safety: Vec<SafetyCheck>,
+    pub sign: SignState,
+    /// SHA-256 (hex) of the canonical form of everything that determines the results.
+    pub digest: String,
+    /// SHA-256 (hex) of the whole notebook source, as embedded in the PDF.
+    pub source_digest: String,
+    /// Citations found in prose (`=block.name` or `=block.name@f`), key without the `=`,
+    /// resolved to printed text (value ± U unit).
+    pub citations: std::collections::BTreeMap<String, String>,
+    /// Derating factors used by the safety checks (stated in the report).
+    pub derating: Derating,
+}
+
+/// Fractions of a part's rating allowed before a safety check is flagged.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Derating {
+    pub resistor_power: f64,
+    pub capacitor_voltage: f64,
+    pub inductor_current: f64,
+}
+
+impl Default for Derating {
+    /// Common practice on the bench: resistors at half their rated power, capacitors and
+    /// coils at 80 % of their rated voltage or current.
+    fn default() -> Self {
+        Derating { resistor_power: 0.5, capacitor_voltage: 0.8, inductor_current: 0.8 }
+    }
+}
+
+impl Outcome {
+    pub fn word(self) -> &'static str {
+        match self {
+            Outcome::Pass => "pass",
+            Outcome::Fail => "fail",
+            Outcome::Inconclusive => "inconclusive",
+        }
+    }
+}
+
+/// The tolerance interval [low, high] around a nominal value.
+pub fn tolerance_interval(nominal: f64, tol: &Tolerance) -> (f64, f64) {
+    let half = match tol {
+        Tolerance::Relative(f) | Tolerance::Code(_, f) => nominal.abs() * f,
+        Tolerance::Absolute(a) => a.abs(),
+    };
+    (nominal - half, nominal + half)
+}
+
+/// Conformity decision after ILAC-G8:09/2019.
+///
+/// `Simple`: simple acceptance (guard band w = 0, §4.2.1): the value inside the closed tolerance
+/// interval passes, a value on a limit passes, anything outside fails.
+/// `Guarded`: guard band w = U (§4.2.2 and §4.2.3 read together as a binary rule with a third
+/// outcome): pass when [value − U, value + U] lies inside [low, high] (touching a limit still
+/// counts as inside), fail when it lies wholly outside (touching a limit is not wholly outside),
+/// otherwise inconclusive.
+pub fn decide(value: f64, expanded: f64, low: f64, high: f64, rule: Decision) -> Outcome {
+    match rule {
+        Decision::Simple => {
+            if value >= low && value <= high {
+                Outcome::Pass
+            } else {
+                Outcome::Fail
+            }
+        }
+        Decision::Guarded => {
+            let u = expanded.abs();
+            if value - u >= low && value + u <= high {
+                Outcome::Pass
+            } else if value + u < low || value - u > high {
+                Outcome::Fail
+            } else {
+                Outcome::Inconclusive
+            }
+        }
+    }
+}
+
+fn kind_for_result(name: &str) -> Option<PartKind> {
+    match name {
+        "C" => Some(PartKind::Capacitor),
+        "L" => Some(PartKind::Inductor),
+        "R" => Some(PartKind::Resistor),
+        _ => None,
+    }
+}
+
+fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<Verdict> {
+    let mut out = Vec::new();
+    for r in &res.results {
+        let Some(kind) = kind_for_result(&r.name) else { continue };
+        let part = block
+            .parts
+            .iter()
+            .filter_map(|n| nb.front.parts.get(&n.name))
+            .find(|p| p.kind == kind);
+        let Some(part) = part else { continue };
+        let (Some(nominal), Some(tol)) = (part.nominal, part.tolerance.as_ref()) else { continue };
+        let (low, high) = tolerance_interval(nominal.value, tol);
+        out.push(Verdict {
+            block: block.id.clone(),
+            name: r.name.clone(),
+            part: part.name.clone(),
+            nominal: nominal.value,
+            unit: r.unit,
+            low,
+            high,
+            value: r.m.value,
+            expanded: r.m.expanded,
+            k: r.m.k,
+            outcome: decide(r.m.value, r.m.expanded, low, high, nb.front.decision),
+        });
+    }
+    out
+}
+
+/// The value of a resistor for the safety checks: measured if given, else nominal.
+fn part_value(p: &Part) -> Option<f64> {
+    p.measured.or(p.nominal).map(|q| q.value).filter(|v| v.is_finite() && *v > 0.0)
+}
+
+/// Worst value of `f(row)` over a block's rows, with the row's span.
+fn worst(block: &ReadingsBlock, f: impl Fn(&dyn Fn(&str) -> Option<f64>) -> Option<f64>) -> Option<(f64, Span)> {
+    let mut best: Option<(f64, Span)> = None;
+    for row in &block.rows {
+        let get = |sym: &str| block.col(sym).and_then(|i| row.cells.get(i)).map(|c| c.value);
+        if let Some(v) = f(&get) {
+            if v.is_finite() && best.map_or(true, |(b, _)| v > b) {
+                best = Some((v, row.span));
+            }
+        }
+    }
+    best
+}
+
+/// Computed safety checks from the readings: series resistor dissipation VR²/R, capacitor
+/// peak voltage √2·VC (or √2·I·XC from the nominal C where VC was not read), coil current.
+pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<SafetyCheck> {
+    let parts: Vec<&Part> = block.parts.iter().filter_map(|n| nb.front.parts.get(&n.name)).collect();
+    let resistor = parts.iter().copied().find(|p| p.kind == PartKind::Resistor);
+    let r_value = resistor.and_then(part_value);
+    let current = |get: &dyn Fn(&str) -> Option<f64>| -> Option<f64> {
+        get("I").or_else(|| Some(get("VR")? / r_value?))
+    };
+    let mut out = Vec::new();
+    let mut push = |part: &Part, what: &str, worst: Option<(f64, Span)>, unit: Unit, factor: f64| {
+        let (Some(rating), Some((value, span))) = (part.rating, worst) else { return };
+        let limit = rating.value * factor;
+        out.push(SafetyCheck {
+            block: block.id.clone(),
+            part: part.name.clone(),
+            what: what.into(),
+            value,
+            rating: rating.value,
+            limit,
+            unit,
+            ok: value <= limit,
+            span: Some(span),
+        });
+    };
+    for part in &parts {
+        match part.kind {
+            PartKind::Resistor => {
+                let Some(r) = part_value(part) else { continue };
+                let w = worst(block, |g| Some(g("VR")?.powi(2) / r));
+                push(part, "dissipation VR²/R", w, Unit::W, d.resistor_power);
+            }
+            PartKind::Capacitor => {
+                let c = part.nominal.map(|q| q.value);
+                let w = worst(block, |g| {
+                    let vc = g("VC").or_else(|| {
+                        let i = current(g)?;
+                        let f = g("f")?;
+                        Some(i / (2.0 * std::f64::consts::PI * f * c?))
+                    })?;
+                    Some(std::f64::consts::SQRT_2 * vc)
+                });
+                push(part, "peak voltage √2·VC", w, Unit::V, d.capacitor_voltage);
+            }
+            PartKind::Inductor => {
+                let Some(rating) = part.rating else { continue };
+                if rating.unit == Unit::W {
+                    let res = part.dcr.map(|q| q.value);
+                    let w = worst(block, |g| Some(current(g)?.powi(2) * res?));
+                    push(part, "winding dissipation I²·dcr", w, Unit::W, d.inductor_current);
+                } else {
+                    let w = worst(block, |g| current(g));
+                    push(part, "coil current I", w, Unit::A, d.inductor_current);
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Looks up a citation key `block.name` or `block.name@f` (f with or without `Hz`).
+pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedResult, String> {
+    let (path, at) = match key.split_once('@') {
+        Some((p, f)) => (p, Some(f.trim())),
+        None => (key, None),
+    };
+    let Some((block_id, name)) = path.rsplit_once('.') else {
+        return Err(format!("a citation is written `=block.result` or `=block.result@f`, found `={key}`"));
+    };
+    let Some(block) = red.blocks.iter().find(|b| b.id == block_id) else {
+        let ids: Vec<&str> = red.blocks.iter().map(|b| b.id.as_str()).collect();
+        return Err(format!("no readings block `{block_id}` (blocks: {})", ids.join(", ")));
+    };
+    match at {
+        None => block.results.iter().find(|r| r.name == name).ok_or_else(|| {
+            let names: Vec<&str> = block.results.iter().map(|r| r.name.as_str()).collect();
+            format!("block `{block_id}` has no block result `{name}` (it has: {})", names.join(", "))
+        }),
+        Some(ftext) => {
+            let f = parse_quantity(ftext)
+                .ok()
+                .filter(|q| q.unit == Unit::Hz || q.unit == Unit::One)
+                .map(|q| q.value)
+                .ok_or_else(|| format!("`{ftext}` is not a frequency (write e.g. `@1.2kHz`)"))?;
+            block
+                .rows
+                .iter()
+                .find(|r| r.name == name && r.f.is_some_and(|rf| (rf - f).abs() <= 1e-9 * f.abs().max(1e-300)))
+                .ok_or_else(|| {
+                    let fs: Vec<String> = block
+                        .rows
+                        .iter()
+                        .filter(|r| r.name == name)
+                        .filter_map(|r| r.f)
+                        .map(|f| format!("{f} Hz"))
+                        .collect();
+                    if fs.is_empty() {
+                        format!("block `{block_id}` has no per-frequency result `{name}`")
+                    } else {
+                        format!("block `{block_id}` has `{name}` at {} but not at {f} Hz", fs.join(", "))
+                    }
+                })
+        }
+    }
+}
+
+/// Printed form of a cited result: value ± U unit, digits per GUM 7.2.6.
+pub fn cite_text(r: &NamedResult) -> String {
+    format_value_u(r.m.value, r.m.expanded, r.unit)
+}
+
+/// Finds every citation (inline code starting with `=`) in the prose, with its span.
+pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
+    use pulldown_cmark::{Event, Options, Parser};
+    let mut out = Vec::new();
+    for item in &nb.items {
+        let Item::Prose { text, span } = item else { continue };
+        for (ev, range) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
+            if let Event::Code(code) = ev {
+                if let Some(key) = code.strip_prefix('=') {
+                    let s = Span::new(span.start + range.start, span.start + range.end);
+                    out.push((key.trim().to_string(), s));
+                }
+            }
+        }
+    }
+    out
+}
+
+/// Judge a reduced notebook: verdicts, safety, citations, sign-off state.
+pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnostic>> {
+    let derating = Derating::default();
+    let mut verdicts = Vec::new();
+    let mut safety = Vec::new();
+    for item in &nb.items {
+        let Item::Readings(block) = item else { continue };
+        if let Some(res) = reduction.blocks.iter().find(|b| b.id == block.id) {
+            verdicts.extend(verdicts_for(&nb, block, res));
+        }
+        safety.extend(safety_checks(&nb, block, &derating));
+    }
+    let mut diags = Vec::new();
+    let mut cites = BTreeMap::new();
+    for (key, span) in citations(&nb) {
+        match resolve_citation(&reduction, &key) {
+            Ok(r) => {
+                cites.insert(key, cite_text(r));
+            }
+            Err(msg) => diags.push(
+                Diagnostic::new(span, format!("citation `={key}` does not name a result"))
+                    .expected("`=block.result` for a block result, or `=block.result@f` for one frequency")
+                    .found(msg),
+            ),
+        }
+    }
+    if !diags.is_empty() {
+        return Err(diags);
+    }
+    let digest = signoff::digest(&nb);
+    let sign = match &nb.front.signoff {
+        None => SignState::Unsigned,
+        Some(s) if s.digest == digest => {
+            SignState::Valid { by: s.by.clone(), on: s.on.clone(), digest: s.digest.clone() }
+        }
+        Some(s) => SignState::Void { by: s.by.clone(), on: s.on.clone(), recorded: s.digest.clone() },
+    };
+    let source_digest = signoff::sha256_hex(nb.source.as_bytes());
+    Ok(Record { notebook: nb, reduction, verdicts, safety, sign, digest, source_digest, citations: cites, derating })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // ILAC-G8:09/2019 §4.2.1 (simple acceptance, guard band w = 0) and §4.2.2/§4.2.3
+    // (guard band w = U; the zone between acceptance and rejection gives no binary statement).
+    // Section numbers from memory. Tolerance interval [9, 11] throughout.
+    const LO: f64 = 9.0;
+    const HI: f64 = 11.0;
+
+    #[test]
+    fn simple_acceptance_at_the_limits() {
+        use Outcome::*;
+        let d = |v, u| decide(v, u, LO, HI, Decision::Simple);
+        assert_eq!(d(10.0, 0.5), Pass);
+        assert_eq!(d(11.0, 0.5), Pass, "a value on the upper limit is within the interval");
+        assert_eq!(d(9.0, 0.5), Pass, "a value on the lower limit is within the interval");
+        assert_eq!(d(11.000001, 0.0), Fail);
+        assert_eq!(d(8.9, 5.0), Fail, "simple acceptance ignores U");
+        assert_eq!(d(10.9, 5.0), Pass, "simple acceptance ignores U");
+    }
+
+    #[test]
+    fn guarded_acceptance_at_the_limits() {
+        use Outcome::*;
+        let d = |v, u| decide(v, u, LO, HI, Decision::Guarded);
+        assert_eq!(d(10.0, 0.5), Pass);
+        assert_eq!(d(10.5, 0.5), Pass, "value + U exactly on the limit is still inside");
+        assert_eq!(d(10.6, 0.5), Inconclusive, "U straddles the upper limit");
+        assert_eq!(d(11.0, 0.5), Inconclusive, "value on the limit: straddles");
+        assert_eq!(d(9.3, 0.5), Inconclusive, "U straddles the lower limit");
+        assert_eq!(d(11.5, 0.5), Inconclusive, "value − U exactly on the limit is not wholly outside");
+        assert_eq!(d(11.6, 0.5), Fail);
+        assert_eq!(d(8.4, 0.5), Fail);
+        assert_eq!(d(10.0, 1.5), Inconclusive, "U wider than the interval can never pass");
+    }
+
+    #[test]
+    fn tolerance_intervals() {
+        // IEC 60062:2016 Table 8 letter codes (from memory): J = ±5 %, K = ±10 %.
+        let (lo, hi) = tolerance_interval(100e-9, &Tolerance::Code('J', 0.05));
+        assert!((lo - 95e-9).abs() < 1e-21 && (hi - 105e-9).abs() < 1e-21);
+        let (lo, hi) = tolerance_interval(2.2e-3, &Tolerance::Code('K', 0.10));
+        assert!((lo - 1.98e-3).abs() < 1e-15 && (hi - 2.42e-3).abs() < 1e-15);
+        let (lo, hi) = tolerance_interval(22.0, &Tolerance::Absolute(0.5));
+        assert_eq!((lo, hi), (21.5, 22.5));
+        let (lo, hi) = tolerance_interval(1000.0, &Tolerance::Relative(0.01));
+        assert_eq!((lo, hi), (990.0, 1010.0));
+    }
+}

@@ -1,0 +1,452 @@
+//! The benchrec command line. Exit status: 0 success, 1 a notebook has problems, 2 usage.
+
+use benchrec::batch::{self, Outcome};
+use benchrec::pipeline::{self, Failure};
+use benchrec::{export, signoff, starter};
+use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::sync::Mutex;
+
+#[derive(Parser)]
+#[command(name = "benchrec", version, about = "Turn a Markdown bench notebook of AC readings into a typeset PDF record")]
+struct Cli {
+    #[command(subcommand)]
+    verb: Verb,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum Format {
+    Json,
+    Csv,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum Shell {
+    Bash,
+    Zsh,
+    Fish,
+    Elvish,
+    Powershell,
+}
+
+#[derive(Subcommand)]
+enum Verb {
+    /// Reduce notebooks and write their PDF records (default: <stem>.pdf beside each one)
+    Build {
+        /// Notebook files, or folders to search for notebooks (.md with a `record` key)
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// Output file (one notebook), or a folder (several; folders are mirrored under it)
+        #[arg(short = 'o', long = "output")]
+        output: Option<PathBuf>,
+        /// Rebuild even when a record is up to date
+        #[arg(long)]
+        force: bool,
+    },
+    /// Parse and reduce, report every problem, write nothing
+    Check {
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+    },
+    /// Print results on standard output (SI units): JSON for one notebook, or CSV
+    Results {
+        /// A notebook, or a folder (one CSV table for every notebook under it)
+        path: PathBuf,
+        #[arg(long, value_enum, default_value = "json")]
+        format: Format,
+    },
+    /// Record a sign-off (who, when, digest of the readings) in the notebook's front matter
+    Sign {
+        notebook: PathBuf,
+        /// Name of the person signing
+        #[arg(long)]
+        by: String,
+        /// Time of signing (ISO 8601); default: now, in UTC
+        #[arg(long)]
+        on: Option<String>,
+    },
+    /// Say whether a record (PDF or notebook) still matches its sign-off digest
+    Verify { path: PathBuf },
+    /// Rebuild a notebook (or every notebook under a folder) each time it is saved
+    Watch {
+        path: PathBuf,
+        /// Stop after this many builds (for scripts and tests)
+        #[arg(long, hide = true)]
+        max_builds: Option<usize>,
+    },
+    /// Write a starter notebook that builds as it stands
+    New {
+        path: PathBuf,
+        /// Record identifier (default: from the file name)
+        #[arg(long)]
+        record: Option<String>,
+    },
+    /// Print shell completions for benchrec
+    Completions {
+        #[arg(value_enum)]
+        shell: Shell,
+    },
+    /// Print the man page (roff) for benchrec
+    Man,
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match cli.verb {
+        Verb::Build { paths, output, force } => build(&paths, output.as_deref(), force),
+        Verb::Check { paths } => check(&paths),
+        Verb::Results { path, format } => results(&path, format),
+        Verb::Sign { notebook, by, on } => sign(&notebook, &by, on),
+        Verb::Verify { path } => verify(&path),
+        Verb::Watch { path, max_builds } => watch(&path, max_builds),
+        Verb::New { path, record } => new_notebook(&path, record),
+        Verb::Completions { shell } => {
+            use clap_complete::Shell as S;
+            let sh = match shell {
+                Shell::Bash => S::Bash,
+                Shell::Zsh => S::Zsh,
+                Shell::Fish => S::Fish,
+                Shell::Elvish => S::Elvish,
+                Shell::Powershell => S::PowerShell,
+            };
+            clap_complete::generate(sh, &mut Cli::command(), "benchrec", &mut std::io::stdout());
+            ExitCode::SUCCESS
+        }
+        Verb::Man => {
+            let man = clap_mangen::Man::new(Cli::command());
+            match man.render(&mut std::io::stdout()) {
+                Ok(()) => ExitCode::SUCCESS,
+                Err(e) => {
+                    eprintln!("error: {e}");
+                    ExitCode::from(1)
+                }
+            }
+        }
+    }
+}
+
+fn fail(f: &Failure) -> ExitCode {
+    eprint!("{}", f.report());
+    ExitCode::from(1)
+}
+
+fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
+    for p in paths {
+        if !p.exists() {
+            eprintln!("error: {}: no such file or folder", p.display());
+            return ExitCode::from(1);
+        }
+    }
+    let (found, walk_errors) = batch::discover(paths, output);
+    let n = found.jobs.len();
+    let tty = std::io::stderr().is_terminal();
+    let bar = if tty && n > 1 {
+        let b = indicatif::ProgressBar::new(n as u64);
+        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:32} {pos}/{len} records  {msg}") {
+            b.set_style(style);
+        }
+        Some(b)
+    } else {
+        None
+    };
+    let reports = Mutex::new(Vec::new());
+    let outcomes = batch::run_all(&found.jobs, force, &|job, o| {
+        if let Some(b) = &bar {
+            b.inc(1);
+            b.set_message(job.notebook.display().to_string());
+        }
+        if let Outcome::Failed(f) = o {
+            if let Ok(mut r) = reports.lock() {
+                r.push(f.report());
+            }
+        }
+    });
+    if let Some(b) = bar {
+        b.finish_and_clear();
+    }
+    for r in reports.into_inner().unwrap_or_default() {
+        eprint!("{r}");
+    }
+    for e in &walk_errors {
+        eprint!("{}", e.report());
+    }
+    let (mut built, mut fresh, mut failed) = (0, 0, 0);
+    let many = n > 1 || !found.skipped.is_empty();
+    for (job, o) in found.jobs.iter().zip(&outcomes) {
+        match o {
+            Outcome::Built { output, seconds } => {
+                built += 1;
+                println!("built       {}  ({seconds:.2} s)", output.display());
+            }
+            Outcome::UpToDate { output } => {
+                fresh += 1;
+                println!("up to date  {}", output.display());
+            }
+            Outcome::Failed(f) => {
+                failed += 1;
+                println!("FAILED      {}  {}", job.notebook.display(), f.summary());
+            }
+        }
+    }
+    if many {
+        for s in &found.skipped {
+            println!("skipped     {}  (no `record` in front matter)", s.display());
+        }
+        println!(
+            "{built} built, {fresh} up to date, {} skipped, {failed} failed",
+            found.skipped.len()
+        );
+    }
+    if failed > 0 || !walk_errors.is_empty() {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+/// Every notebook named or found under the folders named.
+fn notebooks_of(paths: &[PathBuf]) -> Vec<PathBuf> {
+    let (found, _) = batch::discover(paths, None);
+    found.jobs.into_iter().map(|j| j.notebook).collect()
+}
+
+fn analyse(nb: &Path) -> Result<benchrec::judge::Record, Failure> {
+    pipeline::read_source(nb).and_then(|s| pipeline::analyse_text(nb, &s.text))
+}
+
+fn check(paths: &[PathBuf]) -> ExitCode {
+    let mut failed = 0;
+    for nb in notebooks_of(paths) {
+        match analyse(&nb) {
+            Ok(rec) => {
+                let flags: usize = rec.reduction.blocks.iter().map(|b| b.flags.len()).sum();
+                println!("ok {} ({} blocks, {flags} flags)", nb.display(), rec.reduction.blocks.len());
+            }
+            Err(f) => {
+                eprint!("{}", f.report());
+                failed += 1;
+            }
+        }
+    }
+    if failed > 0 {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+fn results(path: &Path, format: Format) -> ExitCode {
+    if path.is_dir() {
+        let mut recs = Vec::new();
+        let mut failed = false;
+        for nb in notebooks_of(&[path.to_path_buf()]) {
+            match analyse(&nb) {
+                Ok(r) => recs.push(r),
+                Err(f) => {
+                    eprint!("{}", f.report());
+                    failed = true;
+                }
+            }
+        }
+        match format {
+            Format::Csv => print!("{}", export::csv_string(&recs.iter().collect::<Vec<_>>())),
+            Format::Json => {
+                let all: Vec<export::JsonRecord> = recs.iter().map(export::to_json).collect();
+                println!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
+            }
+        }
+        return if failed { ExitCode::from(1) } else { ExitCode::SUCCESS };
+    }
+    match analyse(path) {
+        Ok(rec) => {
+            match format {
+                Format::Json => println!("{}", export::json_string(&rec)),
+                Format::Csv => print!("{}", export::csv_string(&[&rec])),
+            }
+            ExitCode::SUCCESS
+        }
+        Err(f) => fail(&f),
+    }
+}
+
+fn sign(path: &Path, by: &str, on: Option<String>) -> ExitCode {
+    let src = match pipeline::read_source(path) {
+        Ok(s) => s,
+        Err(f) => return fail(&f),
+    };
+    let rec = match pipeline::analyse_text(path, &src.text) {
+        Ok(r) => r,
+        Err(f) => return fail(&f),
+    };
+    let on = on.unwrap_or_else(|| chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string());
+    let signed = match signoff::set_signoff(&src.text, by, &on, &rec.digest) {
+        Ok(s) => s,
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            return ExitCode::from(1);
+        }
+    };
+    if let Err(e) = pipeline::write_atomic(path, signed.as_bytes()) {
+        eprintln!("error: {}: {e}", path.display());
+        return ExitCode::from(1);
+    }
+    println!("signed {} by {by} on {on} ({})", path.display(), rec.digest);
+    ExitCode::SUCCESS
+}
+
+fn verify(path: &Path) -> ExitCode {
+    let bytes = match std::fs::read(path) {
+        Ok(b) => b,
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            return ExitCode::from(1);
+        }
+    };
+    let (text, origin) = if bytes.starts_with(b"%PDF") {
+        match signoff::verify_pdf_source(&bytes) {
+            Ok(t) => (t, format!("the notebook embedded in {}", path.display())),
+            Err(e) => {
+                println!("NOT VERIFIED: {}: {e}", path.display());
+                return ExitCode::from(1);
+            }
+        }
+    } else {
+        match pipeline::read_source(path) {
+            Ok(s) => (s.text, path.display().to_string()),
+            Err(f) => return fail(&f),
+        }
+    };
+    let rec = match pipeline::analyse_text(path, &text) {
+        Ok(r) => r,
+        Err(f) => return fail(&f),
+    };
+    match &rec.notebook.front.signoff {
+        None => {
+            println!("NOT SIGNED: {origin} carries no sign-off");
+            ExitCode::from(1)
+        }
+        Some(s) if s.digest == rec.digest => {
+            println!("verified: {origin} matches the sign-off by {} on {} ({})", s.by, s.on, s.digest);
+            ExitCode::SUCCESS
+        }
+        Some(s) => {
+            println!(
+                "VOID: {origin} was signed by {} on {} as {}, but its readings now give {}",
+                s.by, s.on, s.digest, rec.digest
+            );
+            ExitCode::from(1)
+        }
+    }
+}
+
+fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
+    use notify::{RecursiveMode, Watcher};
+    if !path.exists() {
+        eprintln!("error: {}: no such file or folder", path.display());
+        return ExitCode::from(1);
+    }
+    let (tx, rx) = std::sync::mpsc::channel();
+    let mut watcher = match notify::recommended_watcher(move |e| {
+        let _ = tx.send(e);
+    }) {
+        Ok(w) => w,
+        Err(e) => {
+            eprintln!("error: cannot watch {}: {e}", path.display());
+            return ExitCode::from(1);
+        }
+    };
+    // Watch the folder, so editors that save by renaming a new file into place are seen.
+    let target = if path.is_dir() { path.to_path_buf() } else { path.parent().map(Path::to_path_buf).unwrap_or_default() };
+    let target = if target.as_os_str().is_empty() { PathBuf::from(".") } else { target };
+    if let Err(e) = watcher.watch(&target, RecursiveMode::Recursive) {
+        eprintln!("error: cannot watch {}: {e}", target.display());
+        return ExitCode::from(1);
+    }
+    let canon = |p: &Path| p.canonicalize().unwrap_or_else(|_| p.to_path_buf());
+    let single = if path.is_file() { Some(canon(path)) } else { None };
+    println!("watching {} (Ctrl-C to stop)", path.display());
+    let mut builds = 0usize;
+    // Content last built per notebook: a save that changes nothing is not rebuilt.
+    let mut last: std::collections::HashMap<PathBuf, Vec<u8>> = std::collections::HashMap::new();
+    let build_one = |nb: &Path, builds: &mut usize| {
+        let t0 = std::time::Instant::now();
+        match pipeline::build_file(nb, None) {
+            Ok(out) => println!("built {} in {:.2} s", out.display(), t0.elapsed().as_secs_f64()),
+            Err(f) => {
+                eprint!("{}", f.report());
+                println!("not built {} ({:.2} s): the last good PDF is kept", nb.display(), t0.elapsed().as_secs_f64());
+            }
+        }
+        *builds += 1;
+    };
+    loop {
+        if max_builds.is_some_and(|m| builds >= m) {
+            return ExitCode::SUCCESS;
+        }
+        let Ok(first) = rx.recv() else { return ExitCode::SUCCESS };
+        let mut events = vec![first];
+        // Editors write in bursts: gather what arrives within a short pause.
+        while let Ok(e) = rx.recv_timeout(std::time::Duration::from_millis(60)) {
+            events.push(e);
+        }
+        let mut changed: Vec<PathBuf> = Vec::new();
+        for ev in events.into_iter().flatten() {
+            if matches!(ev.kind, notify::EventKind::Access(_)) {
+                continue;
+            }
+            for p in ev.paths {
+                if p.extension().and_then(|e| e.to_str()) != Some("md") || !p.is_file() {
+                    continue;
+                }
+                let p = canon(&p);
+                let wanted = match &single {
+                    Some(s) => &p == s,
+                    None => std::fs::read_to_string(&p).is_ok_and(|t| batch::looks_like_notebook(&t)),
+                };
+                if wanted && !changed.contains(&p) {
+                    changed.push(p);
+                }
+            }
+        }
+        for nb in changed {
+            let Ok(bytes) = std::fs::read(&nb) else { continue };
+            if last.get(&nb) == Some(&bytes) {
+                continue;
+            }
+            last.insert(nb.clone(), bytes);
+            build_one(&nb, &mut builds);
+        }
+    }
+}
+
+fn new_notebook(path: &Path, record: Option<String>) -> ExitCode {
+    if path.exists() {
+        eprintln!("error: {} already exists; benchrec new never overwrites a file", path.display());
+        return ExitCode::from(1);
+    }
+    let record = record.unwrap_or_else(|| {
+        path.file_stem().map(|s| s.to_string_lossy().to_uppercase()).unwrap_or_else(|| "NEW-0001".into())
+    });
+    let date = chrono::Utc::now().format("%Y-%m-%d").to_string();
+    let text = starter::starter(&record, &date);
+    if let Some(dir) = path.parent() {
+        if !dir.as_os_str().is_empty() && !dir.exists() {
+            if let Err(e) = std::fs::create_dir_all(dir) {
+                eprintln!("error: {}: {e}", dir.display());
+                return ExitCode::from(1);
+            }
+        }
+    }
+    match pipeline::write_atomic(path, text.as_bytes()) {
+        Ok(()) => {
+            println!("wrote {}: edit it, then `benchrec build {}`", path.display(), path.display());
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: {}: {e}", path.display());
+            ExitCode::from(1)
+        }
+    }
+}

@@ -1,0 +1,824 @@
+//! Readings and instrument specifications → model inputs (GUM 4.2, 4.3, 5.2), shared by
+//! every network.
+//!
+//! Rules:
+//! - Rows with the same `f` (every row when there is no `f` column) are repeat observations:
+//!   one input per (column, group) holding the mean, Type A u = s/√n, ν = n − 1, Student's t.
+//!   Means of two columns from the same rows get the correlation coefficient of GUM 5.2.3
+//!   (eq. 17). A single reading (n = 1) has no Type A: its input has u = 0.
+//! - Instruments: `meter` for Vs, VR, VC, VL, V, I; `phase` for shift, period and phi;
+//!   `counter` for f. A column without an instrument gets no Type B and a flag.
+//! - Accuracy `P% + N counts` splits into a gain (one input per instrument and column, value 1,
+//!   u from P %, shared by every row of that column: averaging does not shrink it, GUM 5.2 and
+//!   F.1.2) and a per-reading offset (value 0): N × resolution, or, with no counts, the
+//!   quantisation half-width resolution/2 (rectangular). An absolute accuracy is a per-reading
+//!   offset. The scale `reading` half-width is a further per-reading rectangular offset.
+//!   The value used in a model is x = mean · gain + Σ offsets. A group's offsets carry the u of
+//!   one reading (not divided by √n): counts and scale reading repeat from reading to reading.
+//! - Resolutions and absolute accuracies apply only to columns of their own unit.
+//! - Frequency: the `f` column value with the counter's gain and offset; without a counter it
+//!   is taken as exact (and flagged like any column without an instrument).
+//! - Series resistor: the first resistor in `parts`: its `measured` value with the accuracy of
+//!   its `by` instrument, else its nominal with the tolerance as a rectangular half-width.
+//! - Flags: readings above an instrument's bandwidth, readings dated after its `due` date, and
+//!   rows whose Vs departs from the stated `source` level by more than the meter's accuracy
+//!   limit; every voltage of such a row's group is then scaled by source/Vs
+//!   ([`BlockInputs::voltage`]), with the uncertainty of Vs propagated.
+
+use super::{Context, Flag};
+use crate::diag::{Diagnostic, Span};
+use crate::notebook::{Accuracy, Instrument, Named, PartKind, ReadingsBlock, Tolerance};
+use crate::quantity::Unit;
+use crate::uncertainty::{dist_of, type_a, type_a_correlation, type_b, Dist, Input, Model};
+use std::collections::BTreeMap;
+
+/// Rows holding repeat observations at one frequency.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Group {
+    /// The `f` column value (Hz), None without an `f` column.
+    pub f: Option<f64>,
+    /// Row indices into `block.rows`, in notebook order.
+    pub rows: Vec<usize>,
+    /// Span of the group's first row.
+    pub span: Span,
+}
+
+/// Groups the rows by exact `f` value, in order of first appearance; one group of every row
+/// when there is no `f` column. A non-finite or non-positive f is a diagnostic.
+pub fn groups(block: &ReadingsBlock) -> Result<Vec<Group>, Vec<Diagnostic>> {
+    let Some(fc) = block.col("f") else {
+        return Ok(vec![Group {
+            f: None,
+            rows: (0..block.rows.len()).collect(),
+            span: block.rows.first().map(|r| r.span).unwrap_or(block.span),
+        }]);
+    };
+    let mut out: Vec<Group> = Vec::new();
+    let mut diags = Vec::new();
+    for (i, row) in block.rows.iter().enumerate() {
+        let Some(cell) = row.cells.get(fc) else {
+            diags.push(Diagnostic::new(row.span, "row has no value in column f"));
+            continue;
+        };
+        let f = cell.value;
+        if !(f.is_finite() && f > 0.0) {
+            diags.push(
+                Diagnostic::new(cell.span, "frequency must be positive")
+                    .expected("a frequency above 0 Hz")
+                    .found(cell.text.clone()),
+            );
+            continue;
+        }
+        match out.iter_mut().find(|g| g.f == Some(f)) {
+            Some(g) => g.rows.push(i),
+            None => out.push(Group {
+                f: Some(f),
+                rows: vec![i],
+                span: row.span,
+            }),
+        }
+    }
+    if diags.is_empty() {
+        Ok(out)
+    } else {
+        Err(diags)
+    }
+}
+
+/// A quantity value in a model: `base` (or the input `mean`) · gain + Σ offsets.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Value {
+    /// Used when `mean` is None (an exact frequency, say).
+    pub base: f64,
+    pub mean: Option<usize>,
+    pub gain: Option<usize>,
+    pub offsets: Vec<usize>,
+}
+
+impl Value {
+    pub fn exact(v: f64) -> Value {
+        Value { base: v, mean: None, gain: None, offsets: Vec::new() }
+    }
+
+    /// Evaluates at input values `x` (NaN if an index is missing, which `propagate` rejects).
+    pub fn eval(&self, x: &[f64]) -> f64 {
+        let at = |i: usize| x.get(i).copied().unwrap_or(f64::NAN);
+        let mut v = match self.mean {
+            Some(i) => at(i),
+            None => self.base,
+        };
+        if let Some(g) = self.gain {
+            v *= at(g);
+        }
+        for &o in &self.offsets {
+            v += at(o);
+        }
+        v
+    }
+}
+
+/// What a network reads from a block.
+#[derive(Debug, Clone, Copy)]
+pub struct Spec<'s> {
+    /// Network name for messages.
+    pub network: &'s str,
+    /// Columns that must be present.
+    pub required: &'s [&'s str],
+    /// Columns used when present (besides the required ones).
+    pub optional: &'s [&'s str],
+    /// Whether a series resistor from `parts` is needed.
+    pub resistor: bool,
+}
+
+/// The inputs of one block, with handles to build its model.
+#[derive(Debug, Clone)]
+pub struct BlockInputs {
+    pub inputs: Vec<Input>,
+    pub corr: Vec<(usize, usize, f64)>,
+    pub flags: Vec<Flag>,
+    pub groups: Vec<Group>,
+    /// Value per (column symbol, group).
+    values: BTreeMap<String, Vec<Value>>,
+    /// Frequency per group (None without an `f` column).
+    freq: Vec<Option<Value>>,
+    /// Series resistor: input index and part name.
+    pub resistor: Option<(usize, String)>,
+    /// Stated source level and, per group, whether its voltages are normalised to it.
+    source: Option<f64>,
+    normalise: Vec<bool>,
+}
+
+/// Instrument assigned to a column by the block header.
+pub fn instrument_slot<'b>(block: &'b ReadingsBlock, symbol: &str) -> Option<&'b Named> {
+    match symbol {
+        "f" => block.counter.as_ref(),
+        "shift" | "period" | "phi" => block.phase.as_ref(),
+        _ => block.meter.as_ref(),
+    }
+}
+
+const VOLTAGES: [&str; 5] = ["Vs", "VR", "VC", "VL", "V"];
+
+/// Frequency as written in budget names: `1 kHz`, `159.155 Hz`.
+pub fn fmt_hz(f: f64) -> String {
+    let (v, p) = if f.abs() >= 1e6 {
+        (f / 1e6, "MHz")
+    } else if f.abs() >= 1e3 {
+        (f / 1e3, "kHz")
+    } else {
+        (f, "Hz")
+    };
+    format!("{} {p}", fmt_sig(v, 6))
+}
+
+/// `v` to `sig` significant digits, trailing zeros trimmed.
+pub fn fmt_sig(v: f64, sig: i32) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let mag = v.abs().log10().floor() as i32;
+    let dec = (sig - 1 - mag).max(0) as usize;
+    let s = format!("{v:.dec$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+fn unit_ok(q: &crate::quantity::Quantity, unit: Unit) -> bool {
+    q.unit == unit
+}
+
+/// Half-width of an instrument's accuracy limit for a reading `x` in `unit` (used for the
+/// source-level check): P·|x| + N·resolution, an absolute limit, or resolution/2.
+pub fn accuracy_limit(inst: &Instrument, x: f64, unit: Unit) -> f64 {
+    let res = inst.resolution.filter(|r| unit_ok(r, unit)).map(|r| r.value.abs());
+    match &inst.accuracy {
+        Some(Accuracy::Relative { fraction, counts }) => {
+            let c = if *counts > 0.0 {
+                counts * res.unwrap_or(0.0)
+            } else {
+                res.unwrap_or(0.0) / 2.0
+            };
+            fraction.abs() * x.abs() + c
+        }
+        Some(Accuracy::Absolute(q)) if unit_ok(q, unit) => q.value.abs(),
+        _ => res.unwrap_or(0.0) / 2.0,
+    }
+}
+
+impl BlockInputs {
+    /// Builds the inputs of a block for a network's `spec`.
+    pub fn build(ctx: &Context, block: &ReadingsBlock, spec: &Spec) -> Result<BlockInputs, Vec<Diagnostic>> {
+        let mut diags = Vec::new();
+        let missing: Vec<&str> = spec.required.iter().copied().filter(|s| block.col(s).is_none()).collect();
+        if !missing.is_empty() {
+            diags.push(
+                Diagnostic::new(block.span, format!("network {} needs columns {}", spec.network, spec.required.join(", ")))
+                    .expected(spec.required.join(", "))
+                    .found(format!("no column {}", missing.join(", "))),
+            );
+        }
+        if block.rows.is_empty() {
+            diags.push(Diagnostic::new(block.span, "readings block has no rows"));
+        }
+        for c in &block.columns {
+            if c.symbol != "f" && !spec.required.contains(&c.symbol.as_str()) && !spec.optional.contains(&c.symbol.as_str()) {
+                // Reported as a flag below, not an error.
+            }
+        }
+        let groups = match groups(block) {
+            Ok(g) => g,
+            Err(d) => {
+                diags.extend(d);
+                Vec::new()
+            }
+        };
+        // Every used cell must exist and be finite.
+        let used: Vec<&str> = spec.required.iter().chain(spec.optional.iter()).copied().collect();
+        for row in &block.rows {
+            for s in &used {
+                if let Some(ci) = block.col(s) {
+                    match row.cells.get(ci) {
+                        None => diags.push(Diagnostic::new(row.span, format!("row has no value in column {s}"))),
+                        Some(c) if !c.value.is_finite() => diags.push(
+                            Diagnostic::new(c.span, format!("value in column {s} is not a finite number")).found(c.text.clone()),
+                        ),
+                        _ => {}
+                    }
+                }
+            }
+        }
+        // Instruments named in the header must exist.
+        let mut insts: Vec<(&Named, &Instrument)> = Vec::new();
+        for n in [&block.meter, &block.phase, &block.counter].into_iter().flatten() {
+            match ctx.instruments.get(&n.name) {
+                Some(i) => {
+                    if !insts.iter().any(|(m, _)| m.name == n.name) {
+                        insts.push((n, i));
+                    }
+                }
+                None => diags.push(
+                    Diagnostic::new(n.span, format!("unknown instrument {}", n.name))
+                        .expected("a name under `instruments` in the front matter")
+                        .found(n.name.clone()),
+                ),
+            }
+        }
+        if !diags.is_empty() {
+            return Err(diags);
+        }
+
+        let mut bi = BlockInputs {
+            inputs: Vec::new(),
+            corr: Vec::new(),
+            flags: Vec::new(),
+            groups: groups.clone(),
+            values: BTreeMap::new(),
+            freq: vec![None; groups.len()],
+            resistor: None,
+            source: block.source,
+            normalise: vec![false; groups.len()],
+        };
+
+        for c in &block.columns {
+            let s = c.symbol.as_str();
+            if s != "f" && !used.contains(&s) {
+                bi.flags.push(Flag {
+                    span: Some(c.span),
+                    message: format!("column {s} is not used by network {}", spec.network),
+                });
+            }
+        }
+
+        // Calibration due dates.
+        for (n, i) in &insts {
+            if let Some(due) = i.due {
+                if ctx.date > due {
+                    bi.flags.push(Flag {
+                        span: Some(n.span),
+                        message: format!(
+                            "readings dated {} were taken after the calibration of {} fell due ({})",
+                            ctx.date, n.name, due
+                        ),
+                    });
+                }
+            }
+        }
+        // Bandwidths.
+        if let Some(fc) = block.col("f") {
+            for (n, i) in &insts {
+                let Some(bw) = i.bandwidth else { continue };
+                let serves = block.columns.iter().any(|c| {
+                    (c.symbol == "f" || used.contains(&c.symbol.as_str()))
+                        && instrument_slot(block, &c.symbol).map(|m| m.name == n.name).unwrap_or(false)
+                });
+                if !serves {
+                    continue;
+                }
+                for row in &block.rows {
+                    if let Some(cell) = row.cells.get(fc) {
+                        if cell.value > bw {
+                            bi.flags.push(Flag {
+                                span: Some(row.span),
+                                message: format!(
+                                    "reading at {} is above the bandwidth of {} ({})",
+                                    fmt_hz(cell.value),
+                                    n.name,
+                                    fmt_hz(bw)
+                                ),
+                            });
+                        }
+                    }
+                }
+            }
+        }
+
+        // Measured columns.
+        let gname = |g: &Group| g.f.map(|f| format!("@{}", fmt_hz(f))).unwrap_or_default();
+        let mut col_inputs: BTreeMap<String, Vec<Option<usize>>> = BTreeMap::new();
+        for c in &block.columns {
+            let s = c.symbol.as_str();
+            if !(s == "f" || used.contains(&s)) {
+                continue;
+            }
+            let Some(ci) = block.col(s) else { continue };
+            let inst = instrument_slot(block, s).and_then(|n| ctx.instruments.get(&n.name).map(|i| (n.name.as_str(), i)));
+            if inst.is_none() {
+                bi.flags.push(Flag {
+                    span: Some(c.span),
+                    message: format!("no instrument for column {s}: its Type B uncertainty is not included"),
+                });
+            }
+            // Gain shared by the whole column.
+            let mut gain = None;
+            let mut count_offset: Option<(f64, Dist, &str)> = None; // (u, dist, label)
+            let mut read_offset: Option<f64> = None;
+            if let Some((iname, i)) = inst {
+                let res = i.resolution.filter(|r| unit_ok(r, c.unit)).map(|r| r.value.abs());
+                if let Some(r) = &i.resolution {
+                    if !unit_ok(r, c.unit) && i.accuracy.is_some() {
+                        // A meter's resolution in another unit says nothing of this column.
+                    }
+                }
+                match &i.accuracy {
+                    Some(Accuracy::Relative { fraction, counts }) => {
+                        if *fraction != 0.0 {
+                            bi.inputs.push(Input::type_b(
+                                format!("gain({iname},{s})"),
+                                1.0,
+                                type_b(*fraction, i.distribution),
+                                dist_of(i.distribution),
+                            ));
+                            gain = Some(bi.inputs.len() - 1);
+                        }
+                        if *counts > 0.0 {
+                            match res {
+                                Some(r) => count_offset = Some((type_b(counts * r, i.distribution), dist_of(i.distribution), "counts")),
+                                None => bi.flags.push(Flag {
+                                    span: Some(i.span),
+                                    message: format!(
+                                        "accuracy of {iname} has {counts} counts but no resolution in {}: the counts are not included for column {s}",
+                                        c.unit.symbol()
+                                    ),
+                                }),
+                            }
+                        } else if let Some(r) = res {
+                            count_offset = Some((type_b(r / 2.0, crate::notebook::Distribution::Rectangular), Dist::Rectangular, "res"));
+                        }
+                    }
+                    Some(Accuracy::Absolute(q)) => {
+                        if unit_ok(q, c.unit) {
+                            count_offset = Some((type_b(q.value, i.distribution), dist_of(i.distribution), "acc"));
+                        } else {
+                            bi.flags.push(Flag {
+                                span: Some(i.span),
+                                message: format!(
+                                    "accuracy of {iname} is in {}, not {}: not applied to column {s}",
+                                    q.unit.symbol(),
+                                    c.unit.symbol()
+                                ),
+                            });
+                        }
+                    }
+                    None => {
+                        if let Some(r) = res {
+                            count_offset = Some((type_b(r / 2.0, crate::notebook::Distribution::Rectangular), Dist::Rectangular, "res"));
+                        }
+                    }
+                }
+                if let Some(rd) = &i.reading {
+                    if unit_ok(rd, c.unit) {
+                        read_offset = Some(type_b(rd.value, crate::notebook::Distribution::Rectangular));
+                    } else if matches!(c.unit, Unit::Div) || matches!(rd.unit, Unit::Div) {
+                        bi.flags.push(Flag {
+                            span: Some(i.span),
+                            message: format!(
+                                "reading half-width of {iname} is in {}, not {}: not applied to column {s}",
+                                rd.unit.symbol(),
+                                c.unit.symbol()
+                            ),
+                        });
+                    }
+                }
+            }
+            let mut per_group = Vec::with_capacity(groups.len());
+            let mut idx_per_group = Vec::with_capacity(groups.len());
+            for (gi, g) in groups.iter().enumerate() {
+                let tag = format!("{s}{}", gname(g));
+                let samples: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)).filter_map(|r| r.cells.get(ci)).map(|c| c.value).collect();
+                let mut v = Value { base: 0.0, mean: None, gain, offsets: Vec::new() };
+                if s == "f" {
+                    v.base = g.f.unwrap_or(0.0);
+                    idx_per_group.push(None);
+                } else {
+                    let (mean, u, nu) = type_a(&samples);
+                    if samples.len() > 1 {
+                        bi.inputs.push(Input::type_a(tag.clone(), mean, u, nu));
+                    } else {
+                        bi.inputs.push(Input::type_b(tag.clone(), mean, 0.0, Dist::Rectangular));
+                    }
+                    v.mean = Some(bi.inputs.len() - 1);
+                    idx_per_group.push(Some(bi.inputs.len() - 1));
+                }
+                if let (Some((u, d, label)), Some((iname, _))) = (count_offset, inst) {
+                    bi.inputs.push(Input::type_b(format!("{label}({iname},{tag})"), 0.0, u, d));
+                    v.offsets.push(bi.inputs.len() - 1);
+                }
+                if let (Some(u), Some((iname, _))) = (read_offset, inst) {
+                    bi.inputs.push(Input::type_b(format!("read({iname},{tag})"), 0.0, u, Dist::Rectangular));
+                    v.offsets.push(bi.inputs.len() - 1);
+                }
+                if s == "f" {
+                    if let Some(slot) = bi.freq.get_mut(gi) {
+                        *slot = Some(v.clone());
+                    }
+                }
+                per_group.push(v);
+            }
+            bi.values.insert(s.to_string(), per_group);
+            col_inputs.insert(s.to_string(), idx_per_group);
+        }
+
+        // Type A correlations between columns' means from the same rows (GUM 5.2.3).
+        let measured: Vec<&str> = block
+            .columns
+            .iter()
+            .map(|c| c.symbol.as_str())
+            .filter(|s| *s != "f" && used.contains(s))
+            .collect();
+        for (gi, g) in groups.iter().enumerate() {
+            if g.rows.len() < 2 {
+                continue;
+            }
+            for a in 0..measured.len() {
+                for b in a + 1..measured.len() {
+                    let (sa, sb) = (measured[a], measured[b]);
+                    let (Some(ca), Some(cb)) = (block.col(sa), block.col(sb)) else { continue };
+                    let xa: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)?.cells.get(ca).map(|c| c.value)).collect();
+                    let xb: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)?.cells.get(cb).map(|c| c.value)).collect();
+                    let r = type_a_correlation(&xa, &xb);
+                    let ia = col_inputs.get(sa).and_then(|v| v.get(gi).copied().flatten());
+                    let ib = col_inputs.get(sb).and_then(|v| v.get(gi).copied().flatten());
+                    if let (Some(ia), Some(ib)) = (ia, ib) {
+                        if r != 0.0 {
+                            bi.corr.push((ia, ib, r));
+                        }
+                    }
+                }
+            }
+        }
+
+        // Source level check and normalisation.
+        if let (Some(level), Some(vc)) = (block.source, block.col("Vs")) {
+            let meter = block.meter.as_ref().and_then(|n| ctx.instruments.get(&n.name));
+            for (gi, g) in groups.iter().enumerate() {
+                for &r in &g.rows {
+                    let Some(cell) = block.rows.get(r).and_then(|row| row.cells.get(vc)) else { continue };
+                    let lim = meter.map(|m| accuracy_limit(m, cell.value, Unit::V)).unwrap_or(0.0);
+                    let tol = lim.max(1e-12 * level.abs());
+                    if (cell.value - level).abs() > tol {
+                        bi.flags.push(Flag {
+                            span: Some(cell.span),
+                            message: format!(
+                                "Vs = {} V departs from the stated source level {} V by more than the meter's limit (±{} V): the voltages at {} are normalised to {} V",
+                                fmt_sig(cell.value, 6),
+                                fmt_sig(level, 6),
+                                fmt_sig(lim, 3),
+                                g.f.map(fmt_hz).unwrap_or_else(|| "this block".into()),
+                                fmt_sig(level, 6)
+                            ),
+                        });
+                        if let Some(n) = bi.normalise.get_mut(gi) {
+                            *n = true;
+                        }
+                    }
+                }
+            }
+        }
+
+        // Series resistor.
+        if spec.resistor {
+            match series_resistor(ctx, block, &mut bi.flags) {
+                Ok((inp, name)) => {
+                    bi.inputs.push(inp);
+                    bi.resistor = Some((bi.inputs.len() - 1, name));
+                }
+                Err(d) => return Err(d),
+            }
+        }
+        Ok(bi)
+    }
+
+    /// Whether the block has this column.
+    pub fn has(&self, symbol: &str) -> bool {
+        self.values.contains_key(symbol)
+    }
+
+    /// Measured value of a column in a group at inputs `x` (NaN when absent).
+    pub fn value(&self, symbol: &str, g: usize, x: &[f64]) -> f64 {
+        self.values.get(symbol).and_then(|v| v.get(g)).map(|v| v.eval(x)).unwrap_or(f64::NAN)
+    }
+
+    /// A voltage, scaled by source/Vs when the group departs from the stated source level.
+    pub fn voltage(&self, symbol: &str, g: usize, x: &[f64]) -> f64 {
+        let v = self.value(symbol, g, x);
+        match (self.source, self.normalise.get(g)) {
+            (Some(level), Some(true)) if VOLTAGES.contains(&symbol) => v * level / self.value("Vs", g, x),
+            _ => v,
+        }
+    }
+
+    /// Whether the voltages of group `g` are normalised to the source level.
+    pub fn normalised(&self, g: usize) -> bool {
+        self.normalise.get(g).copied().unwrap_or(false)
+    }
+
+    /// Frequency of group `g` (NaN without an `f` column).
+    pub fn f(&self, g: usize, x: &[f64]) -> f64 {
+        self.freq.get(g).and_then(|v| v.as_ref()).map(|v| v.eval(x)).unwrap_or(f64::NAN)
+    }
+
+    /// Series resistance (NaN when the spec asked for none).
+    pub fn r(&self, x: &[f64]) -> f64 {
+        self.resistor.as_ref().and_then(|(i, _)| x.get(*i).copied()).unwrap_or(f64::NAN)
+    }
+
+    /// Values at the estimates.
+    pub fn estimates(&self) -> Vec<f64> {
+        self.inputs.iter().map(|i| i.value).collect()
+    }
+
+    pub fn model(&self) -> Model<'_> {
+        Model { inputs: &self.inputs, corr: &self.corr }
+    }
+}
+
+/// The block's series resistor as one input (see the module rules).
+fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Result<(Input, String), Vec<Diagnostic>> {
+    let mut diags = Vec::new();
+    let mut found = None;
+    for n in &block.parts {
+        match ctx.parts.get(&n.name) {
+            None => diags.push(
+                Diagnostic::new(n.span, format!("unknown part {}", n.name))
+                    .expected("a name under `parts` in the front matter")
+                    .found(n.name.clone()),
+            ),
+            Some(p) if p.kind == PartKind::Resistor && found.is_none() => found = Some((n, p)),
+            _ => {}
+        }
+    }
+    if !diags.is_empty() {
+        return Err(diags);
+    }
+    let Some((named, part)) = found else {
+        return Err(vec![Diagnostic::new(block.span, "this network needs a series resistor in `parts`")
+            .expected("a part of kind resistor listed in the block's `parts`")
+            .found(if block.parts.is_empty() { "no parts".to_string() } else { "no resistor".to_string() })]);
+    };
+    let name = part.name.clone();
+    let (value, u, dist) = if let Some(m) = &part.measured {
+        let r = m.value;
+        let by = part.measured_by.as_ref().and_then(|b| ctx.instruments.get(b).map(|i| (b, i)));
+        match (&part.measured_by, by) {
+            (Some(b), None) => {
+                return Err(vec![Diagnostic::new(part.span, format!("unknown instrument {b} for the measured value of {name}"))
+                    .expected("a name under `instruments` in the front matter")
+                    .found(b.clone())]);
+            }
+            (None, _) => {
+                flags.push(Flag {
+                    span: Some(part.span),
+                    message: format!("measured value of {name} names no instrument (`by`): taken as exact"),
+                });
+                (r, 0.0, Dist::Rectangular)
+            }
+            (Some(b), Some((_, i))) => {
+                if let Some(due) = i.due {
+                    if ctx.date > due {
+                        flags.push(Flag {
+                            span: Some(part.span),
+                            message: format!("{name} was measured with {b}, whose calibration fell due on {due}"),
+                        });
+                    }
+                }
+                if i.accuracy.is_none() && i.resolution.is_none() {
+                    flags.push(Flag {
+                        span: Some(i.span),
+                        message: format!("{b} has no accuracy or resolution: the measured value of {name} is taken as exact"),
+                    });
+                }
+                let a = accuracy_limit(i, r, Unit::Ohm);
+                let d = if i.accuracy.is_some() { i.distribution } else { crate::notebook::Distribution::Rectangular };
+                (r, type_b(a, d), dist_of(d))
+            }
+        }
+    } else if let Some(nom) = &part.nominal {
+        let r = nom.value;
+        let a = match &part.tolerance {
+            Some(Tolerance::Relative(t)) | Some(Tolerance::Code(_, t)) => t.abs() * r.abs(),
+            Some(Tolerance::Absolute(a)) => a.abs(),
+            None => {
+                flags.push(Flag {
+                    span: Some(part.span),
+                    message: format!("{name} has neither a measured value nor a tolerance: its nominal is taken as exact"),
+                });
+                0.0
+            }
+        };
+        (r, type_b(a, crate::notebook::Distribution::Rectangular), Dist::Rectangular)
+    } else {
+        return Err(vec![Diagnostic::new(part.span, format!("resistor {name} has neither a measured nor a nominal value"))
+            .expected("`measured` or `nominal`")]);
+    };
+    if !(value.is_finite() && value > 0.0) {
+        return Err(vec![Diagnostic::new(part.span, format!("resistance of {name} must be positive")).found(format!("{value} ohm"))]);
+    }
+    let _ = named;
+    Ok((Input::type_b(name.clone(), value, u, dist), name))
+}
+
+/// Builders of notebook structs for unit tests.
+#[cfg(test)]
+pub(crate) mod testutil {
+    use crate::diag::Span;
+    use crate::notebook::*;
+    use crate::quantity::{Quantity, Unit};
+    use std::collections::BTreeMap;
+
+    pub fn named(n: &str) -> Named {
+        Named { name: n.into(), span: Span::default() }
+    }
+
+    pub fn instrument(name: &str, accuracy: Option<Accuracy>, resolution: Option<Quantity>) -> Instrument {
+        Instrument {
+            name: name.into(),
+            what: None,
+            accuracy,
+            resolution,
+            bandwidth: None,
+            calibrated: None,
+            due: None,
+            reading: None,
+            distribution: Distribution::Rectangular,
+            span: Span::default(),
+        }
+    }
+
+    pub fn resistor(name: &str, nominal: f64, tol: Option<Tolerance>) -> Part {
+        Part {
+            name: name.into(),
+            kind: PartKind::Resistor,
+            nominal: Some(Quantity { value: nominal, unit: Unit::Ohm }),
+            tolerance: tol,
+            measured: None,
+            measured_by: None,
+            dcr: None,
+            dcr_by: None,
+            rating: None,
+            span: Span::default(),
+        }
+    }
+
+    /// A block with the given columns and rows of SI values; each cell gets its own span.
+    pub fn block(network: Network, cols: &[(&str, Unit)], rows: &[Vec<f64>]) -> ReadingsBlock {
+        let mut pos = 1000;
+        let columns = cols
+            .iter()
+            .map(|(s, u)| Column { symbol: s.to_string(), unit: *u, heading: format!("{s}/{}", u.symbol()), span: Span::default() })
+            .collect();
+        let rows = rows
+            .iter()
+            .map(|r| {
+                let start = pos;
+                let cells = r
+                    .iter()
+                    .map(|v| {
+                        pos += 10;
+                        Cell { value: *v, text: format!("{v}"), span: Span::new(pos - 10, pos - 2) }
+                    })
+                    .collect();
+                pos += 1;
+                Row { cells, span: Span::new(start, pos - 1) }
+            })
+            .collect();
+        ReadingsBlock {
+            id: "b1".into(),
+            id_span: Span::default(),
+            network,
+            parts: Vec::new(),
+            meter: None,
+            phase: None,
+            counter: None,
+            note: None,
+            source: None,
+            columns,
+            rows,
+            span: Span::new(0, 10),
+            body: String::new(),
+        }
+    }
+
+    pub struct Env {
+        pub instruments: BTreeMap<String, Instrument>,
+        pub parts: BTreeMap<String, Part>,
+        pub date: chrono::NaiveDate,
+    }
+
+    impl Env {
+        pub fn new() -> Env {
+            Env {
+                instruments: BTreeMap::new(),
+                parts: BTreeMap::new(),
+                date: chrono::NaiveDate::from_ymd_opt(2026, 3, 14).unwrap(),
+            }
+        }
+        pub fn ctx(&self) -> crate::networks::Context<'_> {
+            crate::networks::Context {
+                source: "",
+                coverage: 0.9545,
+                date: self.date,
+                instruments: &self.instruments,
+                parts: &self.parts,
+            }
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::testutil::*;
+    use super::*;
+    use crate::notebook::{Accuracy, Network};
+    use crate::quantity::{Quantity, Unit};
+
+    // Grouping by repeated f and GUM 4.2 Type A on each group.
+    #[test]
+    fn repeats_become_type_a_with_correlation() {
+        let env = Env::new();
+        let b = block(
+            Network::Z,
+            &[("f", Unit::Hz), ("V", Unit::V), ("I", Unit::A), ("phi", Unit::Rad)],
+            &[vec![50.0, 1.0, 0.1, 0.2], vec![60.0, 2.0, 0.2, 0.3], vec![50.0, 1.2, 0.11, 0.25]],
+        );
+        let spec = Spec { network: "Z", required: &["V", "I", "phi"], optional: &[], resistor: false };
+        let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
+        assert_eq!(bi.groups.len(), 2);
+        assert_eq!(bi.groups[0].rows, vec![0, 2]);
+        let x = bi.estimates();
+        assert!((bi.value("V", 0, &x) - 1.1).abs() < 1e-15);
+        assert_eq!(bi.value("V", 1, &x), 2.0);
+        // Two points: r = ±1 (all pairs move together here).
+        assert!(bi.corr.iter().all(|c| (c.2.abs() - 1.0).abs() < 1e-12));
+        // Four columns without instruments → four flags.
+        assert_eq!(bi.flags.iter().filter(|f| f.message.starts_with("no instrument")).count(), 4);
+    }
+
+    // Correlated Type B (GUM 5.2, F.1.2): one gain input per (instrument, column).
+    #[test]
+    fn gain_is_shared_per_column() {
+        let mut env = Env::new();
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative { fraction: 0.005, counts: 2.0 }),
+                Some(Quantity { value: 1e-3, unit: Unit::V }),
+            ),
+        );
+        let mut b = block(Network::RC, &[("f", Unit::Hz), ("VR", Unit::V)], &[vec![100.0, 1.0], vec![200.0, 1.5]]);
+        b.meter = Some(named("dmm"));
+        let spec = Spec { network: "RC", required: &["VR"], optional: &[], resistor: false };
+        let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
+        let gains: Vec<&Input> = bi.inputs.iter().filter(|i| i.name.starts_with("gain(")).collect();
+        assert_eq!(gains.len(), 1);
+        assert!((gains[0].u - 0.005 / 3f64.sqrt()).abs() < 1e-15);
+        let counts: Vec<&Input> = bi.inputs.iter().filter(|i| i.name.starts_with("counts(")).collect();
+        assert_eq!(counts.len(), 2);
+        assert!((counts[0].u - 2e-3 / 3f64.sqrt()).abs() < 1e-15);
+        assert_eq!(fmt_hz(1000.0), "1 kHz");
+        assert_eq!(fmt_hz(159.1549), "159.155 Hz");
+    }
+}

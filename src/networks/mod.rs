@@ -1,0 +1,155 @@
+//! Reduction: readings → results, one file per network. Pure maths, no I/O.
+//!
+//! Adding a network: one file here with `pub fn reduce(&Context, &ReadingsBlock) ->
+//! Result<BlockResult, Vec<Diagnostic>>` and one arm in [`reduce_block`].
+
+pub mod inputs;
+pub mod rc;
+pub mod z;
+
+use crate::diag::{Diagnostic, Span};
+use crate::notebook::{Instrument, Item, Network, Notebook, Part, ReadingsBlock};
+use crate::quantity::Unit;
+use crate::uncertainty::Measured;
+use chrono::NaiveDate;
+use std::collections::BTreeMap;
+
+/// A named result, per frequency (`f` set) or for the whole block.
+#[derive(Debug, Clone, PartialEq)]
+pub struct NamedResult {
+    pub name: String,
+    pub f: Option<f64>,
+    pub unit: Unit,
+    pub m: Measured,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Correlation {
+    pub a: String,
+    pub b: String,
+    pub r: f64,
+    /// Frequency (Hz) when both results are per-frequency results at that `f`.
+    pub f: Option<f64>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Flag {
+    /// Where in the notebook (row or cell), when known.
+    pub span: Option<Span>,
+    pub message: String,
+}
+
+/// Data a renderer needs to plot a block (SI units).
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct PlotData {
+    /// Named series of (x, y, u(y)) points, e.g. "XC", "phase", "phase_measured", "Y".
+    pub series: Vec<(String, Vec<(f64, f64, f64)>)>,
+    /// Named smooth curves, e.g. the fitted admittance.
+    pub curves: Vec<(String, Vec<(f64, f64)>)>,
+    /// Named vertical markers (x positions), e.g. f0, f_low, f_high.
+    pub markers: Vec<(String, f64)>,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct BlockResult {
+    pub id: String,
+    pub network: Network,
+    /// Per-frequency results, in row order of the distinct frequencies.
+    pub rows: Vec<NamedResult>,
+    /// Block results (no `f`).
+    pub results: Vec<NamedResult>,
+    pub correlations: Vec<Correlation>,
+    pub flags: Vec<Flag>,
+    pub plot: PlotData,
+}
+
+#[derive(Debug, Clone, PartialEq)]
+pub struct Reduction {
+    pub blocks: Vec<BlockResult>,
+}
+
+/// What every network needs from the notebook besides its own block.
+#[derive(Debug, Clone, Copy)]
+pub struct Context<'a> {
+    /// The notebook source (spans index into it).
+    pub source: &'a str,
+    /// Coverage probability of expanded uncertainties.
+    pub coverage: f64,
+    /// Date of the readings.
+    pub date: NaiveDate,
+    pub instruments: &'a BTreeMap<String, Instrument>,
+    pub parts: &'a BTreeMap<String, Part>,
+}
+
+impl<'a> Context<'a> {
+    pub fn new(nb: &'a Notebook) -> Self {
+        Context {
+            source: &nb.source,
+            coverage: nb.front.coverage,
+            date: nb.front.date,
+            instruments: &nb.front.instruments,
+            parts: &nb.front.parts,
+        }
+    }
+
+    /// Span of the `network:` value in the block's header, else the whole block.
+    pub fn network_span(&self, block: &ReadingsBlock) -> Span {
+        let (s, e) = (block.span.start, block.span.end.min(self.source.len()));
+        let Some(text) = self.source.get(s..e) else {
+            return block.span;
+        };
+        let mut off = 0;
+        for line in text.split_inclusive('\n') {
+            let t = line.trim_start();
+            if let Some(rest) = t.strip_prefix("network") {
+                if let Some(v) = rest.trim_start().strip_prefix(':') {
+                    let val = v.split('#').next().unwrap_or("").trim();
+                    if !val.is_empty() {
+                        if let Some(p) = line.find(val) {
+                            let a = s + off + p;
+                            return Span::new(a, a + val.len());
+                        }
+                    }
+                }
+            }
+            if t.trim_end() == "---" {
+                break;
+            }
+            off += line.len();
+        }
+        block.span
+    }
+}
+
+/// Reduces every readings block of the notebook, in order. All blocks are tried; the
+/// diagnostics of every failing block are returned together.
+pub fn reduce(nb: &Notebook) -> Result<Reduction, Vec<Diagnostic>> {
+    let ctx = Context::new(nb);
+    let mut blocks = Vec::new();
+    let mut diags = Vec::new();
+    for item in &nb.items {
+        if let Item::Readings(b) = item {
+            match reduce_block(&ctx, b) {
+                Ok(r) => blocks.push(r),
+                Err(d) => diags.extend(d),
+            }
+        }
+    }
+    if diags.is_empty() {
+        Ok(Reduction { blocks })
+    } else {
+        Err(diags)
+    }
+}
+
+/// One block, dispatched on its network.
+pub fn reduce_block(ctx: &Context, b: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
+    match b.network {
+        Network::RC => rc::reduce(ctx, b),
+        Network::Z => z::reduce(ctx, b),
+        Network::RL | Network::RLC => Err(vec![Diagnostic::new(
+            ctx.network_span(b),
+            format!("network {} is not reduced yet", b.network.name()),
+        )]),
+    }
+}

@@ -1,0 +1,587 @@
+//! The data the template receives: one JSON document (`/data.json`) plus generated files
+//! (prose markup, plot SVGs, images, the notebook source). Numbers are formatted here once
+//! (digits per GUM 7.2.6) so every template prints the same values; layout is the
+//! template's business.
+
+use std::collections::BTreeMap;
+
+use serde_json::{json, Value};
+
+use crate::judge::{Outcome, Record, SignState};
+use crate::networks::{BlockResult, NamedResult};
+use crate::notebook::{Accuracy, Column, Decision, Item, Part, PartKind, ReadingsBlock, Tolerance};
+use crate::quantity::{Quantity, Unit};
+use crate::render::format::{self, dof_text, k_text, sci, sig};
+use crate::render::markup::{self, Context};
+use crate::render::plots;
+use crate::render::Assets;
+use crate::uncertainty::{Dist, EvalType};
+
+/// Everything generated for one render.
+pub struct Generated {
+    /// `/data.json` and other byte files, by virtual path.
+    pub files: BTreeMap<String, Vec<u8>>,
+    /// Typst sources (prose markup), by virtual path.
+    pub sources: BTreeMap<String, String>,
+    /// Virtual path of the notebook source (the attachment).
+    pub attachment: String,
+}
+
+/// Print a fraction as a percentage without trailing zeros: 0.005 → "0.5 %".
+fn percent(f: f64) -> String {
+    format!("{} %", trim(f * 100.0))
+}
+
+fn trim(x: f64) -> String {
+    if !x.is_finite() {
+        return "—".into();
+    }
+    let s = format!("{:.6}", x);
+    let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+    if s == "-0" { "0".into() } else { s.replace('-', "\u{2212}") }
+}
+
+fn q(qty: &Quantity) -> String {
+    if qty.unit == Unit::Percent {
+        return percent(qty.value);
+    }
+    format::quantity(qty.value, qty.unit)
+}
+
+/// Symbol of a result or column as (base, subscript, italic base), ISO 80000-1 style:
+/// the quantity symbol italic, a descriptive subscript upright.
+pub fn symbol_parts(name: &str) -> (String, String, bool) {
+    let s = |b: &str, sub: &str| (b.to_string(), sub.to_string(), true);
+    match name {
+        "f" => s("f", ""),
+        "Vs" => s("V", "s"),
+        "VR" => s("V", "R"),
+        "VC" => s("V", "C"),
+        "VL" => s("V", "L"),
+        "V" => s("V", ""),
+        "I" => s("I", ""),
+        "phi" => s("φ", ""),
+        "XC" => s("X", "C"),
+        "XL" => s("X", "L"),
+        "XL_dcr" => s("X", "L,dcr"),
+        "L_dcr" => s("L", "dcr"),
+        "Rac" => s("R", "ac"),
+        "Rtotal" => s("R", "tot"),
+        "Z" => s("|Z|", ""),
+        "BW" => s("B", ""),
+        "f0" => s("f", "0"),
+        "f0_peak" => s("f", "0,peak"),
+        "f_low" => s("f", "1"),
+        "f_high" => s("f", "2"),
+        "phase" => s("φ", "pred"),
+        "phase_measured" => s("φ", "meas"),
+        "residual" => s("ΔV", "s"),
+        "shift" | "period" => (name.to_string(), String::new(), false),
+        other => match other.split_once('_') {
+            Some((b, sub)) => s(b, sub),
+            None if other.chars().count() <= 2 => {
+                let mut cs = other.chars();
+                let b: String = cs.next().map(String::from).unwrap_or_default();
+                s(&b, cs.as_str())
+            }
+            None => (other.to_string(), String::new(), false),
+        },
+    }
+}
+
+fn symbol_json(name: &str) -> Value {
+    let (base, sub, italic) = symbol_parts(name);
+    json!({ "base": base, "sub": sub, "italic": italic })
+}
+
+/// The unit of a column heading as written (`VR/mV` → `mV`), in print form.
+fn heading_unit(col: &Column) -> String {
+    let h = col.heading.trim();
+    let written = if let Some((_, u)) = h.split_once('/') {
+        Some(u.trim().to_string())
+    } else if let (Some(a), Some(b)) = (h.find('('), h.rfind(')')) {
+        h.get(a + 1..b).map(|u| u.trim().to_string())
+    } else {
+        None
+    };
+    match written {
+        Some(u) if !u.is_empty() => print_unit(&u),
+        _ => format::unit_text(col.unit).to_string(),
+    }
+}
+
+fn print_unit(u: &str) -> String {
+    let u = u.replace("ohm", "Ω").replace("deg", "°");
+    match u.strip_prefix('u') {
+        Some(rest) if !rest.is_empty() => format!("µ{rest}"),
+        _ => u,
+    }
+}
+
+fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::NaiveDate) -> Value {
+    let accuracy = match &i.accuracy {
+        Some(Accuracy::Relative { fraction, counts }) if *counts > 0.0 => {
+            Some(format!("±({} of reading + {} counts)", percent(*fraction), trim(*counts)))
+        }
+        Some(Accuracy::Relative { fraction, .. }) => Some(format!("±{} of reading", percent(*fraction))),
+        Some(Accuracy::Absolute(a)) => Some(format!("±{}", q(a))),
+        None => None,
+    };
+    let overdue = i.due.is_some_and(|d| d < date);
+    json!({
+        "name": name,
+        "what": i.what,
+        "accuracy": accuracy,
+        "distribution": match i.distribution {
+            crate::notebook::Distribution::Rectangular => "rectangular".to_string(),
+            crate::notebook::Distribution::Normal { k } => format!("normal, k = {}", k_text(k)),
+        },
+        "resolution": i.resolution.as_ref().map(q),
+        "bandwidth": i.bandwidth.map(|b| format::quantity(b, Unit::Hz)),
+        "reading": i.reading.as_ref().map(q),
+        "calibrated": i.calibrated.map(|d| d.to_string()),
+        "due": i.due.map(|d| d.to_string()),
+        "overdue": overdue,
+    })
+}
+
+fn part_unit(kind: PartKind) -> Unit {
+    match kind {
+        PartKind::Resistor => Unit::Ohm,
+        PartKind::Capacitor => Unit::F,
+        PartKind::Inductor => Unit::H,
+    }
+}
+
+fn tolerance_text(t: &Tolerance, unit: Unit) -> String {
+    match t {
+        Tolerance::Relative(f) => format!("±{}", percent(*f)),
+        Tolerance::Absolute(a) => format!("±{}", format::quantity(*a, unit)),
+        Tolerance::Code(c, f) => format!("{c} (±{})", percent(*f)),
+    }
+}
+
+fn part_json(name: &str, p: &Part) -> Value {
+    let unit = part_unit(p.kind);
+    json!({
+        "name": name,
+        "kind": match p.kind {
+            PartKind::Resistor => "resistor",
+            PartKind::Capacitor => "capacitor",
+            PartKind::Inductor => "inductor",
+        },
+        "nominal": p.nominal.as_ref().map(q),
+        "tolerance": p.tolerance.as_ref().map(|t| tolerance_text(t, unit)),
+        "measured": p.measured.as_ref().map(q),
+        "measured_by": p.measured_by,
+        "dcr": p.dcr.as_ref().map(q),
+        "dcr_by": p.dcr_by,
+        "rating": p.rating.as_ref().map(q),
+    })
+}
+
+fn dist_text(d: Dist) -> &'static str {
+    match d {
+        Dist::Normal => "normal",
+        Dist::Rectangular => "rectangular",
+        Dist::StudentT => "t",
+    }
+}
+
+/// A block result with its budget.
+fn result_json(r: &NamedResult) -> Value {
+    let m = &r.m;
+    let (div, unit) = format::scale_for(r.unit, m.value);
+    let with_unit = |x: String| if unit.is_empty() { x } else if unit == "°" { format!("{x}°") } else { format!("{x} {unit}") };
+    let (v, e) = format::value_and_u(m.value / div, m.expanded / div);
+    let lines: Vec<Value> = m
+        .budget
+        .iter()
+        .map(|b| {
+            json!({
+                "input": b.input,
+                "estimate": sci(b.estimate, 5),
+                "u": sci(b.u, 2),
+                "type": match b.kind { EvalType::A => "A", EvalType::B => "B" },
+                "distribution": dist_text(b.dist),
+                "sensitivity": sci(b.sensitivity, 3),
+                "contribution": with_unit(sig(b.contribution / div, 2)),
+                "dof": dof_text(b.dof),
+            })
+        })
+        .collect();
+    let mc = m.mc.as_ref().map(|mc| {
+        let (lo, hi) = (mc.low / div, mc.high / div);
+        json!({
+            "trials": mc.trials,
+            "mean": with_unit(sig(mc.mean / div, 5)),
+            "u": with_unit(sig(mc.u / div, 2)),
+            "interval": with_unit(format!("[{}, {}]", sig(lo, 5), sig(hi, 5))),
+            "validated": mc.gum_validated,
+        })
+    });
+    json!({
+        "name": r.name,
+        "symbol": symbol_json(&r.name),
+        "unit": unit,
+        "value": v,
+        "U": e,
+        "k": k_text(m.k),
+        "text": format::value_u_k(m.value, m.expanded, m.k, r.unit),
+        "u": with_unit(sig(m.u / div, 2)),
+        "dof": dof_text(m.dof),
+        "budget": lines,
+        "mc": mc,
+    })
+}
+
+/// The per-frequency results: long form and a grid (one column per result name).
+fn frequency_json(block: &BlockResult) -> (Value, Value) {
+    let long: Vec<Value> = block
+        .rows
+        .iter()
+        .map(|r| {
+            json!({
+                "name": r.name,
+                "f": r.f.map(|f| format::quantity(f, Unit::Hz)),
+                "text": format::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit),
+                "k": k_text(r.m.k),
+            })
+        })
+        .collect();
+    let mut names: Vec<&str> = Vec::new();
+    let mut freqs: Vec<f64> = Vec::new();
+    for r in &block.rows {
+        if !names.contains(&r.name.as_str()) {
+            names.push(&r.name);
+        }
+        if let Some(f) = r.f {
+            if !freqs.iter().any(|g| same_f(*g, f)) {
+                freqs.push(f);
+            }
+        }
+    }
+    let fmax = freqs.iter().copied().fold(0.0, f64::max);
+    let (fdiv, fprefix) = format::prefix_for(fmax);
+    let mut columns = Vec::new();
+    let mut scales = Vec::new();
+    for name in &names {
+        let of: Vec<&NamedResult> = block.rows.iter().filter(|r| r.name == *name).collect();
+        let unit = of.first().map(|r| r.unit).unwrap_or(Unit::One);
+        let mut mags: Vec<f64> = of.iter().map(|r| r.m.value.abs()).filter(|v| v.is_finite()).collect();
+        mags.sort_by(f64::total_cmp);
+        let median = mags.get(mags.len() / 2).copied().unwrap_or(0.0);
+        let (div, utext) = format::scale_for(unit, median);
+        let ks: Vec<String> = of.iter().map(|r| k_text(r.m.k)).collect();
+        let common_k = ks.first().filter(|k0| ks.iter().all(|k| k == *k0)).cloned();
+        columns.push(json!({ "name": name, "symbol": symbol_json(name), "unit": utext, "k": common_k }));
+        scales.push((div, common_k.is_none()));
+    }
+    let rows: Vec<Value> = freqs
+        .iter()
+        .map(|&f| {
+            let cells: Vec<String> = names
+                .iter()
+                .zip(&scales)
+                .map(|(name, (div, show_k))| {
+                    match block.rows.iter().find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f))) {
+                        Some(r) => {
+                            let (v, e) = format::value_and_u(r.m.value / div, r.m.expanded / div);
+                            if *show_k {
+                                format!("{v} ± {e} (k = {})", k_text(r.m.k))
+                            } else {
+                                format!("{v} ± {e}")
+                            }
+                        }
+                        None => "—".into(),
+                    }
+                })
+                .collect();
+            json!({ "f": sig(f / fdiv, 4), "cells": cells })
+        })
+        .collect();
+    let grid = json!({ "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows });
+    (Value::Array(long), grid)
+}
+
+fn same_f(a: f64, b: f64) -> bool {
+    (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1e-300)
+}
+
+/// The tolerance band to draw for a block: from its verdict, else from the part.
+fn band_for(record: &Record, rb: &ReadingsBlock, block: &BlockResult) -> Option<(&'static str, f64, f64)> {
+    let want: &'static str = match block.network {
+        crate::notebook::Network::RC => "C",
+        crate::notebook::Network::RL => "L",
+        _ => return None,
+    };
+    if let Some(v) = record.verdicts.iter().find(|v| v.block == block.id && v.name == want) {
+        return Some((want, v.low, v.high));
+    }
+    let kind = if want == "C" { PartKind::Capacitor } else { PartKind::Inductor };
+    rb.parts.iter().filter_map(|n| record.notebook.front.parts.get(&n.name)).find(|p| p.kind == kind).and_then(|p| {
+        let nominal = p.nominal.as_ref()?.value;
+        let (lo, hi) = crate::judge::tolerance_interval(nominal, p.tolerance.as_ref()?);
+        Some((want, lo, hi))
+    })
+}
+
+fn outcome_word(o: Outcome) -> &'static str {
+    match o {
+        Outcome::Pass => "pass",
+        Outcome::Fail => "fail",
+        Outcome::Inconclusive => "inconclusive",
+    }
+}
+
+/// A file name safe as a PDF attachment name and a virtual path.
+fn attachment_name(source_name: &str) -> String {
+    let base = source_name.rsplit(['/', '\\']).next().unwrap_or("");
+    let clean: String =
+        base.chars().map(|c| if c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_') { c } else { '_' }).collect();
+    let clean = clean.trim_start_matches('.').to_string();
+    if clean.is_empty() || clean == "main.typ" || clean == "data.json" {
+        "notebook.md".into()
+    } else {
+        clean
+    }
+}
+
+fn image_ext(path: &str, bytes: &[u8]) -> &'static str {
+    if bytes.starts_with(b"\x89PNG") {
+        "png"
+    } else if bytes.starts_with(&[0xFF, 0xD8]) {
+        "jpg"
+    } else if bytes.starts_with(b"GIF8") {
+        "gif"
+    } else if bytes.len() > 12 && bytes.get(0..4) == Some(b"RIFF") && bytes.get(8..12) == Some(b"WEBP") {
+        "webp"
+    } else if path.to_ascii_lowercase().ends_with(".svg") {
+        "svg"
+    } else {
+        "bin"
+    }
+}
+
+/// Build the template's data and every generated file.
+pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
+    let nb = &record.notebook;
+    let fm = &nb.front;
+    let mut files: BTreeMap<String, Vec<u8>> = BTreeMap::new();
+    let mut sources: BTreeMap<String, String> = BTreeMap::new();
+
+    // Images under generated names.
+    let mut image_paths: BTreeMap<String, String> = BTreeMap::new();
+    for (i, (path, bytes)) in assets.images.iter().enumerate() {
+        let vpath = format!("/images/{i}.{}", image_ext(path, bytes));
+        files.insert(vpath.clone(), bytes.clone());
+        image_paths.insert(path.clone(), vpath);
+    }
+    let image = |p: &str| image_paths.get(p).cloned();
+    let cite = |code: &str| {
+        let key = code.strip_prefix('=')?.trim();
+        crate::judge::resolve_citation(&record.reduction, key).ok().map(crate::judge::cite_text)
+    };
+    let ctx = Context { image: &image, cite: &cite };
+
+    let mut items = Vec::new();
+    let mut prose_n = 0usize;
+    for item in &nb.items {
+        match item {
+            Item::Prose { text, .. } => {
+                let path = format!("/prose/{prose_n}.typ");
+                prose_n += 1;
+                sources.insert(path.clone(), markup::markdown_to_typst(text, &ctx));
+                items.push(json!({ "kind": "prose", "file": path }));
+            }
+            Item::Readings(rb) => {
+                let index = items.len();
+                items.push(readings_json(record, rb, index, &mut files)?);
+            }
+        }
+    }
+
+    let verdicts: Vec<Value> = record
+        .verdicts
+        .iter()
+        .map(|v| {
+            json!({
+                "block": v.block,
+                "name": v.name,
+                "symbol": symbol_json(&v.name),
+                "part": v.part,
+                "nominal": format::quantity(v.nominal, v.unit),
+                "interval": format::interval(v.low, v.high, v.unit),
+                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "outcome": outcome_word(v.outcome),
+            })
+        })
+        .collect();
+    let safety: Vec<Value> = record
+        .safety
+        .iter()
+        .map(|s| {
+            json!({
+                "block": s.block,
+                "part": s.part,
+                "what": s.what,
+                "value": format::quantity(s.value, s.unit),
+                "rating": format::quantity(s.rating, s.unit),
+                "limit": format::quantity(s.limit, s.unit),
+                "ok": s.ok,
+            })
+        })
+        .collect();
+    let sign = match &record.sign {
+        SignState::Unsigned => json!({ "state": "unsigned", "reason": "not signed" }),
+        SignState::Valid { by, on, digest } => json!({ "state": "valid", "by": by, "on": on, "digest": digest }),
+        SignState::Void { by, on, recorded } => json!({
+            "state": "void", "by": by, "on": on, "recorded": recorded,
+            "reason": format!("signed by {by} on {on}, but the readings changed after signing"),
+        }),
+    };
+    let attachment = format!("/{}", attachment_name(&assets.source_name));
+    let bytes = if assets.source.is_empty() { nb.source.as_bytes().to_vec() } else { assets.source.clone() };
+    files.insert(attachment.clone(), bytes);
+
+    let date = fm.date;
+    use chrono::Datelike;
+    let data = json!({
+        "record": fm.record,
+        "title": fm.title,
+        "date": date.to_string(),
+        "date_parts": { "year": date.year(), "month": date.month(), "day": date.day() },
+        "operator": fm.operator,
+        "lab": fm.lab,
+        "project": fm.project,
+        "lot": fm.lot,
+        "environment": fm.environment,
+        "coverage": percent(fm.coverage),
+        "decision": match fm.decision { Decision::Simple => "simple", Decision::Guarded => "guarded" },
+        "decision_text": match fm.decision {
+            Decision::Simple => "simple acceptance: a value inside the tolerance interval passes, one outside fails (ILAC-G8, no guard band)",
+            Decision::Guarded => "guarded acceptance: pass only when value ± U lies inside the tolerance interval, fail only when it lies wholly outside, otherwise inconclusive (ILAC-G8, guard band U)",
+        },
+        "instruments": fm.instruments.iter().map(|(n, i)| instrument_json(n, i, date)).collect::<Vec<_>>(),
+        "parts": fm.parts.iter().map(|(n, p)| part_json(n, p)).collect::<Vec<_>>(),
+        "items": items,
+        "verdicts": verdicts,
+        "safety": safety,
+        "sign": sign,
+        "digest": record.digest,
+        "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
+        "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
+    });
+    let text = serde_json::to_vec_pretty(&data).map_err(|e| format!("template data: {e}"))?;
+    files.insert("/data.json".into(), text);
+    Ok(Generated { files, sources, attachment })
+}
+
+fn readings_json(
+    record: &Record,
+    rb: &ReadingsBlock,
+    index: usize,
+    files: &mut BTreeMap<String, Vec<u8>>,
+) -> Result<Value, String> {
+    let columns: Vec<Value> = rb
+        .columns
+        .iter()
+        .map(|c| {
+            let (base, sub, italic) = symbol_parts(&c.symbol);
+            json!({ "base": base, "sub": sub, "italic": italic, "unit": heading_unit(c), "heading": c.heading })
+        })
+        .collect();
+    let rows: Vec<Vec<String>> = rb
+        .rows
+        .iter()
+        .map(|r| {
+            let mut cells: Vec<String> = r.cells.iter().map(|c| c.text.clone()).collect();
+            cells.resize(rb.columns.len().max(cells.len()), String::new());
+            cells
+        })
+        .collect();
+    let block = record.reduction.blocks.iter().find(|b| b.id == rb.id);
+    let mut out = json!({
+        "kind": "readings",
+        "id": rb.id,
+        "network": rb.network.name(),
+        "note": rb.note,
+        "parts": rb.parts.iter().map(|p| p.name.clone()).collect::<Vec<_>>(),
+        "meter": rb.meter.as_ref().map(|m| m.name.clone()),
+        "phase": rb.phase.as_ref().map(|m| m.name.clone()),
+        "counter": rb.counter.as_ref().map(|m| m.name.clone()),
+        "source": rb.source.map(|v| format::quantity(v, Unit::V)),
+        "table": { "columns": columns, "rows": rows },
+        "reduced": block.is_some(),
+    });
+    let Some(block) = block else { return Ok(out) };
+    let (long, grid) = frequency_json(block);
+    let mut plots_json = Vec::new();
+    for (n, p) in plots::block_plots(block, band_for(record, rb, block))?.into_iter().enumerate() {
+        let path = format!("/plots/{index}-{n}.svg");
+        files.insert(path.clone(), p.svg.into_bytes());
+        plots_json.push(json!({ "file": path, "caption": p.caption }));
+    }
+    let verdicts: Vec<Value> = record
+        .verdicts
+        .iter()
+        .filter(|v| v.block == block.id)
+        .map(|v| {
+            json!({
+                "name": v.name, "symbol": symbol_json(&v.name), "part": v.part,
+                "interval": format::interval(v.low, v.high, v.unit),
+                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "outcome": outcome_word(v.outcome),
+            })
+        })
+        .collect();
+    if let Value::Object(map) = &mut out {
+        map.insert("frequency_results".into(), long);
+        map.insert("frequency_grid".into(), grid);
+        map.insert("results".into(), Value::Array(block.results.iter().map(result_json).collect()));
+        map.insert(
+            "correlations".into(),
+            Value::Array(
+                block
+                    .correlations
+                    .iter()
+                    .map(|c| json!({ "a": symbol_json(&c.a), "b": symbol_json(&c.b), "r": format::fixed(c.r, 3) }))
+                    .collect(),
+            ),
+        );
+        map.insert("flags".into(), Value::Array(block.flags.iter().map(|f| Value::from(f.message.clone())).collect()));
+        map.insert("verdicts".into(), Value::Array(verdicts));
+        map.insert("plots".into(), Value::Array(plots_json));
+    }
+    Ok(out)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn symbols_follow_iso_80000_1() {
+        assert_eq!(symbol_parts("VR"), ("V".into(), "R".into(), true));
+        assert_eq!(symbol_parts("XL_dcr"), ("X".into(), "L,dcr".into(), true));
+        assert_eq!(symbol_parts("f0"), ("f".into(), "0".into(), true));
+        assert_eq!(symbol_parts("period"), ("period".into(), "".into(), false));
+    }
+
+    #[test]
+    fn attachment_names_are_safe() {
+        assert_eq!(attachment_name("../x/tank sweep.md"), "tank_sweep.md");
+        assert_eq!(attachment_name(""), "notebook.md");
+        assert_eq!(attachment_name("data.json"), "notebook.md");
+        assert_eq!(attachment_name("..."), "notebook.md");
+    }
+
+    #[test]
+    fn units_as_written() {
+        assert_eq!(print_unit("uF"), "µF");
+        assert_eq!(print_unit("kohm"), "kΩ");
+        assert_eq!(print_unit("deg"), "°");
+        assert_eq!(percent(0.005), "0.5 %");
+        assert_eq!(percent(0.9545), "95.45 %");
+    }
+}

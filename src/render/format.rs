@@ -1,0 +1,278 @@
+//! Number formatting for the printed record: SI prefixes, value ± U with the digits of
+//! GUM (JCGM 100:2008) 7.2.6, and the typographic forms of units and symbols.
+
+use crate::quantity::Unit;
+
+const MINUS: char = '\u{2212}';
+
+/// Printed unit symbol (angles print in degrees, see [`display_scale`]).
+pub fn unit_text(unit: Unit) -> &'static str {
+    match unit {
+        Unit::V => "V",
+        Unit::A => "A",
+        Unit::Ohm => "Ω",
+        Unit::F => "F",
+        Unit::H => "H",
+        Unit::Hz => "Hz",
+        Unit::S => "s",
+        Unit::W => "W",
+        Unit::Rad => "°",
+        Unit::Div => "div",
+        Unit::Percent => "%",
+        Unit::One => "",
+    }
+}
+
+/// Factor from the SI value to the printed one (rad → degree, fraction → percent).
+pub fn display_scale(unit: Unit) -> f64 {
+    match unit {
+        Unit::Rad => 180.0 / std::f64::consts::PI,
+        Unit::Percent => 100.0,
+        _ => 1.0,
+    }
+}
+
+/// Whether a unit takes SI prefixes in print.
+fn takes_prefix(unit: Unit) -> bool {
+    !matches!(unit, Unit::Rad | Unit::Percent | Unit::One | Unit::Div)
+}
+
+const PREFIXES: [(i32, &str); 9] = [
+    (-12, "p"),
+    (-9, "n"),
+    (-6, "µ"),
+    (-3, "m"),
+    (0, ""),
+    (3, "k"),
+    (6, "M"),
+    (9, "G"),
+    (12, "T"),
+];
+
+/// Engineering prefix for a magnitude: returns (divisor, prefix).
+pub fn prefix_for(magnitude: f64) -> (f64, &'static str) {
+    let m = magnitude.abs();
+    if !m.is_finite() || m == 0.0 {
+        return (1.0, "");
+    }
+    // Round first so 999.96 does not print as "1000.0 m".
+    let e = (m.log10() + 1e-9).floor() as i32;
+    let e3 = e.div_euclid(3) * 3;
+    let e3 = e3.clamp(-12, 12);
+    let p = PREFIXES.iter().find(|(x, _)| *x == e3).map(|(_, p)| *p).unwrap_or("");
+    (10f64.powi(e3), p)
+}
+
+/// The printing scale of a unit for values around `magnitude` (SI): (divisor, unit text).
+/// The divisor maps the SI value to the printed number.
+pub fn scale_for(unit: Unit, magnitude: f64) -> (f64, String) {
+    let ds = display_scale(unit);
+    if takes_prefix(unit) {
+        let (div, p) = prefix_for(magnitude);
+        (div, format!("{p}{}", unit_text(unit)))
+    } else {
+        (1.0 / ds, unit_text(unit).to_string())
+    }
+}
+
+/// Replace '-' by the typographic minus.
+fn minus(s: String) -> String {
+    if s.starts_with('-') {
+        let mut out = String::with_capacity(s.len() + 2);
+        out.push(MINUS);
+        out.push_str(&s[1..]);
+        out
+    } else {
+        s
+    }
+}
+
+/// Fixed decimals, typographic minus, "−0" shown as "0".
+pub fn fixed(x: f64, decimals: usize) -> String {
+    if !x.is_finite() {
+        return "—".into();
+    }
+    let s = format!("{x:.decimals$}");
+    let neg_zero = s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.');
+    if neg_zero {
+        return s[1..].to_string();
+    }
+    minus(s)
+}
+
+/// `sig` significant digits, no exponent (for numbers already scaled by a prefix).
+pub fn sig(x: f64, sig: usize) -> String {
+    if !x.is_finite() {
+        return "—".into();
+    }
+    if x == 0.0 {
+        return "0".into();
+    }
+    let e = x.abs().log10().floor() as i32;
+    let dec = (sig as i32 - 1 - e).max(0) as usize;
+    fixed(x, dec)
+}
+
+/// Decimals that give U two significant digits (GUM 7.2.6), at most 9.
+fn decimals_for_u(u: f64) -> Option<usize> {
+    if !u.is_finite() || u <= 0.0 {
+        return None;
+    }
+    let e = u.log10().floor() as i32;
+    Some((1 - e).clamp(0, 9) as usize)
+}
+
+/// Value and U (both already divided by the printing scale) with U to two significant
+/// digits and the value rounded to the same decimal place (GUM 7.2.6).
+pub fn value_and_u(value: f64, u_exp: f64) -> (String, String) {
+    match decimals_for_u(u_exp) {
+        Some(d) => (fixed(value, d), fixed(u_exp, d)),
+        None => (sig(value, 5), fixed(u_exp.max(0.0), 0)),
+    }
+}
+
+/// Scientific form for a budget cell: `4.700 × 10⁻⁷`; plain between 10⁻³ and 10⁵.
+pub fn sci(x: f64, digits: usize) -> String {
+    if !x.is_finite() {
+        return "—".into();
+    }
+    if x == 0.0 {
+        return "0".into();
+    }
+    let a = x.abs();
+    if (1e-3..1e5).contains(&a) {
+        return sig(x, digits);
+    }
+    let mut e = a.log10().floor() as i32;
+    let mut m = x / 10f64.powi(e);
+    // Rounding the mantissa may carry to 10.
+    let dec = digits.saturating_sub(1);
+    let rounded: f64 = format!("{m:.dec$}").parse().unwrap_or(m);
+    if rounded.abs() >= 10.0 {
+        e += 1;
+        m = x / 10f64.powi(e);
+    }
+    format!("{} × 10{}", fixed(m, dec), superscript(e))
+}
+
+fn superscript(e: i32) -> String {
+    let mut s = String::new();
+    if e < 0 {
+        s.push('⁻');
+    }
+    for c in e.unsigned_abs().to_string().chars() {
+        s.push(match c {
+            '0' => '⁰',
+            '1' => '¹',
+            '2' => '²',
+            '3' => '³',
+            '4' => '⁴',
+            '5' => '⁵',
+            '6' => '⁶',
+            '7' => '⁷',
+            '8' => '⁸',
+            _ => '⁹',
+        });
+    }
+    s
+}
+
+/// Coverage factor as printed: three significant digits (2.00, 2.28, 12.7).
+pub fn k_text(k: f64) -> String {
+    if !k.is_finite() {
+        return "—".into();
+    }
+    sig(k, 3)
+}
+
+/// Degrees of freedom: "∞" for None, else a whole number (GUM G.6.4 truncates ν_eff).
+pub fn dof_text(dof: Option<f64>) -> String {
+    match dof {
+        None => "∞".into(),
+        Some(v) if !v.is_finite() => "∞".into(),
+        Some(v) => format!("{}", v.max(0.0).floor() as i64),
+    }
+}
+
+/// A single quantity with a prefix: `470.0 nF` (4 significant digits).
+pub fn quantity(value: f64, unit: Unit) -> String {
+    let (div, u) = scale_for(unit, value * display_scale(unit));
+    join_unit(sig(value / div, 4), &u)
+}
+
+fn join_unit(number: String, unit: &str) -> String {
+    if unit.is_empty() {
+        number
+    } else if unit == "°" || unit == "%" {
+        format!("{number}{unit}")
+    } else {
+        format!("{number} {unit}")
+    }
+}
+
+/// `(468.3 ± 2.1) nF (k = 2.00)`: a result as the record prints it.
+pub fn value_u_k(value: f64, expanded: f64, k: f64, unit: Unit) -> String {
+    let (div, u) = scale_for(unit, value);
+    let (v, e) = value_and_u(value / div, expanded / div);
+    let body = if u.is_empty() {
+        format!("{v} ± {e}")
+    } else if u == "°" || u == "%" {
+        format!("({v} ± {e}){u}")
+    } else {
+        format!("({v} ± {e}) {u}")
+    };
+    format!("{body} (k = {})", k_text(k))
+}
+
+/// An interval `[465.3, 474.7] nF` on a common prefix.
+pub fn interval(low: f64, high: f64, unit: Unit) -> String {
+    let (div, u) = scale_for(unit, low.abs().max(high.abs()));
+    let w = ((high - low) / div).abs();
+    // Enough decimals to tell the ends apart (four significant digits of the width's scale).
+    let d = decimals_for_u(w / 10.0).unwrap_or(3);
+    join_unit(format!("[{}, {}]", fixed(low / div, d), fixed(high / div, d)), &u)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // GUM JCGM 100:2008 7.2.6: U to at most two significant digits, the value rounded to
+    // the same place. GUM 7.2.4 example (from memory): m_S = (100.021 47 ± 0.000 79) g.
+    #[test]
+    fn gum_726_rounding() {
+        assert_eq!(value_and_u(100.02147, 0.00079), ("100.02147".into(), "0.00079".into()));
+        // Rounding: 0.0347 → 0.035 and the value to three decimals.
+        assert_eq!(value_and_u(4.71234, 0.0347), ("4.712".into(), "0.035".into()));
+        assert_eq!(value_and_u(468.26, 2.14), ("468.3".into(), "2.1".into()));
+        assert_eq!(value_and_u(12345.0, 230.0), ("12345".into(), "230".into()));
+    }
+
+    #[test]
+    fn prefixes_are_engineering() {
+        assert_eq!(prefix_for(4.7e-7), (1e-6, "µ"));
+        assert_eq!(prefix_for(3.3e-9).1, "n");
+        assert_eq!(prefix_for(1500.0).1, "k");
+        assert_eq!(prefix_for(1.0).1, "");
+        assert_eq!(prefix_for(0.0).1, "");
+        assert_eq!(
+            value_u_k(4.6826e-7, 2.14e-9, 2.0, Unit::F),
+            "(468.3 ± 2.1) nF (k = 2.00)"
+        );
+        // Phases print in degrees: 0.5 rad = 28.6479°.
+        assert_eq!(value_u_k(0.5, 0.01, 2.0, Unit::Rad), "(28.65 ± 0.57)° (k = 2.00)");
+    }
+
+    #[test]
+    fn scientific_and_signs() {
+        assert_eq!(sci(4.7e-7, 4), "4.700 × 10⁻⁷");
+        assert_eq!(sci(9.9996e-7, 4), "1.000 × 10⁻⁶");
+        assert_eq!(sci(-2.5e6, 3), "−2.50 × 10⁶");
+        assert_eq!(sci(12.345, 4), "12.35");
+        assert_eq!(fixed(-0.0001, 2), "0.00");
+        assert_eq!(fixed(f64::NAN, 2), "—");
+        assert_eq!(dof_text(None), "∞");
+        assert_eq!(dof_text(Some(12.7)), "12");
+        assert_eq!(interval(4.653e-7, 4.747e-7, Unit::F), "[465.3, 474.7] nF");
+    }
+}

@@ -1,0 +1,540 @@
+//! Plots of a block as SVG (plotters' SVG backend). The SVG's text is set by typst with the
+//! world's fonts, so the family named here is one typst embeds. Series differ by marker
+//! shape and dash, not by colour, so a black-and-white print still reads.
+
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use plotters::style::text_anchor::{HPos, Pos, VPos};
+
+use crate::networks::{BlockResult, PlotData};
+use crate::notebook::Network;
+use crate::quantity::Unit;
+use crate::render::format;
+
+/// The font typst sets plot text in (embedded by typst-kit).
+pub const PLOT_FONT: &str = "Libertinus Serif";
+
+const W: u32 = 720;
+const H_MAIN: u32 = 300;
+const H_LOWER: u32 = 190;
+
+/// One generated figure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plot {
+    pub caption: String,
+    pub svg: String,
+}
+
+/// How a series' y is printed.
+struct YKind {
+    symbol: &'static str,
+    unit: &'static str,
+    /// Multiplier from SI to the printed base unit (degrees for phases).
+    factor: f64,
+    prefix: bool,
+}
+
+fn ykind(name: &str) -> YKind {
+    let k = |symbol, unit, factor, prefix| YKind { symbol, unit, factor, prefix };
+    match name {
+        "XC" => k("X_C", "Ω", 1.0, true),
+        "XL" => k("X_L", "Ω", 1.0, true),
+        "XL_dcr" => k("X_L,dcr", "Ω", 1.0, true),
+        "C" => k("C", "F", 1.0, true),
+        "L" => k("L", "H", 1.0, true),
+        "L_dcr" => k("L_dcr", "H", 1.0, true),
+        "Rac" => k("R_ac", "Ω", 1.0, true),
+        "R" | "Rtotal" => k("R", "Ω", 1.0, true),
+        "X" => k("X", "Ω", 1.0, true),
+        "Z" => k("|Z|", "Ω", 1.0, true),
+        "Y" => k("|Y|", "S", 1.0, true),
+        "I" => k("I", "A", 1.0, true),
+        "Q" => k("Q", "1", 1.0, false),
+        n if n.starts_with("phase") || n == "phi" => k("φ", "°", 180.0 / std::f64::consts::PI, false),
+        "residual" => k("Δ", "V", 1.0, true),
+        _ => k("y", "1", 1.0, false),
+    }
+}
+
+fn legend_name(name: &str) -> String {
+    match name {
+        "phase" => "φ from magnitudes".into(),
+        "phase_measured" => "φ measured".into(),
+        "L_dcr" => "L (DC-resistance method)".into(),
+        "L" => "L (three-voltmeter method)".into(),
+        "XL_dcr" => "X_L (DC-resistance method)".into(),
+        "Y" => "|Y| measured".into(),
+        other => other.to_string(),
+    }
+}
+
+/// A panel to draw: series with error bars, curves, markers, an optional band.
+struct Panel<'a> {
+    series: Vec<&'a (String, Vec<(f64, f64, f64)>)>,
+    curves: Vec<&'a (String, Vec<(f64, f64)>)>,
+    markers: Vec<&'a (String, f64)>,
+    band: Option<(f64, f64, String)>,
+    /// Computed residual points (x, y) when the panel is a residual panel.
+    residuals: Vec<(f64, f64)>,
+    residual_name: String,
+    y: YKind,
+}
+
+fn find<'a>(p: &'a PlotData, name: &str) -> Option<&'a (String, Vec<(f64, f64, f64)>)> {
+    p.series.iter().find(|(n, pts)| n == name && !pts.is_empty())
+}
+
+/// Linear interpolation of a curve at x (curve sorted by x or not; nearest segment).
+fn interp(curve: &[(f64, f64)], x: f64) -> Option<f64> {
+    let mut pts: Vec<(f64, f64)> = curve.iter().copied().filter(|(a, b)| a.is_finite() && b.is_finite()).collect();
+    pts.sort_by(|a, b| a.0.total_cmp(&b.0));
+    for w in pts.windows(2) {
+        let (a, b) = (w[0], w[1]);
+        if x >= a.0 && x <= b.0 {
+            if b.0 == a.0 {
+                return Some(a.1);
+            }
+            return Some(a.1 + (b.1 - a.1) * (x - a.0) / (b.0 - a.0));
+        }
+    }
+    None
+}
+
+/// The figures for a block. `band` is the tolerance interval (SI) of the quantity named,
+/// e.g. ("C", low, high).
+pub fn block_plots(block: &BlockResult, band: Option<(&str, f64, f64)>) -> Result<Vec<Plot>, String> {
+    let p = &block.plot;
+    let mut panels: Vec<Panel> = Vec::new();
+    let empty = |y| Panel {
+        series: Vec::new(),
+        curves: Vec::new(),
+        markers: Vec::new(),
+        band: None,
+        residuals: Vec::new(),
+        residual_name: String::new(),
+        y,
+    };
+    match block.network {
+        Network::RC | Network::RL => {
+            let main: Vec<&str> = if block.network == Network::RC { vec!["C", "XC"] } else { vec!["L", "XL"] };
+            if let Some(first) = main.iter().find_map(|n| find(p, n)) {
+                let mut panel = empty(ykind(&first.0));
+                panel.series.push(first);
+                if first.0 == "L" {
+                    if let Some(s) = find(p, "L_dcr") {
+                        panel.series.push(s);
+                    }
+                }
+                if let Some((q, lo, hi)) = band {
+                    if q == first.0 {
+                        panel.band = Some((lo, hi, format!("tolerance of {q}")));
+                    }
+                }
+                panels.push(panel);
+            }
+            let phases: Vec<_> = ["phase", "phase_measured"].iter().filter_map(|n| find(p, n)).collect();
+            if !phases.is_empty() {
+                let mut panel = empty(ykind("phase"));
+                panel.series = phases;
+                panels.push(panel);
+            }
+        }
+        Network::RLC => {
+            let first = find(p, "Y").or_else(|| p.series.iter().find(|(_, v)| !v.is_empty()));
+            if let Some(first) = first {
+                let mut panel = empty(ykind(&first.0));
+                panel.series.push(first);
+                panel.curves = p.curves.iter().filter(|(_, c)| !c.is_empty()).collect();
+                panel.markers = p.markers.iter().collect();
+                // Residuals: a series named "residual", else measured − fitted curve.
+                let mut lower = empty(ykind(&first.0));
+                lower.residual_name = format!("{} − fit", ykind(&first.0).symbol);
+                if let Some(r) = find(p, "residual") {
+                    lower.residuals = r.1.iter().map(|&(x, y, _)| (x, y)).collect();
+                } else if let Some((_, curve)) = panel.curves.first() {
+                    lower.residuals =
+                        first.1.iter().filter_map(|&(x, y, _)| interp(curve, x).map(|c| (x, y - c))).collect();
+                }
+                panels.push(panel);
+                if !lower.residuals.is_empty() {
+                    panels.push(lower);
+                }
+            }
+        }
+        Network::Z => {
+            for s in p.series.iter().filter(|(_, v)| v.len() > 1) {
+                let mut panel = empty(ykind(&s.0));
+                panel.series.push(s);
+                panels.push(panel);
+            }
+        }
+    }
+    if panels.is_empty() {
+        return Ok(Vec::new());
+    }
+    let caption = match block.network {
+        Network::RC | Network::RL => format!(
+            "Block {}: {} against frequency with expanded uncertainties (k as in the results), and phase.",
+            block.id,
+            panels.first().map(|p| p.y.symbol).unwrap_or("result")
+        ),
+        Network::RLC => format!(
+            "Block {}: admittance sweep with the fitted series model, resonance and half-power markers; residuals below.",
+            block.id
+        ),
+        Network::Z => format!("Block {}: results.", block.id),
+    };
+    let svg = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
+    Ok(vec![Plot { caption, svg }])
+}
+
+/// Range of finite values with padding; never empty.
+fn padded(vals: impl Iterator<Item = f64>, log: bool) -> (f64, f64) {
+    let mut lo = f64::INFINITY;
+    let mut hi = f64::NEG_INFINITY;
+    for v in vals.filter(|v| v.is_finite() && (!log || *v > 0.0)) {
+        lo = lo.min(v);
+        hi = hi.max(v);
+    }
+    if !lo.is_finite() || !hi.is_finite() {
+        return if log { (1.0, 10.0) } else { (0.0, 1.0) };
+    }
+    if log {
+        return (lo / 1.3, hi * 1.3);
+    }
+    let span = hi - lo;
+    let pad = if span > 0.0 { span * 0.08 } else { (lo.abs() * 0.05).max(1e-12) };
+    (lo - pad, hi + pad)
+}
+
+fn draw(panels: &[Panel]) -> Result<String, String> {
+    let heights: Vec<u32> = panels.iter().enumerate().map(|(i, _)| if i == 0 { H_MAIN } else { H_LOWER }).collect();
+    let total: u32 = heights.iter().sum();
+    // Common x range over every panel.
+    let xs = panels.iter().flat_map(|p| {
+        p.series
+            .iter()
+            .flat_map(|s| s.1.iter().map(|t| t.0))
+            .chain(p.residuals.iter().map(|t| t.0))
+            .chain(p.markers.iter().map(|m| m.1))
+            .collect::<Vec<_>>()
+    });
+    let xs: Vec<f64> = xs.filter(|x| x.is_finite() && *x > 0.0).collect();
+    let (xmin, xmax) = (xs.iter().copied().fold(f64::INFINITY, f64::min), xs.iter().copied().fold(0.0, f64::max));
+    let log = xmin.is_finite() && xmin > 0.0 && xmax / xmin > 10.0;
+    let (xdiv, xprefix) = format::prefix_for(xmax);
+    let (x0, x1) = padded(xs.iter().map(|x| x / xdiv), log);
+    let xdesc = format!("f / {xprefix}Hz");
+
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (W, total)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| e.to_string())?;
+        let mut rest = root.clone();
+        for (i, panel) in panels.iter().enumerate() {
+            let h = heights.get(i).copied().unwrap_or(H_LOWER);
+            let (area, below) = rest.split_vertically(h);
+            rest = below;
+            let last = i + 1 == panels.len();
+            if log {
+                draw_panel_log(&area, panel, (x0, x1), xdiv, &xdesc, last)?;
+            } else {
+                draw_panel_lin(&area, panel, (x0, x1), xdiv, &xdesc, last)?;
+            }
+        }
+        root.present().map_err(|e| e.to_string())?;
+    }
+    Ok(svg)
+}
+
+fn y_scale(panel: &Panel) -> (f64, String, String) {
+    let ys = panel
+        .series
+        .iter()
+        .flat_map(|s| s.1.iter().map(|t| t.1.abs() * panel.y.factor))
+        .chain(panel.residuals.iter().map(|t| t.1.abs() * panel.y.factor))
+        .fold(0.0, f64::max);
+    let (div, prefix) = if panel.y.prefix { format::prefix_for(ys) } else { (1.0, "") };
+    let unit = if panel.y.unit == "1" { "1".to_string() } else { format!("{prefix}{}", panel.y.unit) };
+    let sym = if panel.residuals.is_empty() { panel.y.symbol.to_string() } else { panel.residual_name.clone() };
+    (div / panel.y.factor, sym, unit)
+}
+
+macro_rules! panel_body {
+    ($area:expr, $panel:expr, $xr:expr, $xdiv:expr, $xdesc:expr, $last:expr, $xspec:expr) => {{
+        let panel: &Panel = $panel;
+        let (ydiv, ysym, yunit) = y_scale(panel);
+        let xdiv: f64 = $xdiv;
+        let sx = |x: f64| x / xdiv;
+        let sy = |y: f64| y / ydiv;
+        let mut yvals: Vec<f64> = Vec::new();
+        for s in &panel.series {
+            for &(_, y, u) in &s.1 {
+                yvals.push(sy(y - u.abs()));
+                yvals.push(sy(y + u.abs()));
+            }
+        }
+        for c in &panel.curves {
+            yvals.extend(c.1.iter().map(|t| sy(t.1)));
+        }
+        yvals.extend(panel.residuals.iter().map(|t| sy(t.1)));
+        if !panel.residuals.is_empty() {
+            yvals.push(0.0);
+        }
+        if let Some((lo, hi, _)) = &panel.band {
+            yvals.push(sy(*lo));
+            yvals.push(sy(*hi));
+        }
+        let (y0, y1) = padded(yvals.into_iter(), false);
+        let font = (PLOT_FONT, 17).into_font();
+        let mut chart = ChartBuilder::on($area)
+            .margin_left(10)
+            .margin_right(18)
+            .margin_top(10)
+            .margin_bottom(4)
+            .x_label_area_size(if $last { 46 } else { 26 })
+            .y_label_area_size(70)
+            .build_cartesian_2d($xspec, y0..y1)
+            .map_err(|e| e.to_string())?;
+        let xfmt = |v: &f64| format::sig(*v, 3);
+        let yfmt = |v: &f64| format::sig(*v, 3);
+        let ydesc = if yunit == "1" { ysym.clone() } else { format!("{ysym} / {yunit}") };
+        let mut mesh = chart.configure_mesh();
+        mesh.light_line_style(RGBColor(235, 235, 235))
+            .bold_line_style(RGBColor(200, 200, 200))
+            .label_style(font.clone())
+            .axis_desc_style(font.clone())
+            .x_label_formatter(&xfmt)
+            .y_label_formatter(&yfmt)
+            .y_desc(ydesc)
+            .x_labels(8)
+            .y_labels(6);
+        if $last {
+            mesh.x_desc($xdesc);
+        }
+        mesh.draw().map_err(|e| e.to_string())?;
+
+        if let Some((lo, hi, label)) = &panel.band {
+            let (xa, xb) = $xr;
+            let grey = RGBColor(215, 215, 215);
+            chart
+                .draw_series(std::iter::once(Rectangle::new([(xa, sy(*lo)), (xb, sy(*hi))], grey.filled())))
+                .map_err(|e| e.to_string())?
+                .label(label.clone())
+                .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 18, y + 5)], grey.filled()));
+        }
+        for (i, c) in panel.curves.iter().enumerate() {
+            let pts: Vec<(f64, f64)> =
+                c.1.iter().filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0).map(|t| (sx(t.0), sy(t.1))).collect();
+            let style = BLACK.stroke_width(2);
+            if i == 0 {
+                chart
+                    .draw_series(LineSeries::new(pts, style))
+                    .map_err(|e| e.to_string())?
+                    .label(format!("{} (fit)", legend_name(&c.0)))
+                    .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], BLACK.stroke_width(2)));
+            } else {
+                chart
+                    .draw_series(DashedLineSeries::new(pts, 6, 4, style))
+                    .map_err(|e| e.to_string())?
+                    .label(legend_name(&c.0))
+                    .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], BLACK));
+            }
+        }
+        for (i, s) in panel.series.iter().enumerate() {
+            let pts: Vec<(f64, f64, f64)> = s
+                .1
+                .iter()
+                .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
+                .map(|t| (sx(t.0), sy(t.1), if t.2.is_finite() { t.2.abs() / ydiv } else { 0.0 }))
+                .collect();
+            // Error bars as line segments with short caps.
+            let bars: Vec<PathElement<(f64, f64)>> = pts
+                .iter()
+                .filter(|t| t.2 > 0.0)
+                .map(|&(x, y, u)| PathElement::new(vec![(x, y - u), (x, y + u)], BLACK))
+                .collect();
+            chart.draw_series(bars).map_err(|e| e.to_string())?;
+            let centre: Vec<(f64, f64)> = pts.iter().map(|t| (t.0, t.1)).collect();
+            let label = legend_name(&s.0);
+            if i == 0 {
+                if centre.len() > 1 && panel.curves.is_empty() {
+                    chart
+                        .draw_series(LineSeries::new(centre.clone(), BLACK.stroke_width(1)))
+                        .map_err(|e| e.to_string())?;
+                }
+                chart
+                    .draw_series(centre.iter().map(|&p| Circle::new(p, 4, BLACK.filled())))
+                    .map_err(|e| e.to_string())?
+                    .label(label)
+                    .legend(|(x, y)| Circle::new((x + 9, y), 4, BLACK.filled()));
+            } else {
+                if centre.len() > 1 {
+                    chart
+                        .draw_series(DashedLineSeries::new(centre.clone(), 6, 4, BLACK.stroke_width(1)))
+                        .map_err(|e| e.to_string())?;
+                }
+                chart
+                    .draw_series(centre.iter().map(|&p| TriangleMarker::new(p, 6, BLACK.stroke_width(2))))
+                    .map_err(|e| e.to_string())?
+                    .label(label)
+                    .legend(|(x, y)| TriangleMarker::new((x + 9, y), 6, BLACK.stroke_width(2)));
+            }
+        }
+        if !panel.residuals.is_empty() {
+            let (xa, xb) = $xr;
+            chart
+                .draw_series(std::iter::once(PathElement::new(vec![(xa, 0.0), (xb, 0.0)], BLACK)))
+                .map_err(|e| e.to_string())?;
+            let pts: Vec<(f64, f64)> = panel
+                .residuals
+                .iter()
+                .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
+                .map(|t| (sx(t.0), sy(t.1)))
+                .collect();
+            chart
+                .draw_series(pts.iter().map(|&(x, y)| PathElement::new(vec![(x, 0.0), (x, y)], BLACK)))
+                .map_err(|e| e.to_string())?;
+            chart
+                .draw_series(pts.iter().map(|&p| Cross::new(p, 5, BLACK.stroke_width(2))))
+                .map_err(|e| e.to_string())?;
+        }
+        for (name, x) in panel.markers.iter().map(|m| (&m.0, m.1)) {
+            if !x.is_finite() || x <= 0.0 {
+                continue;
+            }
+            let x = sx(x);
+            let dashed = name.as_str() != "f0";
+            let line = vec![(x, y0), (x, y1)];
+            if dashed {
+                chart
+                    .draw_series(DashedLineSeries::new(line, 3, 5, BLACK.stroke_width(1)))
+                    .map_err(|e| e.to_string())?;
+            } else {
+                chart.draw_series(LineSeries::new(line, BLACK.stroke_width(1))).map_err(|e| e.to_string())?;
+            }
+            let text = match name.as_str() {
+                "f0" => "f₀".to_string(),
+                "f_low" => "f₁".to_string(),
+                "f_high" => "f₂".to_string(),
+                other => other.to_string(),
+            };
+            chart
+                .draw_series(std::iter::once(Text::new(text, (x, y1), TextStyle::from((PLOT_FONT, 17).into_font()).pos(Pos::new(HPos::Left, VPos::Top)))))
+                .map_err(|e| e.to_string())?;
+        }
+        let labelled = panel.series.len() + panel.curves.len() + usize::from(panel.band.is_some());
+        if labelled > 1 {
+            chart
+                .configure_series_labels()
+                .position(SeriesLabelPosition::UpperRight)
+                .background_style(WHITE.mix(0.9))
+                .border_style(BLACK)
+                .label_font((PLOT_FONT, 16).into_font())
+                .draw()
+                .map_err(|e| e.to_string())?;
+        }
+        Ok(())
+    }};
+}
+
+fn draw_panel_lin(
+    area: &DrawingArea<SVGBackend, Shift>,
+    panel: &Panel,
+    xr: (f64, f64),
+    xdiv: f64,
+    xdesc: &str,
+    last: bool,
+) -> Result<(), String> {
+    panel_body!(area, panel, xr, xdiv, xdesc, last, xr.0..xr.1)
+}
+
+fn draw_panel_log(
+    area: &DrawingArea<SVGBackend, Shift>,
+    panel: &Panel,
+    xr: (f64, f64),
+    xdiv: f64,
+    xdesc: &str,
+    last: bool,
+) -> Result<(), String> {
+    panel_body!(area, panel, xr, xdiv, xdesc, last, (xr.0..xr.1).log_scale())
+}
+
+/// Printed unit of a result for the band (kept for callers that need it).
+pub fn unit_of(name: &str) -> Unit {
+    match ykind(name).unit {
+        "Ω" => Unit::Ohm,
+        "F" => Unit::F,
+        "H" => Unit::H,
+        "A" => Unit::A,
+        "V" => Unit::V,
+        "°" => Unit::Rad,
+        _ => Unit::One,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn block(network: Network, plot: PlotData) -> BlockResult {
+        BlockResult {
+            id: "b1".into(),
+            network,
+            rows: vec![],
+            results: vec![],
+            correlations: vec![],
+            flags: vec![],
+            plot,
+        }
+    }
+
+    #[test]
+    fn rc_plot_has_axes_band_and_error_bars() {
+        // Synthetic capacitor of 330 nF read at 200 Hz … 5 kHz (more than a decade: log x).
+        let c: Vec<(f64, f64, f64)> = [200.0, 500.0, 1000.0, 2000.0, 5000.0]
+            .iter()
+            .map(|&f| (f, 330e-9 * (1.0 + f * 1e-6), 2e-9))
+            .collect();
+        let ph: Vec<(f64, f64, f64)> = c.iter().map(|&(f, _, _)| (f, (1.0f64 / (f / 1000.0)).atan(), 0.01)).collect();
+        let plot = PlotData {
+            series: vec![("C".into(), c), ("phase".into(), ph.clone()), ("phase_measured".into(), ph)],
+            curves: vec![],
+            markers: vec![],
+        };
+        let plots = block_plots(&block(Network::RC, plot), Some(("C", 313.5e-9, 346.5e-9))).unwrap();
+        assert_eq!(plots.len(), 1);
+        let svg = &plots[0].svg;
+        assert!(svg.starts_with("<svg"));
+        assert!(svg.contains("C / nF"), "axis label quantity/unit");
+        assert!(svg.contains("f / kHz"));
+        assert!(svg.contains("φ / °"));
+        assert!(svg.contains(PLOT_FONT));
+        assert!(svg.contains("tolerance of C"));
+        assert!(!svg.contains("NaN"));
+    }
+
+    #[test]
+    fn rlc_plot_has_residual_panel_and_markers() {
+        let f0 = 2000.0f64;
+        let y = |f: f64| 1.0 / (100.0 * (1.0 + (4.0 * (f / f0 - f0 / f)).powi(2)).sqrt());
+        let pts: Vec<(f64, f64, f64)> = (0..12).map(|i| 1200.0 + 140.0 * i as f64).map(|f| (f, y(f) * 1.01, 1e-4)).collect();
+        let curve: Vec<(f64, f64)> = (0..200).map(|i| 1100.0 + 9.0 * i as f64).map(|f| (f, y(f))).collect();
+        let plot = PlotData {
+            series: vec![("Y".into(), pts)],
+            curves: vec![("Y".into(), curve)],
+            markers: vec![("f0".into(), f0), ("f_low".into(), 1780.0), ("f_high".into(), 2250.0), ("bad".into(), f64::NAN)],
+        };
+        let plots = block_plots(&block(Network::RLC, plot), None).unwrap();
+        let svg = &plots[0].svg;
+        assert!(svg.contains("|Y| − fit"), "residual panel");
+        assert!(svg.contains("f₀"));
+        assert!(svg.contains("|Y| / mS"));
+        assert!(!svg.contains("NaN"));
+    }
+
+    #[test]
+    fn empty_plot_data_gives_no_figure() {
+        assert!(block_plots(&block(Network::RC, PlotData::default()), None).unwrap().is_empty());
+    }
+}

@@ -1,0 +1,557 @@
+//! GUM machinery: inputs with standard uncertainties, the law of propagation (JCGM 100 §5)
+//! with correlations, Welch–Satterthwaite, coverage factors, and Monte Carlo (JCGM 101).
+//! Knows nothing of circuits.
+
+use crate::notebook::Distribution;
+use serde::Serialize;
+use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+pub enum EvalType {
+    A,
+    B,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum Dist {
+    Normal,
+    Rectangular,
+    /// Student's t from a Type A evaluation.
+    StudentT,
+}
+
+/// One input quantity of a measurement model.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Input {
+    /// Name shown in budgets, e.g. `VR@1000 Hz` or `gain(dmm,VC)`.
+    pub name: String,
+    pub value: f64,
+    pub u: f64,
+    /// Degrees of freedom; None = infinite.
+    pub dof: Option<f64>,
+    pub kind: EvalType,
+    pub dist: Dist,
+}
+
+impl Input {
+    /// A Type A input: a mean with its standard deviation of the mean and n − 1 dof.
+    pub fn type_a(name: impl Into<String>, value: f64, u: f64, dof: f64) -> Input {
+        Input {
+            name: name.into(),
+            value,
+            u,
+            dof: Some(dof),
+            kind: EvalType::A,
+            dist: Dist::StudentT,
+        }
+    }
+
+    /// A Type B input with infinite dof (GUM G.4.2: taken as exactly known u).
+    pub fn type_b(name: impl Into<String>, value: f64, u: f64, dist: Dist) -> Input {
+        Input {
+            name: name.into(),
+            value,
+            u,
+            dof: None,
+            kind: EvalType::B,
+            dist,
+        }
+    }
+}
+
+/// One line of an uncertainty budget.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct BudgetLine {
+    pub input: String,
+    pub estimate: f64,
+    pub u: f64,
+    pub kind: EvalType,
+    pub dist: Dist,
+    /// Sensitivity coefficient ∂y/∂x.
+    pub sensitivity: f64,
+    /// |c|·u, the contribution to u(y).
+    pub contribution: f64,
+    pub dof: Option<f64>,
+}
+
+/// Coverage interval from a Monte Carlo run (JCGM 101).
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct McInterval {
+    pub trials: usize,
+    pub mean: f64,
+    pub u: f64,
+    pub low: f64,
+    pub high: f64,
+    /// Whether the GUM interval passes the JCGM 101 §8 validation.
+    pub gum_validated: bool,
+}
+
+/// A result with its uncertainty.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Measured {
+    pub value: f64,
+    /// Combined standard uncertainty.
+    pub u: f64,
+    /// Effective degrees of freedom; None = infinite.
+    pub dof: Option<f64>,
+    /// Coverage factor at the notebook's coverage probability.
+    pub k: f64,
+    /// Expanded uncertainty U = k·u.
+    pub expanded: f64,
+    pub budget: Vec<BudgetLine>,
+    pub mc: Option<McInterval>,
+}
+
+/// Above this many degrees of freedom the normal quantile is used (the t quantile differs
+/// from it by less than 1e-7 there).
+const DOF_NORMAL: f64 = 1e7;
+
+/// Coverage factor for a two-sided coverage probability `p` (e.g. 0.9545): the Student's t
+/// quantile t_p(ν) for finite `dof` (non-integer allowed, GUM G.3), the normal quantile for
+/// `None`. `p` is clamped into [1e-12, 1 − 1e-12]; a non-positive or NaN dof is taken as 1
+/// (the smallest a Type A evaluation gives).
+pub fn coverage_factor(p: f64, dof: Option<f64>) -> f64 {
+    let p = if p.is_nan() { 0.9545 } else { p.clamp(1e-12, 1.0 - 1e-12) };
+    let q = 0.5 * (1.0 + p);
+    match dof {
+        Some(nu) if nu < DOF_NORMAL => {
+            let nu = if nu > 0.0 { nu } else { 1.0 };
+            match StudentsT::new(0.0, 1.0, nu) {
+                Ok(t) => t.inverse_cdf(q),
+                Err(_) => normal_quantile(q),
+            }
+        }
+        _ => normal_quantile(q),
+    }
+}
+
+fn normal_quantile(q: f64) -> f64 {
+    match Normal::new(0.0, 1.0) {
+        Ok(n) => n.inverse_cdf(q),
+        Err(_) => 2.0,
+    }
+}
+
+/// Welch–Satterthwaite effective degrees of freedom (GUM G.4.1, eq. G.2b) over contributions
+/// `(c_i·u_i, ν_i)`: ν_eff = (Σ (c_i u_i)²)² / Σ (c_i u_i)⁴/ν_i. `None` (infinite) when no
+/// contribution has finite dof or all are zero. The numerator is built from the contributions
+/// themselves, so with correlated inputs (where G.4.1 does not strictly apply) ν_eff still lies
+/// between min ν_i and Σ ν_i.
+pub fn welch_satterthwaite(contribs: &[(f64, Option<f64>)]) -> Option<f64> {
+    let mut num = 0.0;
+    let mut den = 0.0;
+    for &(cu, nu) in contribs {
+        let c2 = cu * cu;
+        num += c2;
+        if let Some(nu) = nu {
+            let nu = if nu > 0.0 { nu } else { 1.0 };
+            den += c2 * c2 / nu;
+        }
+    }
+    if den > 0.0 && num > 0.0 && (num * num / den).is_finite() {
+        Some(num * num / den)
+    } else {
+        None
+    }
+}
+
+/// Type A evaluation of n repeated observations (GUM 4.2): returns (mean q̄, s(q̄) = s/√n,
+/// ν = n − 1). n = 1 gives (q, 0, 0); an empty slice gives (0, 0, 0).
+pub fn type_a(samples: &[f64]) -> (f64, f64, f64) {
+    let n = samples.len();
+    if n == 0 {
+        return (0.0, 0.0, 0.0);
+    }
+    let nf = n as f64;
+    let mean = samples.iter().sum::<f64>() / nf;
+    if n == 1 {
+        return (mean, 0.0, 0.0);
+    }
+    let ss: f64 = samples.iter().map(|x| (x - mean) * (x - mean)).sum();
+    let s2 = ss / (nf - 1.0);
+    (mean, (s2 / nf).sqrt(), nf - 1.0)
+}
+
+/// Correlation coefficient of two means from the same n observations (GUM 5.2.3, eq. 17 and
+/// C.3.6): r(q̄, r̄) = s(q̄, r̄)/(s(q̄) s(r̄)). Zero when lengths differ, n < 2 or a variance is zero.
+pub fn type_a_correlation(x: &[f64], y: &[f64]) -> f64 {
+    let n = x.len();
+    if n != y.len() || n < 2 {
+        return 0.0;
+    }
+    let mx = x.iter().sum::<f64>() / n as f64;
+    let my = y.iter().sum::<f64>() / n as f64;
+    let (mut sxy, mut sxx, mut syy) = (0.0, 0.0, 0.0);
+    for (a, b) in x.iter().zip(y) {
+        sxy += (a - mx) * (b - my);
+        sxx += (a - mx) * (a - mx);
+        syy += (b - my) * (b - my);
+    }
+    let d = (sxx * syy).sqrt();
+    if d > 0.0 && d.is_finite() {
+        (sxy / d).clamp(-1.0, 1.0)
+    } else {
+        0.0
+    }
+}
+
+/// Type B standard uncertainty from a half-width `a` (GUM 4.3.7, 4.3.3): rectangular a/√3,
+/// normal at coverage factor k: a/k (k ≤ 0 is taken as 1).
+pub fn type_b(half_width: f64, dist: Distribution) -> f64 {
+    let a = half_width.abs();
+    match dist {
+        Distribution::Rectangular => a / 3f64.sqrt(),
+        Distribution::Normal { k } => {
+            if k > 0.0 {
+                a / k
+            } else {
+                a
+            }
+        }
+    }
+}
+
+/// The `Dist` recorded in a budget for a Type B half-width of this kind.
+pub fn dist_of(d: Distribution) -> Dist {
+    match d {
+        Distribution::Rectangular => Dist::Rectangular,
+        Distribution::Normal { .. } => Dist::Normal,
+    }
+}
+
+/// A measurement model: inputs and their correlation coefficients `(i, j, r_ij)`, i ≠ j.
+pub struct Model<'a> {
+    pub inputs: &'a [Input],
+    pub corr: &'a [(usize, usize, f64)],
+}
+
+/// Outcome of the law of propagation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Propagated {
+    /// Output estimates y = f(x).
+    pub values: Vec<f64>,
+    /// Output covariance J Σ Jᵀ.
+    pub cov: Vec<Vec<f64>>,
+    /// One `Measured` per output.
+    pub results: Vec<Measured>,
+    /// Sensitivities J[output][input].
+    pub jacobian: Vec<Vec<f64>>,
+}
+
+/// Relative step of the central derivative: h_i = REL_STEP · max(|x_i|, u_i) (or REL_STEP
+/// when both are zero). The truncation error is O(h²) and round-off O(ε/h), both ≲ 1e-10
+/// relative for smooth models.
+pub const REL_STEP: f64 = 1e-6;
+
+/// Law of propagation of uncertainty (GUM 5.1.2 and 5.2.2, eq. 13), for a vector model
+/// y = f(x). Sensitivities c = ∂f/∂x by a central difference with step h_i (see
+/// [`REL_STEP`]), one-sided where f is not finite on one side. u_c²(y) = cᵀ Σ c with
+/// Σ_ij = r_ij u_i u_j; output covariance J Σ Jᵀ. Each output's ν_eff is the
+/// Welch–Satterthwaite value over its contributions, k = t_p(ν_eff), U = k·u_c.
+/// Errors (never NaN) when an input or an output is not finite, or correlations are invalid.
+pub fn propagate(
+    model: &Model,
+    f: &dyn Fn(&[f64]) -> Vec<f64>,
+    coverage: f64,
+) -> Result<Propagated, String> {
+    let inputs = model.inputs;
+    let n = inputs.len();
+    for inp in inputs {
+        if !inp.value.is_finite() || !inp.u.is_finite() || inp.u < 0.0 {
+            return Err(format!("input {} is not a finite value with u ≥ 0", inp.name));
+        }
+    }
+    let mut pairs: Vec<(usize, usize, f64)> = Vec::new();
+    for &(i, j, r) in model.corr {
+        if i >= n || j >= n || i == j {
+            return Err(format!("correlation ({i}, {j}) does not name two distinct inputs"));
+        }
+        if !r.is_finite() || r.abs() > 1.0 + 1e-12 {
+            return Err(format!("correlation {r} between inputs {i} and {j} is outside [−1, 1]"));
+        }
+        let (a, b) = if i < j { (i, j) } else { (j, i) };
+        if pairs.iter().any(|p| p.0 == a && p.1 == b) {
+            return Err(format!("correlation between inputs {a} and {b} given twice"));
+        }
+        pairs.push((a, b, r.clamp(-1.0, 1.0)));
+    }
+
+    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+    let y0 = f(&x0);
+    let m = y0.len();
+    if let Some(k) = y0.iter().position(|v| !v.is_finite()) {
+        return Err(format!("output {k} of the model is not finite at the estimates"));
+    }
+
+    // jac[k][i] = ∂y_k/∂x_i
+    let mut jac = vec![vec![0.0; n]; m];
+    let mut x = x0.clone();
+    for i in 0..n {
+        let xi = x0[i];
+        let scale = xi.abs().max(inputs[i].u);
+        let h = if scale > 0.0 { REL_STEP * scale } else { REL_STEP };
+        x[i] = xi + h;
+        let yp = f(&x);
+        x[i] = xi - h;
+        let ym = f(&x);
+        x[i] = xi;
+        if yp.len() != m || ym.len() != m {
+            return Err("the model returned a varying number of outputs".into());
+        }
+        for k in 0..m {
+            let (p, q) = (yp[k], ym[k]);
+            let d = if p.is_finite() && q.is_finite() {
+                (p - q) / (2.0 * h)
+            } else if p.is_finite() {
+                (p - y0[k]) / h
+            } else if q.is_finite() {
+                (y0[k] - q) / h
+            } else {
+                return Err(format!(
+                    "output {k} is not finite near the estimate of input {}",
+                    inputs[i].name
+                ));
+            };
+            if !d.is_finite() {
+                return Err(format!(
+                    "sensitivity of output {k} to input {} is not finite",
+                    inputs[i].name
+                ));
+            }
+            jac[k][i] = d;
+        }
+    }
+
+    // Covariance J Σ Jᵀ with Σ = diag(u²) + off-diagonal r u u.
+    let mut cov = vec![vec![0.0; m]; m];
+    for a in 0..m {
+        for b in a..m {
+            let mut s = 0.0;
+            for i in 0..n {
+                s += jac[a][i] * jac[b][i] * inputs[i].u * inputs[i].u;
+            }
+            for &(i, j, r) in &pairs {
+                s += r * inputs[i].u * inputs[j].u * (jac[a][i] * jac[b][j] + jac[a][j] * jac[b][i]);
+            }
+            cov[a][b] = s;
+            cov[b][a] = s;
+        }
+    }
+
+    let mut results = Vec::with_capacity(m);
+    for k in 0..m {
+        let diag: f64 = (0..n).map(|i| (jac[k][i] * inputs[i].u).powi(2)).sum();
+        let mut var = cov[k][k];
+        if var < 0.0 {
+            if var < -1e-9 * diag {
+                return Err(format!(
+                    "output {k} has a negative variance: the input correlations are inconsistent"
+                ));
+            }
+            var = 0.0;
+            cov[k][k] = 0.0;
+        }
+        let u = var.sqrt();
+        let mut budget = Vec::new();
+        let mut contribs = Vec::new();
+        for (i, inp) in inputs.iter().enumerate() {
+            let c = jac[k][i];
+            if c == 0.0 {
+                continue;
+            }
+            let contribution = c.abs() * inp.u;
+            budget.push(BudgetLine {
+                input: inp.name.clone(),
+                estimate: inp.value,
+                u: inp.u,
+                kind: inp.kind,
+                dist: inp.dist,
+                sensitivity: c,
+                contribution,
+                dof: inp.dof,
+            });
+            contribs.push((contribution, inp.dof));
+        }
+        let dof = welch_satterthwaite(&contribs);
+        let kf = coverage_factor(coverage, dof);
+        let expanded = kf * u;
+        if !u.is_finite() || !kf.is_finite() || !expanded.is_finite() {
+            return Err(format!("output {k} has a non-finite uncertainty"));
+        }
+        results.push(Measured {
+            value: y0[k],
+            u,
+            dof,
+            k: kf,
+            expanded,
+            budget,
+            mc: None,
+        });
+    }
+
+    Ok(Propagated {
+        values: y0,
+        cov,
+        results,
+        jacobian: jac,
+    })
+}
+
+/// Correlation coefficient r(y_i, y_j) = cov_ij / (u_i u_j) (GUM 5.2.2 / H.2); 0 when an index
+/// is out of range or a variance is zero.
+pub fn correlation(p: &Propagated, i: usize, j: usize) -> f64 {
+    let get = |a: usize, b: usize| p.cov.get(a).and_then(|r| r.get(b)).copied();
+    match (get(i, j), get(i, i), get(j, j)) {
+        (Some(c), Some(a), Some(b)) if a > 0.0 && b > 0.0 => {
+            let r = c / (a.sqrt() * b.sqrt());
+            if r.is_finite() {
+                r.clamp(-1.0, 1.0)
+            } else {
+                0.0
+            }
+        }
+        _ => 0.0,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn close(a: f64, b: f64, tol: f64) -> bool {
+        (a - b).abs() <= tol
+    }
+
+    // GUM JCGM 100:2008 Table G.2, t_p(ν) for p = 95.45 % and p = 99.73 %.
+    #[test]
+    fn table_g2_coverage_factors() {
+        let p95: [(Option<f64>, f64); 7] = [
+            (Some(1.0), 13.97),
+            (Some(2.0), 4.53),
+            (Some(3.0), 3.31),
+            (Some(5.0), 2.65),
+            (Some(10.0), 2.28),
+            (Some(20.0), 2.13),
+            (None, 2.00),
+        ];
+        for (nu, t) in p95 {
+            let k = coverage_factor(0.9545, nu);
+            assert!(close(k, t, 0.005), "p=95.45% ν={nu:?}: {k} vs {t}");
+        }
+        let p997: [(Option<f64>, f64); 7] = [
+            (Some(1.0), 235.80),
+            (Some(2.0), 19.21),
+            (Some(3.0), 9.22),
+            (Some(5.0), 5.51),
+            (Some(10.0), 3.96),
+            (Some(20.0), 3.42),
+            (None, 3.00),
+        ];
+        for (nu, t) in p997 {
+            let k = coverage_factor(0.9973, nu);
+            assert!(close(k, t, 0.005), "p=99.73% ν={nu:?}: {k} vs {t}");
+        }
+    }
+
+    // GUM Table G.2, p = 95 % row: t(ν=1) = 12.71, t(10) = 2.23, ∞ 1.960.
+    // Non-integer ν: t lies between its integer neighbours (GUM G.3.4 allows interpolation).
+    #[test]
+    fn coverage_factor_95_and_fractional_dof() {
+        assert!(close(coverage_factor(0.95, Some(1.0)), 12.71, 0.005));
+        assert!(close(coverage_factor(0.95, Some(10.0)), 2.23, 0.005));
+        assert!(close(coverage_factor(0.95, None), 1.960, 0.0005));
+        let k = coverage_factor(0.95, Some(19.04));
+        assert!(k < coverage_factor(0.95, Some(19.0)) && k > coverage_factor(0.95, Some(20.0)));
+        assert!(coverage_factor(0.95, Some(0.0)).is_finite());
+        assert!(coverage_factor(2.0, Some(3.0)).is_finite());
+    }
+
+    // GUM G.4.1 EXAMPLE (from memory): Y = b·X1·X2·X3, relative u 0.25 %, 0.57 %, 0.82 % from
+    // n = 10, 5, 15 observations; u_c/y = 1.03 %, ν_eff = 19.0, t95(19) = 2.09, U95 = 2.2 %.
+    #[test]
+    fn welch_satterthwaite_gum_g41() {
+        let c = [(0.25, Some(9.0)), (0.57, Some(4.0)), (0.82, Some(14.0))];
+        let nu = welch_satterthwaite(&c).expect("finite");
+        assert!(close(nu, 19.0, 0.05), "ν_eff = {nu}");
+        let uc: f64 = c.iter().map(|x| x.0 * x.0).sum::<f64>().sqrt();
+        assert!(close(uc, 1.03, 0.005));
+        let k = coverage_factor(0.95, Some(nu.floor()));
+        assert!(close(k, 2.09, 0.005));
+        assert!(close(k * uc, 2.2, 0.05));
+        // All infinite → infinite.
+        assert_eq!(welch_satterthwaite(&[(1.0, None), (2.0, None)]), None);
+        // Single contribution: ν_eff = ν (G.2b with N = 1).
+        assert!(close(welch_satterthwaite(&[(3.0, Some(7.0)), (0.0, Some(2.0))]).unwrap(), 7.0, 1e-12));
+    }
+
+    // GUM H.2, Table H.2: means V̄ = 4.9990 V, s(V̄) = 0.0032 V; Ī = 19.6610 mA, s(Ī) = 0.0095 mA;
+    // φ̄ = 1.04446 rad, s(φ̄) = 0.00075 rad; r(V,I) = −0.36, r(V,φ) = 0.86, r(I,φ) = −0.65.
+    #[test]
+    fn type_a_gum_h2_table() {
+        let v = [5.007, 4.994, 5.005, 4.990, 4.999];
+        let i = [19.663, 19.639, 19.640, 19.685, 19.678];
+        let p = [1.0456, 1.0438, 1.0468, 1.0428, 1.0433];
+        let (mv, sv, nv) = type_a(&v);
+        assert!(close(mv, 4.9990, 5e-5) && close(sv, 0.0032, 5e-5) && nv == 4.0);
+        let (mi, si, _) = type_a(&i);
+        assert!(close(mi, 19.6610, 5e-5) && close(si, 0.0095, 5e-5));
+        let (mp, sp, _) = type_a(&p);
+        assert!(close(mp, 1.04446, 5e-6) && close(sp, 0.00075, 5e-6));
+        assert!(close(type_a_correlation(&v, &i), -0.36, 0.005));
+        assert!(close(type_a_correlation(&v, &p), 0.86, 0.005));
+        assert!(close(type_a_correlation(&i, &p), -0.65, 0.005));
+        assert_eq!(type_a(&[2.5]), (2.5, 0.0, 0.0));
+        assert_eq!(type_a_correlation(&[1.0], &[2.0]), 0.0);
+    }
+
+    // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
+    #[test]
+    fn type_b_half_widths() {
+        assert!(close(type_b(3f64.sqrt(), Distribution::Rectangular), 1.0, 1e-15));
+        assert!(close(type_b(2.0, Distribution::Normal { k: 2.0 }), 1.0, 1e-15));
+    }
+
+    // Checked numerical derivative: y = x0²·sin(x1)/x2 against its analytic partials
+    // (calculus), and u_c² = cᵀΣc (GUM eq. 13) by hand.
+    #[test]
+    fn checked_numerical_derivative() {
+        let inputs = vec![
+            Input::type_b("a", 1.7, 0.01, Dist::Normal),
+            Input::type_b("b", 0.6, 0.002, Dist::Normal),
+            Input::type_a("c", 3.2e-3, 1e-6, 4.0),
+        ];
+        let corr = [(0usize, 2usize, 0.4)];
+        let f = |x: &[f64]| vec![x[0] * x[0] * x[1].sin() / x[2], x[0] + x[1]];
+        let p = propagate(&Model { inputs: &inputs, corr: &corr }, &f, 0.9545).unwrap();
+        let (a, b, c) = (1.7f64, 0.6f64, 3.2e-3f64);
+        let exact = [2.0 * a * b.sin() / c, a * a * b.cos() / c, -a * a * b.sin() / (c * c)];
+        for i in 0..3 {
+            let rel = (p.jacobian[0][i] - exact[i]).abs() / exact[i].abs();
+            assert!(rel < 1e-8, "∂y/∂x{i}: {} vs {}", p.jacobian[0][i], exact[i]);
+        }
+        let u = [0.01, 0.002, 1e-6];
+        let var = (exact[0] * u[0]).powi(2)
+            + (exact[1] * u[1]).powi(2)
+            + (exact[2] * u[2]).powi(2)
+            + 2.0 * 0.4 * exact[0] * exact[2] * u[0] * u[2];
+        assert!((p.results[0].u - var.sqrt()).abs() / var.sqrt() < 1e-8);
+        // Second output: covariance with the first, cov = Σ J0 Σ J1.
+        let cov01 = exact[0] * u[0] * u[0] + exact[1] * u[1] * u[1] + 0.4 * exact[2] * u[0] * u[2];
+        assert!((p.cov[0][1] - cov01).abs() / cov01.abs() < 1e-7);
+        assert!((p.results[1].u - (u[0] * u[0] + u[1] * u[1]).sqrt()).abs() < 1e-12);
+        assert_eq!(p.results[1].dof, None);
+        // Budget of output 1 names only a and b (c has zero sensitivity).
+        assert_eq!(p.results[1].budget.len(), 2);
+        assert!(correlation(&p, 0, 1).abs() <= 1.0);
+    }
+
+    #[test]
+    fn non_finite_outputs_are_errors() {
+        let inputs = vec![Input::type_b("x", 0.0, 0.1, Dist::Normal)];
+        let f = |x: &[f64]| vec![1.0 / x[0]];
+        assert!(propagate(&Model { inputs: &inputs, corr: &[] }, &f, 0.95).is_err());
+        let bad = [(0usize, 0usize, 0.5)];
+        let g = |x: &[f64]| vec![x[0]];
+        assert!(propagate(&Model { inputs: &inputs, corr: &bad }, &g, 0.95).is_err());
+    }
+}
