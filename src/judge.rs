@@ -316,7 +316,8 @@ pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
         let Item::Prose { text, span } = item else { continue };
         for (ev, range) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
             if let Event::Code(code) = ev {
-                if let Some(key) = code.strip_prefix('=') {
+                // `=` followed by a name: a lone `=` or `= x` is ordinary code.
+                if let Some(key) = code.strip_prefix('=').filter(|k| k.starts_with(|c: char| c.is_alphanumeric())) {
                     let s = Span::new(span.start + range.start, span.start + range.end);
                     out.push((key.trim().to_string(), s));
                 }
@@ -346,9 +347,9 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
                 cites.insert(key, cite_text(r));
             }
             Err(msg) => diags.push(
-                Diagnostic::new(span, format!("citation `={key}` does not name a result"))
+                Diagnostic::new(span, format!("citation `={key}` does not name a result: {msg}"))
                     .expected("`=block.result` for a block result, or `=block.result@f` for one frequency")
-                    .found(msg),
+                    .found(format!("`={key}`")),
             ),
         }
     }

@@ -38,7 +38,11 @@ pub struct McOptions {
 
 impl Default for McOptions {
     fn default() -> Self {
-        McOptions { ndig: 2, divisor: 5.0, max_trials: 4_000_000 }
+        McOptions {
+            ndig: 2,
+            divisor: 5.0,
+            max_trials: 2_000_000,
+        }
     }
 }
 
@@ -73,7 +77,12 @@ pub fn validate(y: f64, u: f64, expanded: f64, mc: &McInterval, ndig: u32) -> Va
     let d_low = (y - expanded - mc.low).abs();
     let d_high = (y + expanded - mc.high).abs();
     let validated = d_low.is_finite() && d_high.is_finite() && d_low <= delta && d_high <= delta;
-    Validation { d_low, d_high, delta, validated }
+    Validation {
+        d_low,
+        d_high,
+        delta,
+        validated,
+    }
 }
 
 /// Sets `gum_validated` in `m.mc` (if any) by [`validate`], and returns the comparison.
@@ -100,6 +109,56 @@ pub fn monte_carlo(
     monte_carlo_with(inputs, corr, f, p, seed, trials, McOptions::default())
 }
 
+/// Inputs on which some of the given outputs depend (a non-zero sensitivity in `jacobian`
+/// rows `outputs`, as from `Propagated::jacobian`).
+pub fn relevant_inputs(jacobian: &[Vec<f64>], outputs: &[usize]) -> Vec<usize> {
+    let n = jacobian.first().map_or(0, |r| r.len());
+    (0..n)
+        .filter(|&i| {
+            outputs.iter().any(|&k| {
+                jacobian
+                    .get(k)
+                    .and_then(|r| r.get(i))
+                    .is_some_and(|c| *c != 0.0)
+            })
+        })
+        .collect()
+}
+
+/// [`monte_carlo`] drawing only the inputs `used` (the others stay at their estimates);
+/// correlations with an input not drawn are dropped, which leaves the joint law of the drawn
+/// ones unchanged. `f` still receives the full input vector.
+pub fn monte_carlo_on(
+    inputs: &[Input],
+    corr: &[(usize, usize, f64)],
+    used: &[usize],
+    f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),
+    p: f64,
+    seed: u64,
+    trials: Option<usize>,
+) -> Vec<McInterval> {
+    let sub: Vec<Input> = used
+        .iter()
+        .filter_map(|&i| inputs.get(i).cloned())
+        .collect();
+    let pos = |i: usize| used.iter().position(|&k| k == i);
+    let sub_corr: Vec<(usize, usize, f64)> = corr
+        .iter()
+        .filter_map(|&(a, b, r)| Some((pos(a)?, pos(b)?, r)))
+        .collect();
+    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+    let g = |xs: &[f64]| -> Vec<f64> {
+        let mut x = x0.clone();
+        for (k, &i) in used.iter().enumerate() {
+            if let (Some(d), Some(v)) = (x.get_mut(i), xs.get(k)) {
+                *d = *v;
+            }
+        }
+        f(&x)
+    };
+    monte_carlo(&sub, &sub_corr, &g, p, seed, trials)
+}
+
 /// [`monte_carlo`] with explicit options.
 pub fn monte_carlo_with(
     inputs: &[Input],
@@ -110,7 +169,11 @@ pub fn monte_carlo_with(
     trials: Option<usize>,
     opts: McOptions,
 ) -> Vec<McInterval> {
-    let p = if p.is_finite() { p.clamp(0.5, 0.9999) } else { 0.95 };
+    let p = if p.is_finite() {
+        p.clamp(0.5, 0.9999)
+    } else {
+        0.95
+    };
     let sampler = Sampler::new(inputs, corr);
     let nout = f(&sampler.x).len();
     if nout == 0 {
@@ -133,8 +196,10 @@ pub fn monte_carlo_with(
             let max_batches = opts.max_trials.div_ceil(BATCH).max(2);
             'outer: loop {
                 let start = batches.len();
-                let group: Vec<Vec<Vec<f64>>> =
-                    (start..start + GROUP).into_par_iter().map(|h| run(h, BATCH)).collect();
+                let group: Vec<Vec<Vec<f64>>> = (start..start + GROUP)
+                    .into_par_iter()
+                    .map(|h| run(h, BATCH))
+                    .collect();
                 for b in group {
                     stats.push(b.iter().map(|v| batch_summary(v, p)).collect());
                     batches.push(b);
@@ -149,6 +214,7 @@ pub fn monte_carlo_with(
         }
     }
     (0..nout)
+        .into_par_iter()
         .map(|o| {
             let mut all: Vec<f64> = batches.iter().flat_map(|b| b[o].iter().copied()).collect();
             summarise(&mut all, p)
@@ -188,12 +254,23 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
     let m = v.len();
     if m < 2 {
         let x = v.first().copied().unwrap_or(0.0);
-        return McInterval { trials: m, mean: x, u: 0.0, low: x, high: x, gum_validated: false };
+        return McInterval {
+            trials: m,
+            mean: x,
+            u: 0.0,
+            low: x,
+            high: x,
+            gum_validated: false,
+        };
     }
     let mean = v.iter().sum::<f64>() / m as f64;
     let var = v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (m as f64 - 1.0);
     let pm = p * m as f64;
-    let q = if (pm - pm.round()).abs() < 1e-9 { pm.round() as usize } else { (pm + 0.5).floor() as usize };
+    let q = if (pm - pm.round()).abs() < 1e-9 {
+        pm.round() as usize
+    } else {
+        (pm + 0.5).floor() as usize
+    };
     let q = q.min(m - 1).max(1);
     let r = (m - q).div_ceil(2).max(1); // 1-based
     let lo_i = r - 1;
@@ -207,7 +284,14 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
         let (_, hi, _) = rest.select_nth_unstable_by(k, f64::total_cmp);
         *hi
     };
-    McInterval { trials: m, mean, u: var.sqrt(), low, high, gum_validated: false }
+    McInterval {
+        trials: m,
+        mean,
+        u: var.sqrt(),
+        low,
+        high,
+        gum_validated: false,
+    }
 }
 
 /// One batch of `m` trials from stream `h`: values per output, non-finite trials dropped.
@@ -268,9 +352,10 @@ impl Sampler {
         let g = group.len();
         let mut rm = DMatrix::<f64>::identity(g, g);
         for &(a, b, r) in corr {
-            if let (Some(i), Some(j)) =
-                (group.iter().position(|&k| k == a), group.iter().position(|&k| k == b))
-            {
+            if let (Some(i), Some(j)) = (
+                group.iter().position(|&k| k == a),
+                group.iter().position(|&k| k == b),
+            ) {
                 if i != j && r.is_finite() {
                     let r = r.clamp(-1.0, 1.0);
                     rm[(i, j)] = r;
@@ -311,7 +396,10 @@ impl Sampler {
             .collect();
         Sampler {
             x: inputs.iter().map(|i| i.value).collect(),
-            u: inputs.iter().map(|i| if i.u.is_finite() { i.u.abs() } else { 0.0 }).collect(),
+            u: inputs
+                .iter()
+                .map(|i| if i.u.is_finite() { i.u.abs() } else { 0.0 })
+                .collect(),
             law,
             group,
             factor,
@@ -349,7 +437,14 @@ mod tests {
     use crate::uncertainty::EvalType;
 
     fn inp(name: &str, value: f64, u: f64, dist: Dist, dof: Option<f64>) -> Input {
-        Input { name: name.into(), value, u, dof, kind: EvalType::B, dist }
+        Input {
+            name: name.into(),
+            value,
+            u,
+            dof,
+            kind: EvalType::B,
+            dist,
+        }
     }
 
     #[test]
@@ -366,13 +461,17 @@ mod tests {
     fn additive_model_normal_inputs() {
         // JCGM 101 §9.2.2 (from memory): X1..X4 independent N(0, 1), Y = ΣXi: u(y) = 2.00,
         // 95 % interval [−3.92, 3.92] by both GUF and MCM; the GUF result is validated.
-        let xs: Vec<Input> =
-            (0..4).map(|i| inp(&format!("X{i}"), 0.0, 1.0, Dist::Normal, None)).collect();
+        let xs: Vec<Input> = (0..4)
+            .map(|i| inp(&format!("X{i}"), 0.0, 1.0, Dist::Normal, None))
+            .collect();
         let f = |x: &[f64]| vec![x.iter().sum::<f64>()];
         let mc = monte_carlo(&xs, &[], &f, 0.95, 11, None);
         let m = &mc[0];
         assert!((m.u - 2.0).abs() < 0.01, "{m:?}");
-        assert!((m.low + 3.92).abs() < 0.02 && (m.high - 3.92).abs() < 0.02, "{m:?}");
+        assert!(
+            (m.low + 3.92).abs() < 0.02 && (m.high - 3.92).abs() < 0.02,
+            "{m:?}"
+        );
         let v = validate(0.0, 2.0, 1.959964 * 2.0, m, 2);
         assert!(v.validated, "{v:?}");
     }
@@ -399,8 +498,9 @@ mod tests {
     fn additive_model_rectangular_inputs_matches_irwin_hall() {
         // JCGM 101 §9.2.3 (from memory: MCM [−3.88, 3.88] against GUF ±3.92). The exact 97.5 %
         // point of Σ of four R(−√3, √3) comes from the Irwin–Hall distribution.
-        let xs: Vec<Input> =
-            (0..4).map(|i| inp(&format!("X{i}"), 0.0, 1.0, Dist::Rectangular, None)).collect();
+        let xs: Vec<Input> = (0..4)
+            .map(|i| inp(&format!("X{i}"), 0.0, 1.0, Dist::Rectangular, None))
+            .collect();
         let f = |x: &[f64]| vec![x.iter().sum::<f64>()];
         let mc = monte_carlo(&xs, &[], &f, 0.95, 5, Some(1_000_000));
         let (mut a, mut b) = (2.0, 4.0);
@@ -414,7 +514,11 @@ mod tests {
         }
         let exact_high = 2.0 * 3f64.sqrt() * a - 4.0 * 3f64.sqrt();
         assert!((exact_high - 3.88).abs() < 0.005, "{exact_high}");
-        assert!((mc[0].high - exact_high).abs() < 0.01, "{:?} vs {exact_high}", mc[0]);
+        assert!(
+            (mc[0].high - exact_high).abs() < 0.01,
+            "{:?} vs {exact_high}",
+            mc[0]
+        );
         assert!((mc[0].low + exact_high).abs() < 0.01);
         assert!((mc[0].u - 2.0).abs() < 0.01);
         assert_eq!(mc[0].trials, 1_000_000);
@@ -429,7 +533,10 @@ mod tests {
         let want = 0.1 * (5.0f64 / 3.0).sqrt();
         assert!((mc[0].u - want).abs() < 0.003 * want * 10.0, "{:?}", mc[0]);
         // Y = X1 − X2 with r = 0.8, u = 1 each: u(y)² = 2 − 2·0.8 = 0.4 (GUM 5.2.2).
-        let xs = vec![inp("1", 0.0, 1.0, Dist::Normal, None), inp("2", 0.0, 1.0, Dist::Normal, None)];
+        let xs = vec![
+            inp("1", 0.0, 1.0, Dist::Normal, None),
+            inp("2", 0.0, 1.0, Dist::Normal, None),
+        ];
         let f = |x: &[f64]| vec![x[0] - x[1]];
         let mc = monte_carlo(&xs, &[(0, 1, 0.8)], &f, 0.95, 3, Some(400_000));
         assert!((mc[0].u - 0.4f64.sqrt()).abs() < 0.005, "{:?}", mc[0]);
@@ -437,11 +544,15 @@ mod tests {
 
     #[test]
     fn deterministic_and_independent_of_threads() {
-        let xs: Vec<Input> =
-            (0..3).map(|i| inp(&format!("X{i}"), 1.0, 0.2, Dist::Rectangular, None)).collect();
+        let xs: Vec<Input> = (0..3)
+            .map(|i| inp(&format!("X{i}"), 1.0, 0.2, Dist::Rectangular, None))
+            .collect();
         let f = |x: &[f64]| vec![x[0] * x[1] / x[2]];
         let a = monte_carlo(&xs, &[], &f, 0.95, 42, Some(50_000));
-        let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(1)
+            .build()
+            .unwrap();
         let b = pool.install(|| monte_carlo(&xs, &[], &f, 0.95, 42, Some(50_000)));
         assert_eq!(a, b);
         let c = monte_carlo(&xs, &[], &f, 0.95, 43, Some(50_000));

@@ -111,7 +111,11 @@ const DOF_NORMAL: f64 = 1e7;
 /// `None`. `p` is clamped into [1e-12, 1 − 1e-12]; a non-positive or NaN dof is taken as 1
 /// (the smallest a Type A evaluation gives).
 pub fn coverage_factor(p: f64, dof: Option<f64>) -> f64 {
-    let p = if p.is_nan() { 0.9545 } else { p.clamp(1e-12, 1.0 - 1e-12) };
+    let p = if p.is_nan() {
+        0.9545
+    } else {
+        p.clamp(1e-12, 1.0 - 1e-12)
+    };
     let q = 0.5 * (1.0 + p);
     match dof {
         Some(nu) if nu < DOF_NORMAL => {
@@ -248,6 +252,9 @@ pub const REL_STEP: f64 = 1e-6;
 /// [`REL_STEP`]), one-sided where f is not finite on one side. u_c²(y) = cᵀ Σ c with
 /// Σ_ij = r_ij u_i u_j; output covariance J Σ Jᵀ. Each output's ν_eff is the
 /// Welch–Satterthwaite value over its contributions, k = t_p(ν_eff), U = k·u_c.
+/// G.4.1 assumes independent inputs; inputs linked by correlations that all share one finite
+/// ν (Type A means from the same observations) are pooled into one contribution, their joint
+/// c_Gᵀ Σ_G c_G, with that ν, as approach 2 of GUM H.2.4 would treat them.
 /// Errors (never NaN) when an input or an output is not finite, or correlations are invalid.
 pub fn propagate(
     model: &Model,
@@ -258,20 +265,29 @@ pub fn propagate(
     let n = inputs.len();
     for inp in inputs {
         if !inp.value.is_finite() || !inp.u.is_finite() || inp.u < 0.0 {
-            return Err(format!("input {} is not a finite value with u ≥ 0", inp.name));
+            return Err(format!(
+                "input {} is not a finite value with u ≥ 0",
+                inp.name
+            ));
         }
     }
     let mut pairs: Vec<(usize, usize, f64)> = Vec::new();
     for &(i, j, r) in model.corr {
         if i >= n || j >= n || i == j {
-            return Err(format!("correlation ({i}, {j}) does not name two distinct inputs"));
+            return Err(format!(
+                "correlation ({i}, {j}) does not name two distinct inputs"
+            ));
         }
         if !r.is_finite() || r.abs() > 1.0 + 1e-12 {
-            return Err(format!("correlation {r} between inputs {i} and {j} is outside [−1, 1]"));
+            return Err(format!(
+                "correlation {r} between inputs {i} and {j} is outside [−1, 1]"
+            ));
         }
         let (a, b) = if i < j { (i, j) } else { (j, i) };
         if pairs.iter().any(|p| p.0 == a && p.1 == b) {
-            return Err(format!("correlation between inputs {a} and {b} given twice"));
+            return Err(format!(
+                "correlation between inputs {a} and {b} given twice"
+            ));
         }
         pairs.push((a, b, r.clamp(-1.0, 1.0)));
     }
@@ -280,7 +296,9 @@ pub fn propagate(
     let y0 = f(&x0);
     let m = y0.len();
     if let Some(k) = y0.iter().position(|v| !v.is_finite()) {
-        return Err(format!("output {k} of the model is not finite at the estimates"));
+        return Err(format!(
+            "output {k} of the model is not finite at the estimates"
+        ));
     }
 
     // jac[k][i] = ∂y_k/∂x_i
@@ -289,7 +307,11 @@ pub fn propagate(
     for i in 0..n {
         let xi = x0[i];
         let scale = xi.abs().max(inputs[i].u);
-        let h = if scale > 0.0 { REL_STEP * scale } else { REL_STEP };
+        let h = if scale > 0.0 {
+            REL_STEP * scale
+        } else {
+            REL_STEP
+        };
         x[i] = xi + h;
         let yp = f(&x);
         x[i] = xi - h;
@@ -331,12 +353,41 @@ pub fn propagate(
                 s += jac[a][i] * jac[b][i] * inputs[i].u * inputs[i].u;
             }
             for &(i, j, r) in &pairs {
-                s += r * inputs[i].u * inputs[j].u * (jac[a][i] * jac[b][j] + jac[a][j] * jac[b][i]);
+                s +=
+                    r * inputs[i].u * inputs[j].u * (jac[a][i] * jac[b][j] + jac[a][j] * jac[b][i]);
             }
             cov[a][b] = s;
             cov[b][a] = s;
         }
     }
+
+    // Clusters of inputs linked by nonzero correlations (union–find); a cluster is pooled in
+    // Welch–Satterthwaite when all its members share one finite dof.
+    let mut parent: Vec<usize> = (0..n).collect();
+    fn root(p: &mut [usize], mut i: usize) -> usize {
+        while p[i] != i {
+            p[i] = p[p[i]];
+            i = p[i];
+        }
+        i
+    }
+    for &(i, j, r) in &pairs {
+        if r != 0.0 {
+            let (a, b) = (root(&mut parent, i), root(&mut parent, j));
+            if a != b {
+                parent[a.max(b)] = a.min(b);
+            }
+        }
+    }
+    let roots: Vec<usize> = (0..n).map(|i| root(&mut parent, i)).collect();
+    let pooled: Vec<bool> = (0..n)
+        .map(|i| {
+            let members: Vec<usize> = (0..n).filter(|&j| roots[j] == roots[i]).collect();
+            members.len() > 1
+                && inputs[i].dof.is_some()
+                && members.iter().all(|&j| inputs[j].dof == inputs[i].dof)
+        })
+        .collect();
 
     let mut results = Vec::with_capacity(m);
     for k in 0..m {
@@ -370,7 +421,24 @@ pub fn propagate(
                 contribution,
                 dof: inp.dof,
             });
-            contribs.push((contribution, inp.dof));
+            if !pooled[i] {
+                contribs.push((contribution, inp.dof));
+            }
+        }
+        for r in 0..n {
+            if roots[r] != r || !pooled[r] {
+                continue;
+            }
+            let mut v: f64 = (0..n)
+                .filter(|&i| roots[i] == r)
+                .map(|i| (jac[k][i] * inputs[i].u).powi(2))
+                .sum();
+            for &(i, j, rho) in &pairs {
+                if roots[i] == r && roots[j] == r {
+                    v += 2.0 * rho * jac[k][i] * jac[k][j] * inputs[i].u * inputs[j].u;
+                }
+            }
+            contribs.push((v.max(0.0).sqrt(), inputs[r].dof));
         }
         let dof = welch_satterthwaite(&contribs);
         let kf = coverage_factor(coverage, dof);
@@ -422,9 +490,12 @@ mod tests {
         (a - b).abs() <= tol
     }
 
-    // GUM JCGM 100:2008 Table G.2, t_p(ν) for p = 95.45 % and p = 99.73 %.
+    // GUM JCGM 100:2008 Table G.2, t_p(ν) for p = 95.45 % and p = 99.73 %. The table's p are
+    // those of k = 2 and k = 3 for the normal distribution (GUM G.3.4 note), i.e.
+    // erf(2/√2) = 0.954 499 7 and erf(3/√2) = 0.997 300 2; the table's ν = 1 entries need them.
     #[test]
     fn table_g2_coverage_factors() {
+        let (p2, p3) = (0.954_499_736_103_642, 0.997_300_203_936_740);
         let p95: [(Option<f64>, f64); 7] = [
             (Some(1.0), 13.97),
             (Some(2.0), 4.53),
@@ -435,7 +506,7 @@ mod tests {
             (None, 2.00),
         ];
         for (nu, t) in p95 {
-            let k = coverage_factor(0.9545, nu);
+            let k = coverage_factor(p2, nu);
             assert!(close(k, t, 0.005), "p=95.45% ν={nu:?}: {k} vs {t}");
         }
         let p997: [(Option<f64>, f64); 7] = [
@@ -448,7 +519,7 @@ mod tests {
             (None, 3.00),
         ];
         for (nu, t) in p997 {
-            let k = coverage_factor(0.9973, nu);
+            let k = coverage_factor(p3, nu);
             assert!(close(k, t, 0.005), "p=99.73% ν={nu:?}: {k} vs {t}");
         }
     }
@@ -475,13 +546,18 @@ mod tests {
         assert!(close(nu, 19.0, 0.05), "ν_eff = {nu}");
         let uc: f64 = c.iter().map(|x| x.0 * x.0).sum::<f64>().sqrt();
         assert!(close(uc, 1.03, 0.005));
-        let k = coverage_factor(0.95, Some(nu.floor()));
+        // The GUM rounds ν_eff = 19.0 to 19 (its numerator uses the rounded 1.03 %).
+        let k = coverage_factor(0.95, Some(nu.round()));
         assert!(close(k, 2.09, 0.005));
         assert!(close(k * uc, 2.2, 0.05));
         // All infinite → infinite.
         assert_eq!(welch_satterthwaite(&[(1.0, None), (2.0, None)]), None);
         // Single contribution: ν_eff = ν (G.2b with N = 1).
-        assert!(close(welch_satterthwaite(&[(3.0, Some(7.0)), (0.0, Some(2.0))]).unwrap(), 7.0, 1e-12));
+        assert!(close(
+            welch_satterthwaite(&[(3.0, Some(7.0)), (0.0, Some(2.0))]).unwrap(),
+            7.0,
+            1e-12
+        ));
     }
 
     // GUM H.2, Table H.2: means V̄ = 4.9990 V, s(V̄) = 0.0032 V; Ī = 19.6610 mA, s(Ī) = 0.0095 mA;
@@ -507,8 +583,16 @@ mod tests {
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
     #[test]
     fn type_b_half_widths() {
-        assert!(close(type_b(3f64.sqrt(), Distribution::Rectangular), 1.0, 1e-15));
-        assert!(close(type_b(2.0, Distribution::Normal { k: 2.0 }), 1.0, 1e-15));
+        assert!(close(
+            type_b(3f64.sqrt(), Distribution::Rectangular),
+            1.0,
+            1e-15
+        ));
+        assert!(close(
+            type_b(2.0, Distribution::Normal { k: 2.0 }),
+            1.0,
+            1e-15
+        ));
     }
 
     // Checked numerical derivative: y = x0²·sin(x1)/x2 against its analytic partials
@@ -522,9 +606,21 @@ mod tests {
         ];
         let corr = [(0usize, 2usize, 0.4)];
         let f = |x: &[f64]| vec![x[0] * x[0] * x[1].sin() / x[2], x[0] + x[1]];
-        let p = propagate(&Model { inputs: &inputs, corr: &corr }, &f, 0.9545).unwrap();
+        let p = propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &corr,
+            },
+            &f,
+            0.9545,
+        )
+        .unwrap();
         let (a, b, c) = (1.7f64, 0.6f64, 3.2e-3f64);
-        let exact = [2.0 * a * b.sin() / c, a * a * b.cos() / c, -a * a * b.sin() / (c * c)];
+        let exact = [
+            2.0 * a * b.sin() / c,
+            a * a * b.cos() / c,
+            -a * a * b.sin() / (c * c),
+        ];
         for i in 0..3 {
             let rel = (p.jacobian[0][i] - exact[i]).abs() / exact[i].abs();
             assert!(rel < 1e-8, "∂y/∂x{i}: {} vs {}", p.jacobian[0][i], exact[i]);
@@ -549,9 +645,25 @@ mod tests {
     fn non_finite_outputs_are_errors() {
         let inputs = vec![Input::type_b("x", 0.0, 0.1, Dist::Normal)];
         let f = |x: &[f64]| vec![1.0 / x[0]];
-        assert!(propagate(&Model { inputs: &inputs, corr: &[] }, &f, 0.95).is_err());
+        assert!(propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &[]
+            },
+            &f,
+            0.95
+        )
+        .is_err());
         let bad = [(0usize, 0usize, 0.5)];
         let g = |x: &[f64]| vec![x[0]];
-        assert!(propagate(&Model { inputs: &inputs, corr: &bad }, &g, 0.95).is_err());
+        assert!(propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &bad
+            },
+            &g,
+            0.95
+        )
+        .is_err());
     }
 }

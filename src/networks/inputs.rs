@@ -97,7 +97,12 @@ pub struct Value {
 
 impl Value {
     pub fn exact(v: f64) -> Value {
-        Value { base: v, mean: None, gain: None, offsets: Vec::new() }
+        Value {
+            base: v,
+            mean: None,
+            gain: None,
+            offsets: Vec::new(),
+        }
     }
 
     /// Evaluates at input values `x` (NaN if an index is missing, which `propagate` rejects).
@@ -193,7 +198,10 @@ fn unit_ok(q: &crate::quantity::Quantity, unit: Unit) -> bool {
 /// Half-width of an instrument's accuracy limit for a reading `x` in `unit` (used for the
 /// source-level check): P·|x| + N·resolution, an absolute limit, or resolution/2.
 pub fn accuracy_limit(inst: &Instrument, x: f64, unit: Unit) -> f64 {
-    let res = inst.resolution.filter(|r| unit_ok(r, unit)).map(|r| r.value.abs());
+    let res = inst
+        .resolution
+        .filter(|r| unit_ok(r, unit))
+        .map(|r| r.value.abs());
     match &inst.accuracy {
         Some(Accuracy::Relative { fraction, counts }) => {
             let c = if *counts > 0.0 {
@@ -210,23 +218,34 @@ pub fn accuracy_limit(inst: &Instrument, x: f64, unit: Unit) -> f64 {
 
 impl BlockInputs {
     /// Builds the inputs of a block for a network's `spec`.
-    pub fn build(ctx: &Context, block: &ReadingsBlock, spec: &Spec) -> Result<BlockInputs, Vec<Diagnostic>> {
+    pub fn build(
+        ctx: &Context,
+        block: &ReadingsBlock,
+        spec: &Spec,
+    ) -> Result<BlockInputs, Vec<Diagnostic>> {
         let mut diags = Vec::new();
-        let missing: Vec<&str> = spec.required.iter().copied().filter(|s| block.col(s).is_none()).collect();
+        let missing: Vec<&str> = spec
+            .required
+            .iter()
+            .copied()
+            .filter(|s| block.col(s).is_none())
+            .collect();
         if !missing.is_empty() {
             diags.push(
-                Diagnostic::new(block.span, format!("network {} needs columns {}", spec.network, spec.required.join(", ")))
-                    .expected(spec.required.join(", "))
-                    .found(format!("no column {}", missing.join(", "))),
+                Diagnostic::new(
+                    block.span,
+                    format!(
+                        "network {} needs columns {}",
+                        spec.network,
+                        spec.required.join(", ")
+                    ),
+                )
+                .expected(spec.required.join(", "))
+                .found(format!("no column {}", missing.join(", "))),
             );
         }
         if block.rows.is_empty() {
             diags.push(Diagnostic::new(block.span, "readings block has no rows"));
-        }
-        for c in &block.columns {
-            if c.symbol != "f" && !spec.required.contains(&c.symbol.as_str()) && !spec.optional.contains(&c.symbol.as_str()) {
-                // Reported as a flag below, not an error.
-            }
         }
         let groups = match groups(block) {
             Ok(g) => g,
@@ -236,14 +255,26 @@ impl BlockInputs {
             }
         };
         // Every used cell must exist and be finite.
-        let used: Vec<&str> = spec.required.iter().chain(spec.optional.iter()).copied().collect();
+        let used: Vec<&str> = spec
+            .required
+            .iter()
+            .chain(spec.optional.iter())
+            .copied()
+            .collect();
         for row in &block.rows {
             for s in &used {
                 if let Some(ci) = block.col(s) {
                     match row.cells.get(ci) {
-                        None => diags.push(Diagnostic::new(row.span, format!("row has no value in column {s}"))),
+                        None => diags.push(Diagnostic::new(
+                            row.span,
+                            format!("row has no value in column {s}"),
+                        )),
                         Some(c) if !c.value.is_finite() => diags.push(
-                            Diagnostic::new(c.span, format!("value in column {s} is not a finite number")).found(c.text.clone()),
+                            Diagnostic::new(
+                                c.span,
+                                format!("value in column {s} is not a finite number"),
+                            )
+                            .found(c.text.clone()),
                         ),
                         _ => {}
                     }
@@ -252,7 +283,10 @@ impl BlockInputs {
         }
         // Instruments named in the header must exist.
         let mut insts: Vec<(&Named, &Instrument)> = Vec::new();
-        for n in [&block.meter, &block.phase, &block.counter].into_iter().flatten() {
+        for n in [&block.meter, &block.phase, &block.counter]
+            .into_iter()
+            .flatten()
+        {
             match ctx.instruments.get(&n.name) {
                 Some(i) => {
                     if !insts.iter().any(|(m, _)| m.name == n.name) {
@@ -312,7 +346,9 @@ impl BlockInputs {
                 let Some(bw) = i.bandwidth else { continue };
                 let serves = block.columns.iter().any(|c| {
                     (c.symbol == "f" || used.contains(&c.symbol.as_str()))
-                        && instrument_slot(block, &c.symbol).map(|m| m.name == n.name).unwrap_or(false)
+                        && instrument_slot(block, &c.symbol)
+                            .map(|m| m.name == n.name)
+                            .unwrap_or(false)
                 });
                 if !serves {
                     continue;
@@ -344,11 +380,14 @@ impl BlockInputs {
                 continue;
             }
             let Some(ci) = block.col(s) else { continue };
-            let inst = instrument_slot(block, s).and_then(|n| ctx.instruments.get(&n.name).map(|i| (n.name.as_str(), i)));
+            let inst = instrument_slot(block, s)
+                .and_then(|n| ctx.instruments.get(&n.name).map(|i| (n.name.as_str(), i)));
             if inst.is_none() {
                 bi.flags.push(Flag {
                     span: Some(c.span),
-                    message: format!("no instrument for column {s}: its Type B uncertainty is not included"),
+                    message: format!(
+                        "no instrument for column {s}: its Type B uncertainty is not included"
+                    ),
                 });
             }
             // Gain shared by the whole column.
@@ -356,12 +395,10 @@ impl BlockInputs {
             let mut count_offset: Option<(f64, Dist, &str)> = None; // (u, dist, label)
             let mut read_offset: Option<f64> = None;
             if let Some((iname, i)) = inst {
-                let res = i.resolution.filter(|r| unit_ok(r, c.unit)).map(|r| r.value.abs());
-                if let Some(r) = &i.resolution {
-                    if !unit_ok(r, c.unit) && i.accuracy.is_some() {
-                        // A meter's resolution in another unit says nothing of this column.
-                    }
-                }
+                let res = i
+                    .resolution
+                    .filter(|r| unit_ok(r, c.unit))
+                    .map(|r| r.value.abs());
                 match &i.accuracy {
                     Some(Accuracy::Relative { fraction, counts }) => {
                         if *fraction != 0.0 {
@@ -385,12 +422,20 @@ impl BlockInputs {
                                 }),
                             }
                         } else if let Some(r) = res {
-                            count_offset = Some((type_b(r / 2.0, crate::notebook::Distribution::Rectangular), Dist::Rectangular, "res"));
+                            count_offset = Some((
+                                type_b(r / 2.0, crate::notebook::Distribution::Rectangular),
+                                Dist::Rectangular,
+                                "res",
+                            ));
                         }
                     }
                     Some(Accuracy::Absolute(q)) => {
                         if unit_ok(q, c.unit) {
-                            count_offset = Some((type_b(q.value, i.distribution), dist_of(i.distribution), "acc"));
+                            count_offset = Some((
+                                type_b(q.value, i.distribution),
+                                dist_of(i.distribution),
+                                "acc",
+                            ));
                         } else {
                             bi.flags.push(Flag {
                                 span: Some(i.span),
@@ -404,13 +449,18 @@ impl BlockInputs {
                     }
                     None => {
                         if let Some(r) = res {
-                            count_offset = Some((type_b(r / 2.0, crate::notebook::Distribution::Rectangular), Dist::Rectangular, "res"));
+                            count_offset = Some((
+                                type_b(r / 2.0, crate::notebook::Distribution::Rectangular),
+                                Dist::Rectangular,
+                                "res",
+                            ));
                         }
                     }
                 }
                 if let Some(rd) = &i.reading {
                     if unit_ok(rd, c.unit) {
-                        read_offset = Some(type_b(rd.value, crate::notebook::Distribution::Rectangular));
+                        read_offset =
+                            Some(type_b(rd.value, crate::notebook::Distribution::Rectangular));
                     } else if matches!(c.unit, Unit::Div) || matches!(rd.unit, Unit::Div) {
                         bi.flags.push(Flag {
                             span: Some(i.span),
@@ -427,8 +477,19 @@ impl BlockInputs {
             let mut idx_per_group = Vec::with_capacity(groups.len());
             for (gi, g) in groups.iter().enumerate() {
                 let tag = format!("{s}{}", gname(g));
-                let samples: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)).filter_map(|r| r.cells.get(ci)).map(|c| c.value).collect();
-                let mut v = Value { base: 0.0, mean: None, gain, offsets: Vec::new() };
+                let samples: Vec<f64> = g
+                    .rows
+                    .iter()
+                    .filter_map(|&r| block.rows.get(r))
+                    .filter_map(|r| r.cells.get(ci))
+                    .map(|c| c.value)
+                    .collect();
+                let mut v = Value {
+                    base: 0.0,
+                    mean: None,
+                    gain,
+                    offsets: Vec::new(),
+                };
                 if s == "f" {
                     v.base = g.f.unwrap_or(0.0);
                     idx_per_group.push(None);
@@ -437,17 +498,24 @@ impl BlockInputs {
                     if samples.len() > 1 {
                         bi.inputs.push(Input::type_a(tag.clone(), mean, u, nu));
                     } else {
-                        bi.inputs.push(Input::type_b(tag.clone(), mean, 0.0, Dist::Rectangular));
+                        bi.inputs
+                            .push(Input::type_b(tag.clone(), mean, 0.0, Dist::Rectangular));
                     }
                     v.mean = Some(bi.inputs.len() - 1);
                     idx_per_group.push(Some(bi.inputs.len() - 1));
                 }
                 if let (Some((u, d, label)), Some((iname, _))) = (count_offset, inst) {
-                    bi.inputs.push(Input::type_b(format!("{label}({iname},{tag})"), 0.0, u, d));
+                    bi.inputs
+                        .push(Input::type_b(format!("{label}({iname},{tag})"), 0.0, u, d));
                     v.offsets.push(bi.inputs.len() - 1);
                 }
                 if let (Some(u), Some((iname, _))) = (read_offset, inst) {
-                    bi.inputs.push(Input::type_b(format!("read({iname},{tag})"), 0.0, u, Dist::Rectangular));
+                    bi.inputs.push(Input::type_b(
+                        format!("read({iname},{tag})"),
+                        0.0,
+                        u,
+                        Dist::Rectangular,
+                    ));
                     v.offsets.push(bi.inputs.len() - 1);
                 }
                 if s == "f" {
@@ -475,12 +543,26 @@ impl BlockInputs {
             for a in 0..measured.len() {
                 for b in a + 1..measured.len() {
                     let (sa, sb) = (measured[a], measured[b]);
-                    let (Some(ca), Some(cb)) = (block.col(sa), block.col(sb)) else { continue };
-                    let xa: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)?.cells.get(ca).map(|c| c.value)).collect();
-                    let xb: Vec<f64> = g.rows.iter().filter_map(|&r| block.rows.get(r)?.cells.get(cb).map(|c| c.value)).collect();
+                    let (Some(ca), Some(cb)) = (block.col(sa), block.col(sb)) else {
+                        continue;
+                    };
+                    let xa: Vec<f64> = g
+                        .rows
+                        .iter()
+                        .filter_map(|&r| block.rows.get(r)?.cells.get(ca).map(|c| c.value))
+                        .collect();
+                    let xb: Vec<f64> = g
+                        .rows
+                        .iter()
+                        .filter_map(|&r| block.rows.get(r)?.cells.get(cb).map(|c| c.value))
+                        .collect();
                     let r = type_a_correlation(&xa, &xb);
-                    let ia = col_inputs.get(sa).and_then(|v| v.get(gi).copied().flatten());
-                    let ib = col_inputs.get(sb).and_then(|v| v.get(gi).copied().flatten());
+                    let ia = col_inputs
+                        .get(sa)
+                        .and_then(|v| v.get(gi).copied().flatten());
+                    let ib = col_inputs
+                        .get(sb)
+                        .and_then(|v| v.get(gi).copied().flatten());
                     if let (Some(ia), Some(ib)) = (ia, ib) {
                         if r != 0.0 {
                             bi.corr.push((ia, ib, r));
@@ -492,11 +574,18 @@ impl BlockInputs {
 
         // Source level check and normalisation.
         if let (Some(level), Some(vc)) = (block.source, block.col("Vs")) {
-            let meter = block.meter.as_ref().and_then(|n| ctx.instruments.get(&n.name));
+            let meter = block
+                .meter
+                .as_ref()
+                .and_then(|n| ctx.instruments.get(&n.name));
             for (gi, g) in groups.iter().enumerate() {
                 for &r in &g.rows {
-                    let Some(cell) = block.rows.get(r).and_then(|row| row.cells.get(vc)) else { continue };
-                    let lim = meter.map(|m| accuracy_limit(m, cell.value, Unit::V)).unwrap_or(0.0);
+                    let Some(cell) = block.rows.get(r).and_then(|row| row.cells.get(vc)) else {
+                        continue;
+                    };
+                    let lim = meter
+                        .map(|m| accuracy_limit(m, cell.value, Unit::V))
+                        .unwrap_or(0.0);
                     let tol = lim.max(1e-12 * level.abs());
                     if (cell.value - level).abs() > tol {
                         bi.flags.push(Flag {
@@ -538,14 +627,20 @@ impl BlockInputs {
 
     /// Measured value of a column in a group at inputs `x` (NaN when absent).
     pub fn value(&self, symbol: &str, g: usize, x: &[f64]) -> f64 {
-        self.values.get(symbol).and_then(|v| v.get(g)).map(|v| v.eval(x)).unwrap_or(f64::NAN)
+        self.values
+            .get(symbol)
+            .and_then(|v| v.get(g))
+            .map(|v| v.eval(x))
+            .unwrap_or(f64::NAN)
     }
 
     /// A voltage, scaled by source/Vs when the group departs from the stated source level.
     pub fn voltage(&self, symbol: &str, g: usize, x: &[f64]) -> f64 {
         let v = self.value(symbol, g, x);
         match (self.source, self.normalise.get(g)) {
-            (Some(level), Some(true)) if VOLTAGES.contains(&symbol) => v * level / self.value("Vs", g, x),
+            (Some(level), Some(true)) if VOLTAGES.contains(&symbol) => {
+                v * level / self.value("Vs", g, x)
+            }
             _ => v,
         }
     }
@@ -557,12 +652,19 @@ impl BlockInputs {
 
     /// Frequency of group `g` (NaN without an `f` column).
     pub fn f(&self, g: usize, x: &[f64]) -> f64 {
-        self.freq.get(g).and_then(|v| v.as_ref()).map(|v| v.eval(x)).unwrap_or(f64::NAN)
+        self.freq
+            .get(g)
+            .and_then(|v| v.as_ref())
+            .map(|v| v.eval(x))
+            .unwrap_or(f64::NAN)
     }
 
     /// Series resistance (NaN when the spec asked for none).
     pub fn r(&self, x: &[f64]) -> f64 {
-        self.resistor.as_ref().and_then(|(i, _)| x.get(*i).copied()).unwrap_or(f64::NAN)
+        self.resistor
+            .as_ref()
+            .and_then(|(i, _)| x.get(*i).copied())
+            .unwrap_or(f64::NAN)
     }
 
     /// Values at the estimates.
@@ -571,12 +673,19 @@ impl BlockInputs {
     }
 
     pub fn model(&self) -> Model<'_> {
-        Model { inputs: &self.inputs, corr: &self.corr }
+        Model {
+            inputs: &self.inputs,
+            corr: &self.corr,
+        }
     }
 }
 
 /// The block's series resistor as one input (see the module rules).
-fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Result<(Input, String), Vec<Diagnostic>> {
+fn series_resistor(
+    ctx: &Context,
+    block: &ReadingsBlock,
+    flags: &mut Vec<Flag>,
+) -> Result<(Input, String), Vec<Diagnostic>> {
     let mut diags = Vec::new();
     let mut found = None;
     for n in &block.parts {
@@ -593,25 +702,40 @@ fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) 
     if !diags.is_empty() {
         return Err(diags);
     }
-    let Some((named, part)) = found else {
-        return Err(vec![Diagnostic::new(block.span, "this network needs a series resistor in `parts`")
-            .expected("a part of kind resistor listed in the block's `parts`")
-            .found(if block.parts.is_empty() { "no parts".to_string() } else { "no resistor".to_string() })]);
+    let Some((_, part)) = found else {
+        return Err(vec![Diagnostic::new(
+            block.span,
+            "this network needs a series resistor in `parts`",
+        )
+        .expected("a part of kind resistor listed in the block's `parts`")
+        .found(if block.parts.is_empty() {
+            "no parts".to_string()
+        } else {
+            "no resistor".to_string()
+        })]);
     };
     let name = part.name.clone();
     let (value, u, dist) = if let Some(m) = &part.measured {
         let r = m.value;
-        let by = part.measured_by.as_ref().and_then(|b| ctx.instruments.get(b).map(|i| (b, i)));
+        let by = part
+            .measured_by
+            .as_ref()
+            .and_then(|b| ctx.instruments.get(b).map(|i| (b, i)));
         match (&part.measured_by, by) {
             (Some(b), None) => {
-                return Err(vec![Diagnostic::new(part.span, format!("unknown instrument {b} for the measured value of {name}"))
-                    .expected("a name under `instruments` in the front matter")
-                    .found(b.clone())]);
+                return Err(vec![Diagnostic::new(
+                    part.span,
+                    format!("unknown instrument {b} for the measured value of {name}"),
+                )
+                .expected("a name under `instruments` in the front matter")
+                .found(b.clone())]);
             }
             (None, _) => {
                 flags.push(Flag {
                     span: Some(part.span),
-                    message: format!("measured value of {name} names no instrument (`by`): taken as exact"),
+                    message: format!(
+                        "measured value of {name} names no instrument (`by`): taken as exact"
+                    ),
                 });
                 (r, 0.0, Dist::Rectangular)
             }
@@ -620,7 +744,9 @@ fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) 
                     if ctx.date > due {
                         flags.push(Flag {
                             span: Some(part.span),
-                            message: format!("{name} was measured with {b}, whose calibration fell due on {due}"),
+                            message: format!(
+                                "{name} was measured with {b}, whose calibration fell due on {due}"
+                            ),
                         });
                     }
                 }
@@ -631,7 +757,11 @@ fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) 
                     });
                 }
                 let a = accuracy_limit(i, r, Unit::Ohm);
-                let d = if i.accuracy.is_some() { i.distribution } else { crate::notebook::Distribution::Rectangular };
+                let d = if i.accuracy.is_some() {
+                    i.distribution
+                } else {
+                    crate::notebook::Distribution::Rectangular
+                };
                 (r, type_b(a, d), dist_of(d))
             }
         }
@@ -648,15 +778,25 @@ fn series_resistor(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) 
                 0.0
             }
         };
-        (r, type_b(a, crate::notebook::Distribution::Rectangular), Dist::Rectangular)
+        (
+            r,
+            type_b(a, crate::notebook::Distribution::Rectangular),
+            Dist::Rectangular,
+        )
     } else {
-        return Err(vec![Diagnostic::new(part.span, format!("resistor {name} has neither a measured nor a nominal value"))
-            .expected("`measured` or `nominal`")]);
+        return Err(vec![Diagnostic::new(
+            part.span,
+            format!("resistor {name} has neither a measured nor a nominal value"),
+        )
+        .expected("`measured` or `nominal`")]);
     };
     if !(value.is_finite() && value > 0.0) {
-        return Err(vec![Diagnostic::new(part.span, format!("resistance of {name} must be positive")).found(format!("{value} ohm"))]);
+        return Err(vec![Diagnostic::new(
+            part.span,
+            format!("resistance of {name} must be positive"),
+        )
+        .found(format!("{value} ohm"))]);
     }
-    let _ = named;
     Ok((Input::type_b(name.clone(), value, u, dist), name))
 }
 
@@ -669,10 +809,17 @@ pub(crate) mod testutil {
     use std::collections::BTreeMap;
 
     pub fn named(n: &str) -> Named {
-        Named { name: n.into(), span: Span::default() }
+        Named {
+            name: n.into(),
+            span: Span::default(),
+        }
     }
 
-    pub fn instrument(name: &str, accuracy: Option<Accuracy>, resolution: Option<Quantity>) -> Instrument {
+    pub fn instrument(
+        name: &str,
+        accuracy: Option<Accuracy>,
+        resolution: Option<Quantity>,
+    ) -> Instrument {
         Instrument {
             name: name.into(),
             what: None,
@@ -691,7 +838,10 @@ pub(crate) mod testutil {
         Part {
             name: name.into(),
             kind: PartKind::Resistor,
-            nominal: Some(Quantity { value: nominal, unit: Unit::Ohm }),
+            nominal: Some(Quantity {
+                value: nominal,
+                unit: Unit::Ohm,
+            }),
             tolerance: tol,
             measured: None,
             measured_by: None,
@@ -707,7 +857,12 @@ pub(crate) mod testutil {
         let mut pos = 1000;
         let columns = cols
             .iter()
-            .map(|(s, u)| Column { symbol: s.to_string(), unit: *u, heading: format!("{s}/{}", u.symbol()), span: Span::default() })
+            .map(|(s, u)| Column {
+                symbol: s.to_string(),
+                unit: *u,
+                heading: format!("{s}/{}", u.symbol()),
+                span: Span::default(),
+            })
             .collect();
         let rows = rows
             .iter()
@@ -717,11 +872,18 @@ pub(crate) mod testutil {
                     .iter()
                     .map(|v| {
                         pos += 10;
-                        Cell { value: *v, text: format!("{v}"), span: Span::new(pos - 10, pos - 2) }
+                        Cell {
+                            value: *v,
+                            text: format!("{v}"),
+                            span: Span::new(pos - 10, pos - 2),
+                        }
                     })
                     .collect();
                 pos += 1;
-                Row { cells, span: Span::new(start, pos - 1) }
+                Row {
+                    cells,
+                    span: Span::new(start, pos - 1),
+                }
             })
             .collect();
         ReadingsBlock {
@@ -780,10 +942,24 @@ mod tests {
         let env = Env::new();
         let b = block(
             Network::Z,
-            &[("f", Unit::Hz), ("V", Unit::V), ("I", Unit::A), ("phi", Unit::Rad)],
-            &[vec![50.0, 1.0, 0.1, 0.2], vec![60.0, 2.0, 0.2, 0.3], vec![50.0, 1.2, 0.11, 0.25]],
+            &[
+                ("f", Unit::Hz),
+                ("V", Unit::V),
+                ("I", Unit::A),
+                ("phi", Unit::Rad),
+            ],
+            &[
+                vec![50.0, 1.0, 0.1, 0.2],
+                vec![60.0, 2.0, 0.2, 0.3],
+                vec![50.0, 1.2, 0.11, 0.25],
+            ],
         );
-        let spec = Spec { network: "Z", required: &["V", "I", "phi"], optional: &[], resistor: false };
+        let spec = Spec {
+            network: "Z",
+            required: &["V", "I", "phi"],
+            optional: &[],
+            resistor: false,
+        };
         let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
         assert_eq!(bi.groups.len(), 2);
         assert_eq!(bi.groups[0].rows, vec![0, 2]);
@@ -793,7 +969,13 @@ mod tests {
         // Two points: r = ±1 (all pairs move together here).
         assert!(bi.corr.iter().all(|c| (c.2.abs() - 1.0).abs() < 1e-12));
         // Four columns without instruments → four flags.
-        assert_eq!(bi.flags.iter().filter(|f| f.message.starts_with("no instrument")).count(), 4);
+        assert_eq!(
+            bi.flags
+                .iter()
+                .filter(|f| f.message.starts_with("no instrument"))
+                .count(),
+            4
+        );
     }
 
     // Correlated Type B (GUM 5.2, F.1.2): one gain input per (instrument, column).
@@ -804,18 +986,41 @@ mod tests {
             "dmm".into(),
             instrument(
                 "dmm",
-                Some(Accuracy::Relative { fraction: 0.005, counts: 2.0 }),
-                Some(Quantity { value: 1e-3, unit: Unit::V }),
+                Some(Accuracy::Relative {
+                    fraction: 0.005,
+                    counts: 2.0,
+                }),
+                Some(Quantity {
+                    value: 1e-3,
+                    unit: Unit::V,
+                }),
             ),
         );
-        let mut b = block(Network::RC, &[("f", Unit::Hz), ("VR", Unit::V)], &[vec![100.0, 1.0], vec![200.0, 1.5]]);
+        let mut b = block(
+            Network::RC,
+            &[("f", Unit::Hz), ("VR", Unit::V)],
+            &[vec![100.0, 1.0], vec![200.0, 1.5]],
+        );
         b.meter = Some(named("dmm"));
-        let spec = Spec { network: "RC", required: &["VR"], optional: &[], resistor: false };
+        let spec = Spec {
+            network: "RC",
+            required: &["VR"],
+            optional: &[],
+            resistor: false,
+        };
         let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
-        let gains: Vec<&Input> = bi.inputs.iter().filter(|i| i.name.starts_with("gain(")).collect();
+        let gains: Vec<&Input> = bi
+            .inputs
+            .iter()
+            .filter(|i| i.name.starts_with("gain("))
+            .collect();
         assert_eq!(gains.len(), 1);
         assert!((gains[0].u - 0.005 / 3f64.sqrt()).abs() < 1e-15);
-        let counts: Vec<&Input> = bi.inputs.iter().filter(|i| i.name.starts_with("counts(")).collect();
+        let counts: Vec<&Input> = bi
+            .inputs
+            .iter()
+            .filter(|i| i.name.starts_with("counts("))
+            .collect();
         assert_eq!(counts.len(), 2);
         assert!((counts[0].u - 2e-3 / 3f64.sqrt()).abs() < 1e-15);
         assert_eq!(fmt_hz(1000.0), "1 kHz");

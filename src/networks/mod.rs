@@ -6,6 +6,8 @@
 pub mod inputs;
 pub mod rc;
 pub mod z;
+pub mod rl;
+pub mod rlc;
 
 use crate::diag::{Diagnostic, Span};
 use crate::notebook::{Instrument, Item, Network, Notebook, Part, ReadingsBlock};
@@ -147,9 +149,7 @@ pub fn reduce_block(ctx: &Context, b: &ReadingsBlock) -> Result<BlockResult, Vec
     match b.network {
         Network::RC => rc::reduce(ctx, b),
         Network::Z => z::reduce(ctx, b),
-        Network::RL | Network::RLC => Err(vec![Diagnostic::new(
-            ctx.network_span(b),
-            format!("network {} is not reduced yet", b.network.name()),
-        )]),
+        Network::RL => rl::reduce(ctx, b),
+        Network::RLC => rlc::reduce(ctx, b),
     }
 }

@@ -380,6 +380,9 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
     let image = |p: &str| image_paths.get(p).cloned();
     let cite = |code: &str| {
         let key = code.strip_prefix('=')?.trim();
+        if let Some(t) = record.citations.get(key) {
+            return Some(t.clone());
+        }
         crate::judge::resolve_citation(&record.reduction, key).ok().map(crate::judge::cite_text)
     };
     let ctx = Context { image: &image, cite: &cite };
@@ -469,6 +472,12 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "safety": safety,
         "sign": sign,
         "digest": record.digest,
+        "source_digest": record.source_digest,
+        "derating": {
+            "resistor_power": percent(record.derating.resistor_power),
+            "capacitor_voltage": percent(record.derating.capacitor_voltage),
+            "inductor_current": percent(record.derating.inductor_current),
+        },
         "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
         "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
     });
@@ -545,7 +554,12 @@ fn readings_json(
                 block
                     .correlations
                     .iter()
-                    .map(|c| json!({ "a": symbol_json(&c.a), "b": symbol_json(&c.b), "r": format::fixed(c.r, 3) }))
+                    .map(|c| {
+                        json!({
+                            "a": symbol_json(&c.a), "b": symbol_json(&c.b), "r": format::fixed(c.r, 3),
+                            "f": c.f.map(|f| format::quantity(f, Unit::Hz)),
+                        })
+                    })
                     .collect(),
             ),
         );

@@ -228,8 +228,8 @@ pub fn value_u_k(value: f64, expanded: f64, k: f64, unit: Unit) -> String {
 pub fn interval(low: f64, high: f64, unit: Unit) -> String {
     let (div, u) = scale_for(unit, low.abs().max(high.abs()));
     let w = ((high - low) / div).abs();
-    // Enough decimals to tell the ends apart (four significant digits of the width's scale).
-    let d = decimals_for_u(w / 10.0).unwrap_or(3);
+    // Two significant digits of the width, enough to tell the ends apart.
+    let d = decimals_for_u(w).unwrap_or(3);
     join_unit(format!("[{}, {}]", fixed(low / div, d), fixed(high / div, d)), &u)
 }
 
@@ -250,7 +250,8 @@ mod tests {
 
     #[test]
     fn prefixes_are_engineering() {
-        assert_eq!(prefix_for(4.7e-7), (1e-6, "µ"));
+        assert_eq!(prefix_for(4.7e-7), (1e-9, "n"));
+        assert_eq!(prefix_for(4.7e-6).1, "µ");
         assert_eq!(prefix_for(3.3e-9).1, "n");
         assert_eq!(prefix_for(1500.0).1, "k");
         assert_eq!(prefix_for(1.0).1, "");

@@ -194,9 +194,9 @@ mod tests {
         for p in ["/etc/passwd", "/prose/1.typ", "/data.json.bak", "/x.typ"] {
             let id = file_id(p).unwrap();
             assert_eq!(w.file(id), Err(FileError::AccessDenied), "{p}");
-            assert_eq!(w.source(id), Err(FileError::AccessDenied), "{p}");
+            assert!(matches!(w.source(id), Err(FileError::AccessDenied)), "{p}");
         }
-        assert_eq!(w.source(file_id("/data.json").unwrap()), Err(FileError::NotSource));
+        assert!(matches!(w.source(file_id("/data.json").unwrap()), Err(FileError::NotSource)));
         // Every request was logged.
         assert!(w.requested().iter().any(|p| p == "/etc/passwd"));
     }

@@ -1,0 +1,476 @@
+//! Network RC: a series resistor R then the capacitor, read with a voltmeter across each.
+//!
+//! Per frequency (phasor relations of a series circuit, handbook):
+//! I = VR/R, XC = VC/I, C = 1/(ω XC) = I/(ω VC), predicted phase of the current on the source
+//! φ = atan(XC/R) = atan(VC/VR) (current leads: positive), measured phase 2π·shift/period,
+//! Kirchhoff residual Vs − √(VR² + VC²). Block C: the mean of the per-frequency C, from the
+//! same propagation so shared gains and R stay correlated.
+
+use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::{BlockResult, Context, Flag, NamedResult, PlotData};
+use crate::diag::Diagnostic;
+use crate::notebook::{Network, ReadingsBlock};
+use crate::quantity::Unit;
+use crate::uncertainty::propagate;
+use std::f64::consts::PI;
+
+pub const SPEC: Spec<'static> = Spec {
+    network: "RC",
+    required: &["f", "VR", "VC"],
+    optional: &["Vs", "shift", "period"],
+    resistor: true,
+};
+
+/// Positive readings are required of these columns.
+fn check_positive(block: &ReadingsBlock, cols: &[&str]) -> Vec<Diagnostic> {
+    let mut d = Vec::new();
+    for s in cols {
+        let Some(ci) = block.col(s) else { continue };
+        for row in &block.rows {
+            if let Some(c) = row.cells.get(ci) {
+                if !(c.value > 0.0) {
+                    let why = match *s {
+                        "VR" => "with no voltage across R no current flows and C cannot be found",
+                        "VC" => "a zero voltage across the capacitor would mean an infinite C",
+                        "period" => "a trace period must be positive",
+                        _ => "an amplitude must be positive",
+                    };
+                    d.push(
+                        Diagnostic::new(c.span, format!("{s} must be positive: {why}"))
+                            .expected(format!("{s} > 0"))
+                            .found(c.text.clone()),
+                    );
+                }
+            }
+        }
+    }
+    d
+}
+
+pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
+    let bi = BlockInputs::build(ctx, block, &SPEC)?;
+    let diags = check_positive(block, &["VR", "VC", "Vs", "period"]);
+    if !diags.is_empty() {
+        return Err(diags);
+    }
+    let mut flags: Vec<Flag> = bi.flags.clone();
+    let has_vs = bi.has("Vs");
+    let has_phase = bi.has("shift") && bi.has("period");
+    if bi.has("shift") != bi.has("period") {
+        flags.push(Flag {
+            span: Some(block.span),
+            message: "shift and period are read together: the measured phase is not computed"
+                .into(),
+        });
+    }
+    // Each voltage of a series circuit is at most the source's (|VR|, |VC| ≤ |Vs|).
+    if let (Some(vs), Some(vr), Some(vc)) = (block.col("Vs"), block.col("VR"), block.col("VC")) {
+        for row in &block.rows {
+            let (Some(s), Some(r), Some(c)) =
+                (row.cells.get(vs), row.cells.get(vr), row.cells.get(vc))
+            else {
+                continue;
+            };
+            for (cell, name) in [(r, "VR"), (c, "VC")] {
+                if cell.value > s.value {
+                    flags.push(Flag {
+                        span: Some(cell.span),
+                        message: format!(
+                            "{name} = {} V exceeds Vs = {} V, impossible in a series RC: check the readings",
+                            fmt_sig(cell.value, 6),
+                            fmt_sig(s.value, 6)
+                        ),
+                    });
+                }
+            }
+        }
+    }
+
+    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)], then block C.
+    let per = 4 + usize::from(has_phase) + usize::from(has_vs);
+    let ng = bi.groups.len();
+    let model = |x: &[f64]| -> Vec<f64> {
+        let mut y = Vec::with_capacity(ng * per + 1);
+        let r = bi.r(x);
+        let mut sum_c = 0.0;
+        for g in 0..ng {
+            let vr = bi.voltage("VR", g, x);
+            let vc = bi.voltage("VC", g, x);
+            let w = 2.0 * PI * bi.f(g, x);
+            let i = vr / r;
+            let c = i / (w * vc);
+            sum_c += c;
+            y.push(i);
+            y.push(vc / i);
+            y.push(c);
+            y.push((vc / vr).atan());
+            if has_phase {
+                y.push(2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x));
+            }
+            if has_vs {
+                y.push(bi.voltage("Vs", g, x) - vr.hypot(vc));
+            }
+        }
+        y.push(sum_c / ng as f64);
+        y
+    };
+    let p = propagate(&bi.model(), &model, ctx.coverage).map_err(|e| {
+        vec![Diagnostic::new(
+            block.span,
+            format!("block {} could not be reduced: {e}", block.id),
+        )]
+    })?;
+
+    let x0 = bi.estimates();
+    let mut rows = Vec::new();
+    let mut plot = PlotData::default();
+    let mut s_xc = Vec::new();
+    let mut s_c = Vec::new();
+    let mut s_ph = Vec::new();
+    let mut s_pm = Vec::new();
+    let mut names: Vec<(&str, Unit)> = vec![
+        ("I", Unit::A),
+        ("XC", Unit::Ohm),
+        ("C", Unit::F),
+        ("phase", Unit::Rad),
+    ];
+    if has_phase {
+        names.push(("phase_measured", Unit::Rad));
+    }
+    if has_vs {
+        names.push(("residual", Unit::V));
+    }
+    for (g, grp) in bi.groups.iter().enumerate() {
+        let f = grp.f.unwrap_or(f64::NAN);
+        for (k, (name, unit)) in names.iter().enumerate() {
+            let Some(m) = p.results.get(g * per + k) else {
+                continue;
+            };
+            let pt = (f, m.value, m.u);
+            match *name {
+                "XC" => s_xc.push(pt),
+                "C" => s_c.push(pt),
+                "phase" => s_ph.push(pt),
+                "phase_measured" => {
+                    s_pm.push(pt);
+                    if m.value < -m.expanded || m.value > PI / 2.0 + m.expanded {
+                        flags.push(Flag {
+                            span: Some(grp.span),
+                            message: format!(
+                                "measured phase at {} is {} rad, outside 0 to π/2 for a series RC: check the trace polarity",
+                                fmt_hz(f),
+                                fmt_sig(m.value, 4)
+                            ),
+                        });
+                    }
+                }
+                "residual" => {
+                    // Rounding of the square root alone is not a failed check.
+                    let vs = bi.voltage("Vs", g, &x0).abs();
+                    if m.value.abs() > m.expanded + 1e-9 * vs {
+                        flags.push(Flag {
+                            span: Some(grp.span),
+                            message: format!(
+                                "Kirchhoff check at {}: Vs − √(VR² + VC²) = {} V exceeds its expanded uncertainty {} V",
+                                fmt_hz(f),
+                                fmt_sig(m.value, 3),
+                                fmt_sig(m.expanded, 2)
+                            ),
+                        });
+                    }
+                }
+                _ => {}
+            }
+            rows.push(NamedResult {
+                name: name.to_string(),
+                f: grp.f,
+                unit: *unit,
+                m: m.clone(),
+            });
+        }
+    }
+    plot.series.push(("XC".into(), s_xc));
+    plot.series.push(("C".into(), s_c));
+    plot.series.push(("phase".into(), s_ph));
+    if has_phase {
+        plot.series.push(("phase_measured".into(), s_pm));
+    }
+    let mut results = Vec::new();
+    if let Some(m) = p.results.last() {
+        results.push(NamedResult {
+            name: "C".into(),
+            f: None,
+            unit: Unit::F,
+            m: m.clone(),
+        });
+    }
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: Network::RC,
+        rows,
+        results,
+        correlations: Vec::new(),
+        flags,
+        plot,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::inputs::testutil::*;
+    use super::*;
+    use crate::notebook::{Accuracy, Tolerance};
+    use crate::quantity::Quantity;
+    use num_complex::Complex64;
+
+    fn find<'a>(b: &'a BlockResult, name: &str, f: f64) -> &'a NamedResult {
+        b.rows
+            .iter()
+            .find(|r| r.name == name && r.f == Some(f))
+            .expect("result present")
+    }
+
+    /// Readings of an ideal series RC from complex arithmetic: I = Vs/(R + 1/(jωC)).
+    fn ideal(r: f64, c: f64, vs: f64, f: f64) -> (f64, f64, f64) {
+        let w = 2.0 * PI * f;
+        let z = Complex64::new(r, -1.0 / (w * c));
+        let i = Complex64::new(vs, 0.0) / z;
+        let vr = (i * r).norm();
+        let vc = (i * Complex64::new(0.0, -1.0 / (w * c))).norm();
+        (vr, vc, i.arg())
+    }
+
+    // Phasor arithmetic (num-complex) as the reference: C and phase come back to 1e-9.
+    #[test]
+    fn exact_readings_reduce_back() {
+        let (r, c, vs) = (2200.0, 68e-9, 1.6);
+        let freqs = [120.0, 470.0, 1300.0, 5600.0];
+        let mut data = Vec::new();
+        for &f in &freqs {
+            let (vr, vc, ph) = ideal(r, c, vs, f);
+            let period = 8.0;
+            data.push(vec![f, vs, vr, vc, ph / (2.0 * PI) * period, period]);
+        }
+        let mut env = Env::new();
+        env.parts.insert(
+            "R7".into(),
+            resistor("R7", r, Some(Tolerance::Relative(0.001))),
+        );
+        let mut b = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("Vs", Unit::V),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+                ("shift", Unit::Div),
+                ("period", Unit::Div),
+            ],
+            &data,
+        );
+        b.parts = vec![named("R7")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        for &f in &freqs {
+            let (_, _, ph) = ideal(r, c, vs, f);
+            let cm = find(&out, "C", f).m.value;
+            assert!(((cm - c) / c).abs() < 1e-9, "C at {f}: {cm}");
+            let p = find(&out, "phase", f).m.value;
+            assert!(((p - ph) / ph).abs() < 1e-9, "phase at {f}: {p} vs {ph}");
+            let pm = find(&out, "phase_measured", f).m.value;
+            assert!(((pm - ph) / ph).abs() < 1e-9);
+            assert!(find(&out, "residual", f).m.value.abs() < 1e-12);
+            assert!(find(&out, "C", f).m.u > 0.0);
+        }
+        assert!(((out.results[0].m.value - c) / c).abs() < 1e-9);
+        assert!(!out.flags.iter().any(|f| f.message.starts_with("Kirchhoff")));
+        assert_eq!(out.plot.series.len(), 4);
+    }
+
+    // The 3-4-5 series RC of the textbooks (from memory, common in electrical-technology
+    // texts): R = 30 Ω, XC = 40 Ω on 100 V: Z = 50 Ω, I = 2 A, VR = 60 V, VC = 80 V,
+    // current leads by atan(40/30) = 53.13°. At 50 Hz, C = 1/(2π·50·40) = 79.577 µF.
+    #[test]
+    fn textbook_345_triangle() {
+        let mut env = Env::new();
+        env.parts.insert("R1".into(), resistor("R1", 30.0, None));
+        let mut b = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("Vs", Unit::V),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+            ],
+            &[vec![50.0, 100.0, 60.0, 80.0]],
+        );
+        b.parts = vec![named("R1")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!((find(&out, "I", 50.0).m.value - 2.0).abs() < 1e-12);
+        assert!((find(&out, "XC", 50.0).m.value - 40.0).abs() < 1e-12);
+        assert!((find(&out, "phase", 50.0).m.value.to_degrees() - 53.13).abs() < 0.005);
+        assert!((find(&out, "C", 50.0).m.value * 1e6 - 79.577).abs() < 0.0005);
+        assert!(find(&out, "residual", 50.0).m.value.abs() < 1e-12);
+        // No instruments: flagged, and everything exact.
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("no instrument for column VR")));
+        assert_eq!(find(&out, "C", 50.0).m.u, 0.0);
+    }
+
+    // Correlated Type B (GUM 5.2, F.1.2): with a shared gain of P % on VR and VC, the block
+    // mean keeps u_rel = √2·P/√3 however many frequencies; only the per-reading quantisation
+    // (res/2, rectangular, GUM F.2.2.1) averages down. Analytic value from GUM eq. 10/13.
+    #[test]
+    fn shared_gain_does_not_average_down() {
+        let (r, c, vs, p, res) = (1500.0, 150e-9, 2.0, 0.01, 1e-3);
+        let mut prev = f64::INFINITY;
+        for &n in &[1usize, 4, 16] {
+            let mut env = Env::new();
+            env.instruments.insert(
+                "dmm".into(),
+                instrument(
+                    "dmm",
+                    Some(Accuracy::Relative {
+                        fraction: p,
+                        counts: 0.0,
+                    }),
+                    Some(Quantity {
+                        value: res,
+                        unit: Unit::V,
+                    }),
+                ),
+            );
+            env.parts.insert("R2".into(), resistor("R2", r, None));
+            let mut data = Vec::new();
+            let mut cs = Vec::new();
+            for k in 0..n {
+                let f = 200.0 * (1.0 + k as f64 * 0.37);
+                let (vr, vc, _) = ideal(r, c, vs, f);
+                data.push(vec![f, vr, vc]);
+                cs.push((vr, vc));
+            }
+            let mut b = block(
+                Network::RC,
+                &[("f", Unit::Hz), ("VR", Unit::V), ("VC", Unit::V)],
+                &data,
+            );
+            b.parts = vec![named("R2")];
+            b.meter = Some(named("dmm"));
+            let out = reduce(&env.ctx(), &b).unwrap();
+            let m = &out.results[0].m;
+            let ug = p / 3f64.sqrt();
+            let uq = res / 2.0 / 3f64.sqrt();
+            let nf = n as f64;
+            // C_k = VR_k/(R ω_k VC_k): ∂C̄/∂g = ±C̄, ∂C̄/∂VR_k = C_k/(n VR_k), ∂C̄/∂VC_k = −C_k/(n VC_k).
+            let mut var = 2.0 * (c * ug).powi(2);
+            for (vr, vc) in &cs {
+                var += (c / nf).powi(2) * ((uq / vr).powi(2) + (uq / vc).powi(2));
+            }
+            assert!(
+                (m.u - var.sqrt()).abs() / var.sqrt() < 1e-6,
+                "n={n}: {} vs {}",
+                m.u,
+                var.sqrt()
+            );
+            assert!(m.u >= c * ug * 2f64.sqrt() * (1.0 - 1e-9));
+            assert!(m.u <= prev);
+            prev = m.u;
+        }
+    }
+
+    #[test]
+    fn impossible_readings_are_diagnostics_or_flags() {
+        let mut env = Env::new();
+        env.parts.insert("R1".into(), resistor("R1", 100.0, None));
+        let mut b = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("Vs", Unit::V),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+            ],
+            &[vec![50.0, 1.0, 0.0, 0.5]],
+        );
+        b.parts = vec![named("R1")];
+        let e = reduce(&env.ctx(), &b).unwrap_err();
+        assert!(e[0].message.starts_with("VR must be positive"));
+        let mut b2 = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("Vs", Unit::V),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+            ],
+            &[vec![50.0, 1.0, 1.2, 0.5]],
+        );
+        b2.parts = vec![named("R1")];
+        let out = reduce(&env.ctx(), &b2).unwrap();
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.starts_with("VR = 1.2 V exceeds Vs")));
+        assert!(
+            out.flags.iter().any(|f| f.message.starts_with("Kirchhoff"))
+                || find(&out, "residual", 50.0).m.u == 0.0
+        );
+        for r in out.rows.iter().chain(out.results.iter()) {
+            assert!(r.m.value.is_finite() && r.m.u.is_finite());
+        }
+        // No resistor in parts.
+        let b3 = block(
+            Network::RC,
+            &[("f", Unit::Hz), ("VR", Unit::V), ("VC", Unit::V)],
+            &[vec![50.0, 1.0, 0.5]],
+        );
+        assert!(reduce(&env.ctx(), &b3).is_err());
+    }
+
+    // Source level (FORMAT.md): a row off the stated level is flagged and normalised; C is a
+    // ratio of voltages and does not change, I scales by level/Vs.
+    #[test]
+    fn source_level_normalises() {
+        let mut env = Env::new();
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.002,
+                    counts: 1.0,
+                }),
+                Some(Quantity {
+                    value: 1e-3,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        env.parts.insert(
+            "R1".into(),
+            resistor("R1", 1000.0, Some(Tolerance::Relative(0.01))),
+        );
+        let (vr, vc, _) = ideal(1000.0, 100e-9, 1.9, 1000.0);
+        let mut b = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("Vs", Unit::V),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+            ],
+            &[vec![1000.0, 1.9, vr, vc]],
+        );
+        b.parts = vec![named("R1")];
+        b.meter = Some(named("dmm"));
+        b.source = Some(2.0);
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("normalised to 2 V")));
+        assert!((find(&out, "C", 1000.0).m.value - 100e-9).abs() < 1e-18);
+        assert!((find(&out, "I", 1000.0).m.value - vr / 1000.0 * 2.0 / 1.9).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,854 @@
+//! Network RL: a series resistor R then a coil (inductance L with winding resistance), read with
+//! a voltmeter across the source (Vs), the resistor (VR) and the coil (VL).
+//!
+//! Per frequency, with I = VR/R and ω = 2πf:
+//! - three-voltmeter method (law of cosines in the voltage triangle Vs = VR + VL as phasors,
+//!   handbook): cos θ = (Vs² − VR² − VL²)/(2·VR·VL), θ the coil's phase angle;
+//!   Rac = (VL/I)·cos θ, XL = (VL/I)·sin θ, L = XL/ω, Q = XL/Rac;
+//! - DC-resistance correction with the coil's `dcr`: XL_dcr = √(VL² − (I·dcr)²)/I,
+//!   L_dcr = XL_dcr/ω (assumes the AC loss resistance equals the DC one).
+//!
+//! Block results L, L_dcr and Rac are inverse-variance weighted means over the frequencies,
+//! computed in the same propagation as the rows so shared gains and R stay correlated; their
+//! consistency is tested by the generalised χ² (row covariance included) at 95 %.
+
+use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use crate::diag::Diagnostic;
+use crate::montecarlo::{attach_validation, monte_carlo_on, relevant_inputs};
+use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::quantity::Unit;
+use crate::uncertainty::{correlation, dist_of, propagate, type_b, Dist, Input, Measured, Model};
+use nalgebra::{DMatrix, DVector};
+use statrs::distribution::{ChiSquared, ContinuousCDF};
+use std::f64::consts::PI;
+
+pub const SPEC: Spec<'static> = Spec {
+    network: "RL",
+    required: &["f", "Vs", "VR", "VL"],
+    optional: &[],
+    resistor: true,
+};
+
+/// Relative standard uncertainty above which a three-voltmeter L or Rac is flagged.
+pub const REL_U_LIMIT: f64 = 0.20;
+
+/// The three-voltmeter results at one frequency: [I, Rac, XL, L, Q] (NaN when the voltage
+/// triangle does not close, |cos θ| > 1).
+pub fn three_voltmeter(vs: f64, vr: f64, vl: f64, r: f64, f: f64) -> [f64; 5] {
+    let i = vr / r;
+    let c = cos_theta(vs, vr, vl);
+    let s = (1.0 - c * c).sqrt();
+    let z = vl / i;
+    let (rac, xl) = (z * c, z * s);
+    [i, rac, xl, xl / (2.0 * PI * f), xl / rac]
+}
+
+/// cos θ of the coil from the law of cosines: Vs² = VR² + VL² + 2·VR·VL·cos θ.
+pub fn cos_theta(vs: f64, vr: f64, vl: f64) -> f64 {
+    (vs * vs - vr * vr - vl * vl) / (2.0 * vr * vl)
+}
+
+/// DC-resistance correction at one frequency: [XL_dcr, L_dcr].
+pub fn dcr_method(vr: f64, vl: f64, r: f64, dcr: f64, f: f64) -> [f64; 2] {
+    let i = vr / r;
+    let xl = (vl * vl - (i * dcr).powi(2)).sqrt() / i;
+    [xl, xl / (2.0 * PI * f)]
+}
+
+/// Consistency of n estimates with covariance `cov` (GUM-style, common practice in key
+/// comparisons): χ² = (x − x̄₁)ᵀ V⁻¹ (x − x̄₁) at the generalised least-squares mean x̄₁,
+/// ν = n − 1, Birge ratio √(χ²/ν), and whether χ² exceeds its 95 % quantile. Falls back to the
+/// diagonal of V when V is singular (`generalised` false).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Consistency {
+    pub chi2: f64,
+    pub dof: usize,
+    pub birge: f64,
+    pub chi2_95: f64,
+    pub consistent: bool,
+    pub generalised: bool,
+}
+
+pub fn consistency(x: &[f64], cov: &[Vec<f64>]) -> Option<Consistency> {
+    let n = x.len();
+    if n < 2 || cov.len() != n || cov.iter().any(|r| r.len() != n) {
+        return None;
+    }
+    let v = DMatrix::from_fn(n, n, |i, j| cov[i][j]);
+    let xv = DVector::from_column_slice(x);
+    let ones = DVector::from_element(n, 1.0);
+    let chi2_of = |solve: &dyn Fn(&DVector<f64>) -> DVector<f64>| -> Option<f64> {
+        let vi1 = solve(&ones);
+        let vix = solve(&xv);
+        let den = ones.dot(&vi1);
+        if !(den > 0.0) {
+            return None;
+        }
+        let m = ones.dot(&vix) / den;
+        let d = &xv - &ones * m;
+        let c = d.dot(&solve(&d));
+        c.is_finite().then_some(c)
+    };
+    let scale = (0..n).map(|i| cov[i][i].abs()).fold(0.0, f64::max);
+    let (chi2, generalised) = match v.clone().cholesky() {
+        Some(ch) if scale > 0.0 && (0..n).all(|i| ch.l()[(i, i)] > 1e-9 * scale.sqrt()) => {
+            (chi2_of(&|b: &DVector<f64>| ch.solve(b))?, true)
+        }
+        _ => {
+            if (0..n).any(|i| !(cov[i][i] > 0.0)) {
+                return None;
+            }
+            let diag = |b: &DVector<f64>| DVector::from_fn(n, |i, _| b[i] / cov[i][i]);
+            (chi2_of(&diag)?, false)
+        }
+    };
+    let dof = n - 1;
+    let chi2_95 = ChiSquared::new(dof as f64)
+        .map(|d| d.inverse_cdf(0.95))
+        .ok()?;
+    Some(Consistency {
+        chi2,
+        dof,
+        birge: (chi2 / dof as f64).sqrt(),
+        chi2_95,
+        consistent: chi2 <= chi2_95,
+        generalised,
+    })
+}
+
+/// Stable 64-bit seed from a block id (FNV-1a), so Monte Carlo output is reproducible.
+pub fn seed_of(id: &str, salt: u64) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in id.bytes().chain(salt.to_le_bytes()) {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    h
+}
+
+/// The coil's winding resistance as an input, if the block's inductor has a `dcr`.
+fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Option<Input> {
+    let part = block
+        .parts
+        .iter()
+        .filter_map(|n| ctx.parts.get(&n.name))
+        .find(|p| p.kind == PartKind::Inductor);
+    let Some(part) = part else {
+        flags.push(Flag {
+            span: Some(block.span),
+            message: "no inductor in `parts`: the DC-resistance correction (XL_dcr, L_dcr) is not computed".into(),
+        });
+        return None;
+    };
+    let Some(dcr) = part.dcr.filter(|q| q.value.is_finite() && q.value >= 0.0) else {
+        flags.push(Flag {
+            span: Some(part.span),
+            message: format!(
+                "{} has no `dcr`: the DC-resistance correction (XL_dcr, L_dcr) is not computed",
+                part.name
+            ),
+        });
+        return None;
+    };
+    let name = format!("dcr({})", part.name);
+    let inst = part
+        .dcr_by
+        .as_ref()
+        .and_then(|b| ctx.instruments.get(b).map(|i| (b, i)));
+    let u = match (&part.dcr_by, inst) {
+        (Some(_), Some((_, i))) => {
+            let a = accuracy_limit(i, dcr.value, Unit::Ohm);
+            let d = if i.accuracy.is_some() {
+                i.distribution
+            } else {
+                crate::notebook::Distribution::Rectangular
+            };
+            return Some(Input::type_b(name, dcr.value, type_b(a, d), dist_of(d)));
+        }
+        (Some(b), None) => {
+            flags.push(Flag {
+                span: Some(part.span),
+                message: format!(
+                    "unknown instrument {b} for the dcr of {}: dcr taken as exact",
+                    part.name
+                ),
+            });
+            0.0
+        }
+        (None, _) => {
+            flags.push(Flag {
+                span: Some(part.span),
+                message: format!(
+                    "dcr of {} names no instrument (`by`): taken as exact",
+                    part.name
+                ),
+            });
+            0.0
+        }
+    };
+    Some(Input::type_b(name, dcr.value, u, Dist::Rectangular))
+}
+
+fn positive(block: &ReadingsBlock) -> Vec<Diagnostic> {
+    let mut d = Vec::new();
+    for s in ["Vs", "VR", "VL"] {
+        let Some(ci) = block.col(s) else { continue };
+        for row in &block.rows {
+            if let Some(c) = row.cells.get(ci) {
+                if !(c.value > 0.0) {
+                    d.push(
+                        Diagnostic::new(
+                            c.span,
+                            format!(
+                                "{s} must be positive: an amplitude is never zero or negative here"
+                            ),
+                        )
+                        .expected(format!("{s} > 0"))
+                        .found(c.text.clone()),
+                    );
+                }
+            }
+        }
+    }
+    d
+}
+
+/// What one output of the block model is.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Out {
+    Row(usize, &'static str),
+    Block(&'static str),
+}
+
+pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
+    let bi = BlockInputs::build(ctx, block, &SPEC)?;
+    let d = positive(block);
+    if !d.is_empty() {
+        return Err(d);
+    }
+    let mut flags = bi.flags.clone();
+    let mut inputs = bi.inputs.clone();
+    let dcr_idx = dcr_input(ctx, block, &mut flags).map(|inp| {
+        inputs.push(inp);
+        inputs.len() - 1
+    });
+    let dcr_value = dcr_idx.and_then(|i| inputs.get(i)).map(|i| i.value);
+    let fail = |e: String| {
+        vec![Diagnostic::new(
+            block.span,
+            format!("block {} could not be reduced: {e}", block.id),
+        )]
+    };
+    let ng = bi.groups.len();
+    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+
+    // cos θ per frequency with its uncertainty, to decide which rows close the triangle.
+    let cos_model = |x: &[f64]| -> Vec<f64> {
+        (0..ng)
+            .map(|g| {
+                cos_theta(
+                    bi.voltage("Vs", g, x),
+                    bi.voltage("VR", g, x),
+                    bi.voltage("VL", g, x),
+                )
+            })
+            .collect()
+    };
+    let pc = propagate(
+        &Model {
+            inputs: &inputs,
+            corr: &bi.corr,
+        },
+        &cos_model,
+        ctx.coverage,
+    )
+    .map_err(fail)?;
+    let mut tri_ok = vec![false; ng];
+    let mut q_ok = vec![false; ng];
+    let mut dc_ok = vec![false; ng];
+    for (g, grp) in bi.groups.iter().enumerate() {
+        let f = grp.f.unwrap_or(f64::NAN);
+        let (c, uc) = (pc.values[g], pc.results[g].expanded);
+        if c.abs() > 1.0 {
+            flags.push(Flag {
+                span: Some(grp.span),
+                message: format!(
+                    "at {}: the voltages do not close a triangle (cos θ = {}): the three-voltmeter results of this row are not computed",
+                    fmt_hz(f),
+                    fmt_sig(c, 4)
+                ),
+            });
+        } else if c < -uc {
+            flags.push(Flag {
+                span: Some(grp.span),
+                message: format!(
+                    "at {}: cos θ = {} is negative beyond its uncertainty (a negative coil resistance): the three-voltmeter results of this row are not computed",
+                    fmt_hz(f),
+                    fmt_sig(c, 3)
+                ),
+            });
+        } else {
+            tri_ok[g] = true;
+            q_ok[g] = c > 0.0;
+            if c <= uc {
+                flags.push(Flag {
+                    span: Some(grp.span),
+                    message: format!(
+                        "at {}: cos θ = {} is zero within its uncertainty: Rac is not resolved{}",
+                        fmt_hz(f),
+                        fmt_sig(c, 3),
+                        if q_ok[g] {
+                            ""
+                        } else {
+                            " and Q is not computed"
+                        }
+                    ),
+                });
+            }
+            if c + uc >= 1.0 {
+                flags.push(Flag {
+                    span: Some(grp.span),
+                    message: format!("at {}: cos θ is 1 within its uncertainty (XL not resolved); the linear propagation is poor here, see the Monte Carlo interval", fmt_hz(f)),
+                });
+            }
+        }
+        if let Some(dcr) = dcr_value {
+            let vr = bi.voltage("VR", g, &x0);
+            let vl = bi.voltage("VL", g, &x0);
+            let drop = vr / bi.r(&x0) * dcr;
+            if vl > drop {
+                dc_ok[g] = true;
+            } else {
+                flags.push(Flag {
+                    span: Some(grp.span),
+                    message: format!(
+                        "at {}: VL = {} V is not above the resistive drop I·dcr = {} V: XL_dcr is not computed",
+                        fmt_hz(f),
+                        fmt_sig(vl, 4),
+                        fmt_sig(drop, 4)
+                    ),
+                });
+            }
+        }
+    }
+
+    // Row outputs.
+    let mut layout: Vec<Out> = Vec::new();
+    for g in 0..ng {
+        layout.push(Out::Row(g, "I"));
+        if tri_ok[g] {
+            layout.extend([Out::Row(g, "Rac"), Out::Row(g, "XL"), Out::Row(g, "L")]);
+            if q_ok[g] {
+                layout.push(Out::Row(g, "Q"));
+            }
+        }
+        if dc_ok[g] {
+            layout.extend([Out::Row(g, "XL_dcr"), Out::Row(g, "L_dcr")]);
+        }
+    }
+    let eval_row = |x: &[f64], g: usize, name: &str| -> f64 {
+        let (vs, vr, vl) = (
+            bi.voltage("Vs", g, x),
+            bi.voltage("VR", g, x),
+            bi.voltage("VL", g, x),
+        );
+        let (r, f) = (bi.r(x), bi.f(g, x));
+        match name {
+            "I" => vr / r,
+            "Rac" => three_voltmeter(vs, vr, vl, r, f)[1],
+            "XL" => three_voltmeter(vs, vr, vl, r, f)[2],
+            "L" => three_voltmeter(vs, vr, vl, r, f)[3],
+            "Q" => three_voltmeter(vs, vr, vl, r, f)[4],
+            "XL_dcr" | "L_dcr" => {
+                let dcr = dcr_idx.and_then(|i| x.get(i).copied()).unwrap_or(f64::NAN);
+                dcr_method(vr, vl, r, dcr, f)[if name == "XL_dcr" { 0 } else { 1 }]
+            }
+            _ => f64::NAN,
+        }
+    };
+    let rows_model = |x: &[f64]| -> Vec<f64> {
+        layout
+            .iter()
+            .map(|o| match o {
+                Out::Row(g, n) => eval_row(x, *g, n),
+                Out::Block(_) => f64::NAN,
+            })
+            .collect()
+    };
+    let p1 = propagate(
+        &Model {
+            inputs: &inputs,
+            corr: &bi.corr,
+        },
+        &rows_model,
+        ctx.coverage,
+    )
+    .map_err(fail)?;
+
+    // Inverse-variance weights (fixed at the row uncertainties) for the block means.
+    let mut weights: Vec<(&'static str, Vec<(usize, f64)>)> = Vec::new();
+    for name in ["L", "L_dcr", "Rac"] {
+        let idx: Vec<usize> = layout
+            .iter()
+            .enumerate()
+            .filter(|(_, o)| matches!(o, Out::Row(_, n) if *n == name))
+            .map(|(i, _)| i)
+            .collect();
+        if idx.is_empty() {
+            continue;
+        }
+        let us: Vec<f64> = idx.iter().map(|&i| p1.results[i].u).collect();
+        let w: Vec<f64> = if us.iter().all(|u| *u > 0.0) {
+            us.iter().map(|u| 1.0 / (u * u)).collect()
+        } else {
+            vec![1.0; idx.len()] // some row exact: plain mean
+        };
+        let sw: f64 = w.iter().sum();
+        weights.push((
+            name,
+            idx.into_iter().zip(w.into_iter().map(|v| v / sw)).collect(),
+        ));
+    }
+    let nrow_out = layout.len();
+    let mut full = layout.clone();
+    for (name, _) in &weights {
+        full.push(Out::Block(name));
+    }
+    let has_rac_mean = weights.iter().any(|(n, _)| *n == "Rac");
+    if has_rac_mean && dcr_idx.is_some() {
+        full.push(Out::Block("Rac-dcr"));
+    }
+    let full_model = |x: &[f64]| -> Vec<f64> {
+        let rows = rows_model(x);
+        let mut y = rows.clone();
+        let mut rac_mean = f64::NAN;
+        for (name, w) in &weights {
+            let m: f64 = w
+                .iter()
+                .map(|(i, wi)| wi * rows.get(*i).copied().unwrap_or(f64::NAN))
+                .sum();
+            if *name == "Rac" {
+                rac_mean = m;
+            }
+            y.push(m);
+        }
+        if has_rac_mean {
+            if let Some(i) = dcr_idx {
+                y.push(rac_mean - x.get(i).copied().unwrap_or(f64::NAN));
+            }
+        }
+        y
+    };
+    let p = propagate(
+        &Model {
+            inputs: &inputs,
+            corr: &bi.corr,
+        },
+        &full_model,
+        ctx.coverage,
+    )
+    .map_err(fail)?;
+
+    // Results per row.
+    let unit_of = |n: &str| match n {
+        "I" => Unit::A,
+        "L" | "L_dcr" => Unit::H,
+        "Q" => Unit::One,
+        _ => Unit::Ohm,
+    };
+    let mut rows: Vec<NamedResult> = Vec::new();
+    let mut correlations = Vec::new();
+    for (k, o) in layout.iter().enumerate() {
+        let Out::Row(g, name) = *o else { continue };
+        rows.push(NamedResult {
+            name: name.to_string(),
+            f: bi.groups.get(g).and_then(|gr| gr.f),
+            unit: unit_of(name),
+            m: p.results[k].clone(),
+        });
+    }
+    // Monte Carlo (JCGM 101) of each row's three-voltmeter results, and §8 validation.
+    for g in (0..ng).filter(|&g| tri_ok[g]) {
+        let names: Vec<&'static str> = layout
+            .iter()
+            .filter_map(|o| match o {
+                Out::Row(gg, n) if *gg == g && ["I", "Rac", "XL", "L", "Q"].contains(n) => Some(*n),
+                _ => None,
+            })
+            .collect();
+        let mc_model = |x: &[f64]| -> Vec<f64> {
+            let (vs, vr, vl) = (
+                bi.voltage("Vs", g, x),
+                bi.voltage("VR", g, x),
+                bi.voltage("VL", g, x),
+            );
+            let y = three_voltmeter(vs, vr, vl, bi.r(x), bi.f(g, x));
+            names
+                .iter()
+                .map(|n| match *n {
+                    "I" => y[0],
+                    "Rac" => y[1],
+                    "XL" => y[2],
+                    "L" => y[3],
+                    _ => y[4],
+                })
+                .collect()
+        };
+        let outs: Vec<usize> = layout
+            .iter()
+            .enumerate()
+            .filter(|(_, o)| matches!(o, Out::Row(gg, _) if *gg == g))
+            .map(|(k, _)| k)
+            .collect();
+        let used = relevant_inputs(&p.jacobian, &outs);
+        let mc = monte_carlo_on(
+            &inputs,
+            &bi.corr,
+            &used,
+            &mc_model,
+            ctx.coverage,
+            seed_of(&block.id, g as u64),
+            None,
+        );
+        let f = bi.groups.get(g).and_then(|gr| gr.f);
+        let mut unvalidated = Vec::new();
+        for (n, interval) in names.iter().zip(mc) {
+            if let Some(r) = rows.iter_mut().find(|r| r.f == f && r.name == *n) {
+                r.m.mc = Some(interval);
+                if let Some(v) = attach_validation(&mut r.m) {
+                    if !v.validated && r.m.u > 0.0 {
+                        unvalidated.push(*n);
+                    }
+                }
+            }
+        }
+        if !unvalidated.is_empty() {
+            flags.push(Flag {
+                span: bi.groups.get(g).map(|gr| gr.span),
+                message: format!(
+                    "at {}: the GUM interval of {} differs from the Monte Carlo interval by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo interval",
+                    f.map(fmt_hz).unwrap_or_default(),
+                    unvalidated.join(", ")
+                ),
+            });
+        }
+    }
+
+    // Row checks: relative uncertainties and the better-conditioned method.
+    let get = |g: usize, n: &str| -> Option<&Measured> {
+        layout
+            .iter()
+            .position(|o| matches!(o, Out::Row(gg, nn) if *gg == g && *nn == n))
+            .and_then(|k| p.results.get(k))
+    };
+    let rel = |m: &Measured| {
+        if m.value != 0.0 {
+            m.u / m.value.abs()
+        } else {
+            f64::INFINITY
+        }
+    };
+    for (g, grp) in bi.groups.iter().enumerate() {
+        let fs = grp.f.map(fmt_hz).unwrap_or_default();
+        let mut big = Vec::new();
+        for n in ["L", "Rac"] {
+            if let Some(m) = get(g, n) {
+                if rel(m) > REL_U_LIMIT {
+                    big.push(format!("{n} ({} %)", fmt_sig(100.0 * rel(m), 2)));
+                }
+            }
+        }
+        if !big.is_empty() {
+            flags.push(Flag {
+                span: Some(grp.span),
+                message: format!(
+                    "at {fs}: three-voltmeter relative standard uncertainty above 20 %: {}",
+                    big.join(", ")
+                ),
+            });
+        }
+        if let (Some(a), Some(b)) = (get(g, "L"), get(g, "L_dcr")) {
+            let (ra, rb) = (rel(a), rel(b));
+            let better = if ra <= rb {
+                "three-voltmeter"
+            } else {
+                "DC-resistance correction"
+            };
+            flags.push(Flag {
+                span: Some(grp.span),
+                message: format!(
+                    "at {fs}: the {better} method is better conditioned (u(L)/L = {} % three-voltmeter, {} % with dcr)",
+                    fmt_sig(100.0 * ra, 2),
+                    fmt_sig(100.0 * rb, 2)
+                ),
+            });
+        }
+        if let (Some(a), Some(b)) = (get(g, "Rac"), get(g, "XL")) {
+            let (ia, ib) = (
+                layout.iter().position(|o| *o == Out::Row(g, "Rac")),
+                layout.iter().position(|o| *o == Out::Row(g, "XL")),
+            );
+            if let (Some(ia), Some(ib)) = (ia, ib) {
+                if a.u > 0.0 && b.u > 0.0 {
+                    correlations.push(Correlation {
+                        a: "Rac".into(),
+                        b: "XL".into(),
+                        r: correlation(&p, ia, ib),
+                        f: grp.f,
+                    });
+                }
+            }
+        }
+    }
+
+    // Block results and their consistency.
+    let mut results = Vec::new();
+    for (k, o) in full.iter().enumerate().skip(nrow_out) {
+        let Out::Block(name) = *o else { continue };
+        let Some(m) = p.results.get(k) else { continue };
+        if name == "Rac-dcr" {
+            let dcr = dcr_value.unwrap_or(f64::NAN);
+            let rac = m.value + dcr;
+            let verdict = if m.value.abs() <= m.expanded {
+                "equal within the expanded uncertainty".to_string()
+            } else if m.value > 0.0 {
+                "Rac is the larger, as expected of a coil's AC losses (skin and proximity effect, core loss)".to_string()
+            } else {
+                "Rac is below the DC resistance, which a coil cannot do: check R, dcr and the readings".to_string()
+            };
+            flags.push(Flag {
+                span: Some(block.span),
+                message: format!(
+                    "Rac (mean) = {} ohm against dcr = {} ohm: difference {} ± {} ohm (k = {}); {verdict}",
+                    fmt_sig(rac, 4),
+                    fmt_sig(dcr, 4),
+                    fmt_sig(m.value, 3),
+                    fmt_sig(m.expanded, 2),
+                    fmt_sig(m.k, 3)
+                ),
+            });
+            continue;
+        }
+        results.push(NamedResult {
+            name: name.to_string(),
+            f: None,
+            unit: unit_of(name),
+            m: m.clone(),
+        });
+        // χ² over the rows of this result.
+        let idx: Vec<usize> = weights
+            .iter()
+            .find(|(n, _)| *n == name)
+            .map(|(_, w)| w.iter().map(|(i, _)| *i).collect())
+            .unwrap_or_default();
+        let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
+        let cov: Vec<Vec<f64>> = idx
+            .iter()
+            .map(|&i| idx.iter().map(|&j| p.cov[i][j]).collect())
+            .collect();
+        if let Some(c) = consistency(&xs, &cov) {
+            let basis = if c.generalised {
+                "with the row covariance"
+            } else {
+                "from the row uncertainties"
+            };
+            flags.push(Flag {
+                span: Some(block.span),
+                message: if c.consistent {
+                    format!(
+                        "{name}: the {} frequencies agree (χ² = {} ≤ {} at 95 %, ν = {}, Birge ratio {}, {basis})",
+                        xs.len(), fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+                    )
+                } else {
+                    format!(
+                        "{name}: the frequencies disagree beyond their uncertainties (χ² = {} > {} at 95 %, ν = {}, Birge ratio {}, {basis}): the weighted mean hides a frequency dependence",
+                        fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+                    )
+                },
+            });
+        }
+    }
+
+    // Plot series (f, y, u).
+    let mut plot = PlotData::default();
+    for name in ["XL", "L", "L_dcr", "Rac"] {
+        let pts: Vec<(f64, f64, f64)> = rows
+            .iter()
+            .filter(|r| r.name == name)
+            .filter_map(|r| r.f.map(|f| (f, r.m.value, r.m.u)))
+            .collect();
+        plot.series.push((name.to_string(), pts));
+    }
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: Network::RL,
+        rows,
+        results,
+        correlations,
+        flags,
+        plot,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::inputs::testutil::*;
+    use super::*;
+    use crate::notebook::{Accuracy, Part, Tolerance};
+    use crate::quantity::Quantity;
+    use num_complex::Complex64;
+
+    /// Readings of a series R + (Rc + jωL) from complex arithmetic.
+    fn ideal(r: f64, l: f64, rc: f64, vs: f64, f: f64) -> [f64; 4] {
+        let w = 2.0 * PI * f;
+        let zl = Complex64::new(rc, w * l);
+        let i = Complex64::new(vs, 0.0) / (zl + r);
+        [f, vs, (i * r).norm(), (i * zl).norm()]
+    }
+
+    fn coil(name: &str, dcr: Option<f64>) -> Part {
+        Part {
+            name: name.into(),
+            kind: PartKind::Inductor,
+            nominal: Some(Quantity {
+                value: 0.068,
+                unit: Unit::H,
+            }),
+            tolerance: Some(Tolerance::Relative(0.1)),
+            measured: None,
+            measured_by: None,
+            dcr: dcr.map(|v| Quantity {
+                value: v,
+                unit: Unit::Ohm,
+            }),
+            dcr_by: None,
+            rating: None,
+            span: Default::default(),
+        }
+    }
+
+    fn cols() -> Vec<(&'static str, Unit)> {
+        vec![
+            ("f", Unit::Hz),
+            ("Vs", Unit::V),
+            ("VR", Unit::V),
+            ("VL", Unit::V),
+        ]
+    }
+
+    // Law of cosines in the voltage triangle (three-voltmeter method as in electrical
+    // measurement handbooks, e.g. Golding & Widdis, from memory): a 3-4-5 style check. With
+    // VR = 3, VL = 5 and θ = 60°, Vs² = 9 + 25 + 2·15·0.5 = 49: Vs = 7, cos θ = 0.5.
+    #[test]
+    fn law_of_cosines_triangle() {
+        assert!((cos_theta(7.0, 3.0, 5.0) - 0.5).abs() < 1e-15);
+        // I = 3 V / 30 Ω = 0.1 A, |Z| = 50 Ω: Rac = 25 Ω, XL = 50·sin 60° = 43.30 Ω.
+        let [i, rac, xl, l, q] = three_voltmeter(7.0, 3.0, 5.0, 30.0, 50.0);
+        assert!((i - 0.1).abs() < 1e-15 && (rac - 25.0).abs() < 1e-12);
+        assert!((xl - 25.0 * 3f64.sqrt()).abs() < 1e-12);
+        assert!((l - xl / (100.0 * PI)).abs() < 1e-15 && (q - 3f64.sqrt()).abs() < 1e-12);
+    }
+
+    #[test]
+    fn exact_readings_reduce_back_with_uncertainties() {
+        let (r, l, rc) = (330.0, 0.0683, 27.5);
+        let freqs = [150.0, 400.0, 900.0, 2500.0];
+        let data: Vec<Vec<f64>> = freqs
+            .iter()
+            .map(|&f| ideal(r, l, rc, 1.7, f).to_vec())
+            .collect();
+        let mut env = Env::new();
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", r, Some(Tolerance::Relative(0.002))),
+        );
+        env.parts.insert("L3".into(), coil("L3", Some(rc)));
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.003,
+                    counts: 2.0,
+                }),
+                Some(Quantity {
+                    value: 1e-4,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        b.meter = Some(named("dmm"));
+        let out = reduce(&env.ctx(), &b).unwrap();
+        for &f in &freqs {
+            let get = |n: &str| {
+                out.rows
+                    .iter()
+                    .find(|x| x.name == n && x.f == Some(f))
+                    .unwrap()
+            };
+            assert!(((get("L").m.value - l) / l).abs() < 1e-9);
+            assert!(((get("Rac").m.value - rc) / rc).abs() < 1e-9);
+            assert!(((get("L_dcr").m.value - l) / l).abs() < 1e-9);
+            assert!(get("L").m.u > 0.0 && get("L").m.mc.is_some());
+        }
+        let bl = out.results.iter().find(|x| x.name == "L").unwrap();
+        assert!(((bl.m.value - l) / l).abs() < 1e-9);
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("better conditioned")));
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.starts_with("L: the 4 frequencies agree")));
+        assert_eq!(out.plot.series.len(), 4);
+        for r in out.rows.iter().chain(out.results.iter()) {
+            assert!(r.m.value.is_finite() && r.m.u.is_finite() && r.m.expanded.is_finite());
+        }
+    }
+
+    #[test]
+    fn open_triangle_is_flagged_not_nan() {
+        let mut env = Env::new();
+        env.parts.insert("R1".into(), resistor("R1", 100.0, None));
+        env.parts.insert("L1".into(), coil("L1", None));
+        // Vs > VR + VL: cos θ > 1. Vs² < VR² + VL² − 2·VR·VL·…: negative cos θ.
+        let mut b = block(
+            Network::RL,
+            &cols(),
+            &[vec![100.0, 3.0, 1.0, 1.0], vec![200.0, 1.0, 0.8, 0.8]],
+        );
+        b.parts = vec![named("R1"), named("L1")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("do not close a triangle")));
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("negative beyond")));
+        assert!(out.rows.iter().all(|r| r.name == "I"));
+        assert!(out.flags.iter().any(|f| f.message.contains("has no `dcr`")));
+        for r in &out.rows {
+            assert!(r.m.value.is_finite());
+        }
+    }
+
+    // χ² test: two equal uncorrelated estimates are consistent; two far apart are not
+    // (χ²₀.₉₅(1) = 3.841, statistical tables).
+    #[test]
+    fn consistency_test() {
+        let c = consistency(&[1.0, 1.0], &[vec![0.01, 0.0], vec![0.0, 0.01]]).unwrap();
+        assert!(c.consistent && c.chi2 < 1e-12 && (c.chi2_95 - 3.841).abs() < 1e-3);
+        let c = consistency(&[1.0, 1.5], &[vec![0.01, 0.0], vec![0.0, 0.01]]).unwrap();
+        // (0.5)²/(0.02) = 12.5
+        assert!(!c.consistent && (c.chi2 - 12.5).abs() < 1e-9);
+        // A large common component (correlation) does not hide the disagreement.
+        let c = consistency(&[1.0, 1.5], &[vec![1.01, 1.0], vec![1.0, 1.01]]).unwrap();
+        assert!(!c.consistent && c.generalised);
+    }
+}

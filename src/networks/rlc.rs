@@ -1,0 +1,854 @@
+//! Network RLC: a series R–L–C swept in frequency, read as VR (and Vs) at each f.
+//!
+//! |Y(f)| = VR/(R·Vs) is fitted with the series model
+//! |Y| = 1/√(Rt² + (ωL − 1/(ωC))²) = 1/(Rt·√(1 + Q²(x − 1/x)²)), x = f/f0,
+//! by weighted Levenberg–Marquardt in the parameters θ = (ln f0, ln Q, ln Rt): logarithms keep
+//! them positive and of similar scale, and f0, Q, Rt are nearly uncorrelated near the peak.
+//! L = Q·Rt/(2π f0), C = 1/(2π f0·Q·Rt), BW = f0/Q.
+//!
+//! Weights 1/u_i² use each point's own (unshared) uncertainty. The covariance of θ is the
+//! linear propagation of the full covariance V of the |Y| values (shared gains and R
+//! included) through the estimator: cov θ = A V Aᵀ, A = (JᵀWJ)⁻¹JᵀW. With no shared inputs
+//! this is the unscaled (JᵀWJ)⁻¹; it is not scaled by the reduced χ², which is reported beside.
+//! The derived results come from `propagate` with θ as correlated inputs, and a Monte Carlo
+//! run over the same multivariate normal θ (JCGM 101 §6.4.8).
+
+use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use crate::diag::Diagnostic;
+use crate::montecarlo::{attach_validation, monte_carlo};
+use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::quantity::Unit;
+use crate::uncertainty::{correlation, propagate, Dist, Input, Model};
+use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
+use nalgebra::{Dyn, Matrix3, OMatrix, OVector, Owned, Vector3, U3};
+use statrs::distribution::{ChiSquared, ContinuousCDF};
+use std::f64::consts::PI;
+
+pub const SPEC: Spec<'static> = Spec {
+    network: "RLC",
+    required: &["f", "VR"],
+    optional: &["Vs", "shift", "period", "phi"],
+    resistor: true,
+};
+
+/// The series-resonance admittance magnitude at f.
+pub fn admittance(f: f64, f0: f64, q: f64, rt: f64) -> f64 {
+    let x = f / f0;
+    let g = x - 1.0 / x;
+    1.0 / (rt * (1.0 + q * q * g * g).sqrt())
+}
+
+/// [f0, Q, BW, L, C, Rt] from θ = (ln f0, ln Q, ln Rt).
+pub fn derived(theta: &[f64]) -> Vec<f64> {
+    let (f0, q, rt) = (
+        theta.first().copied().unwrap_or(f64::NAN).exp(),
+        theta.get(1).copied().unwrap_or(f64::NAN).exp(),
+        theta.get(2).copied().unwrap_or(f64::NAN).exp(),
+    );
+    let w0 = 2.0 * PI * f0;
+    vec![f0, q, f0 / q, q * rt / w0, 1.0 / (w0 * q * rt), rt]
+}
+
+/// Names and units of [`derived`].
+pub const DERIVED: [(&str, Unit); 6] = [
+    ("f0", Unit::Hz),
+    ("Q", Unit::One),
+    ("BW", Unit::Hz),
+    ("L", Unit::H),
+    ("C", Unit::F),
+    ("Rtotal", Unit::Ohm),
+];
+
+/// Points read off the data (f sorted ascending).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct ReadOff {
+    /// Index of the largest |Y|.
+    pub imax: usize,
+    /// Peak by the parabola through the three top points in (ln f, |Y|): (f, |Y|).
+    pub peak: Option<(f64, f64)>,
+    /// Half-power points: linear interpolation of |Y| at peak/√2 between the readings around it,
+    /// with the index of the lower reading of the interval.
+    pub low: Option<(f64, usize)>,
+    pub high: Option<(f64, usize)>,
+}
+
+/// Why a sweep could not be fitted.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FitError {
+    TooFewPoints(usize),
+    /// The largest |Y| is at an end of the sweep (monotonic or cut short).
+    NoPeak {
+        at_low_end: bool,
+    },
+    NotConverged(String),
+    Singular,
+}
+
+impl std::fmt::Display for FitError {
+    fn fmt(&self, fm: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            FitError::TooFewPoints(n) => write!(fm, "{n} distinct frequencies: the fit needs at least 4"),
+            FitError::NoPeak { at_low_end } => write!(
+                fm,
+                "the sweep shows no resonance peak: |Y| is largest at the {} frequency (monotonic or cut short), so f0, Q and the half-power points cannot be found",
+                if *at_low_end { "lowest" } else { "highest" }
+            ),
+            FitError::NotConverged(why) => write!(fm, "the fit did not converge ({why})"),
+            FitError::Singular => write!(fm, "the fit is singular: the sweep does not determine f0, Q and Rt"),
+        }
+    }
+}
+
+/// Parabola vertex through (x_k, y_k), k = 0..3; None when not a maximum.
+fn vertex(x: [f64; 3], y: [f64; 3]) -> Option<(f64, f64)> {
+    let (d1, d2) = (x[1] - x[0], x[2] - x[1]);
+    let s1 = (y[1] - y[0]) / d1;
+    let s2 = (y[2] - y[1]) / d2;
+    let a = (s2 - s1) / (x[2] - x[0]);
+    if !(a < 0.0) {
+        return None;
+    }
+    let b = s1 - a * (x[0] + x[1]);
+    let xv = -b / (2.0 * a);
+    let yv = y[1] + b * (xv - x[1]) + a * (xv * xv - x[1] * x[1]);
+    (xv.is_finite() && yv.is_finite()).then_some((xv, yv))
+}
+
+/// Reads the peak and the half-power points off a sweep sorted by f.
+pub fn read_off(f: &[f64], y: &[f64]) -> ReadOff {
+    let n = f.len().min(y.len());
+    let mut imax = 0;
+    for i in 0..n {
+        if y[i] > y[imax] {
+            imax = i;
+        }
+    }
+    let peak = if imax > 0 && imax + 1 < n {
+        vertex(
+            [f[imax - 1].ln(), f[imax].ln(), f[imax + 1].ln()],
+            [y[imax - 1], y[imax], y[imax + 1]],
+        )
+        .map(|(lx, yv)| (lx.exp(), yv.max(y[imax])))
+    } else {
+        None
+    };
+    let top = peak
+        .map(|p| p.1)
+        .unwrap_or_else(|| y.get(imax).copied().unwrap_or(0.0));
+    let level = top / 2f64.sqrt();
+    let cross =
+        |i: usize, j: usize| -> f64 { f[i] + (f[j] - f[i]) * (level - y[i]) / (y[j] - y[i]) };
+    let mut low = None;
+    for i in (0..imax).rev() {
+        if y[i] <= level && y[i + 1] > level {
+            low = Some((cross(i, i + 1), i));
+            break;
+        }
+    }
+    let mut high = None;
+    for i in imax..n.saturating_sub(1) {
+        if y[i] > level && y[i + 1] <= level {
+            high = Some((cross(i, i + 1), i));
+            break;
+        }
+    }
+    ReadOff {
+        imax,
+        peak,
+        low,
+        high,
+    }
+}
+
+/// A converged fit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ResonanceFit {
+    /// θ = (ln f0, ln Q, ln Rt).
+    pub theta: [f64; 3],
+    /// (JᵀWJ)⁻¹, unscaled.
+    pub cov_theta: [[f64; 3]; 3],
+    /// ∂θ/∂y_i for each point (the rows of Aᵀ).
+    pub gain: Vec<[f64; 3]>,
+    pub chi2: f64,
+    pub dof: usize,
+    /// y_i − model_i.
+    pub residuals: Vec<f64>,
+    pub evaluations: usize,
+}
+
+impl ResonanceFit {
+    pub fn f0(&self) -> f64 {
+        self.theta[0].exp()
+    }
+    pub fn q(&self) -> f64 {
+        self.theta[1].exp()
+    }
+    pub fn rt(&self) -> f64 {
+        self.theta[2].exp()
+    }
+    pub fn reduced_chi2(&self) -> f64 {
+        if self.dof > 0 {
+            self.chi2 / self.dof as f64
+        } else {
+            f64::NAN
+        }
+    }
+    /// cov θ = A V Aᵀ for a data covariance V (n × n).
+    pub fn cov_with(&self, v: &[Vec<f64>]) -> [[f64; 3]; 3] {
+        let mut c = [[0.0; 3]; 3];
+        for (i, gi) in self.gain.iter().enumerate() {
+            for (j, gj) in self.gain.iter().enumerate() {
+                let vij = v.get(i).and_then(|r| r.get(j)).copied().unwrap_or(0.0);
+                if vij == 0.0 {
+                    continue;
+                }
+                for a in 0..3 {
+                    for b in 0..3 {
+                        c[a][b] += gi[a] * vij * gj[b];
+                    }
+                }
+            }
+        }
+        c
+    }
+}
+
+struct Problem<'a> {
+    f: &'a [f64],
+    y: &'a [f64],
+    u: &'a [f64],
+    p: Vector3<f64>,
+}
+
+impl Problem<'_> {
+    /// Model value and its gradient in θ at point i.
+    fn point(&self, i: usize) -> (f64, [f64; 3]) {
+        let (f0, q, rt) = (self.p[0].exp(), self.p[1].exp(), self.p[2].exp());
+        let x = self.f[i] / f0;
+        let g = x - 1.0 / x;
+        let d = 1.0 + q * q * g * g;
+        let y = 1.0 / (rt * d.sqrt());
+        (
+            y,
+            [
+                y * q * q * g * (x + 1.0 / x) / d,
+                -y * q * q * g * g / d,
+                -y,
+            ],
+        )
+    }
+}
+
+impl LeastSquaresProblem<f64, Dyn, U3> for Problem<'_> {
+    type ResidualStorage = Owned<f64, Dyn>;
+    type JacobianStorage = Owned<f64, Dyn, U3>;
+    type ParameterStorage = Owned<f64, U3>;
+
+    fn set_params(&mut self, x: &Vector3<f64>) {
+        self.p = *x;
+    }
+    fn params(&self) -> Vector3<f64> {
+        self.p
+    }
+    fn residuals(&self) -> Option<OVector<f64, Dyn>> {
+        let n = self.f.len();
+        let r = OVector::<f64, Dyn>::from_iterator(
+            n,
+            (0..n).map(|i| (self.point(i).0 - self.y[i]) / self.u[i]),
+        );
+        r.iter().all(|v| v.is_finite()).then_some(r)
+    }
+    fn jacobian(&self) -> Option<OMatrix<f64, Dyn, U3>> {
+        let n = self.f.len();
+        let mut j = OMatrix::<f64, Dyn, U3>::zeros(n);
+        for i in 0..n {
+            let (_, d) = self.point(i);
+            for k in 0..3 {
+                j[(i, k)] = d[k] / self.u[i];
+            }
+        }
+        j.iter().all(|v| v.is_finite()).then_some(j)
+    }
+}
+
+/// Starting values (ln f0, ln Q, ln Rt) from the data alone: the parabola peak, and Q from
+/// the half-power bandwidth, from one half-power point, or from the points' drop below the peak.
+pub fn start(f: &[f64], y: &[f64]) -> Result<[f64; 3], FitError> {
+    let ro = read_off(f, y);
+    let n = f.len();
+    if ro.imax == 0 || ro.imax + 1 >= n {
+        return Err(FitError::NoPeak {
+            at_low_end: ro.imax == 0,
+        });
+    }
+    let (f0, top) = ro.peak.unwrap_or((f[ro.imax], y[ro.imax]));
+    let q = match (ro.low, ro.high) {
+        (Some((a, _)), Some((b, _))) if b > a => f0 / (b - a),
+        (Some((a, _)), None) if f0 > a => f0 / (2.0 * (f0 - a)),
+        (None, Some((b, _))) if b > f0 => f0 / (2.0 * (b - f0)),
+        _ => {
+            // (top/y)² = 1 + Q²(x − 1/x)² for each point clearly below the peak; take the median.
+            let mut qs: Vec<f64> = (0..n)
+                .filter(|&i| y[i] < 0.95 * top && y[i] > 0.0)
+                .filter_map(|i| {
+                    let x = f[i] / f0;
+                    let g = (x - 1.0 / x).abs();
+                    let v = ((top / y[i]).powi(2) - 1.0).sqrt() / g;
+                    (v.is_finite() && v > 0.0).then_some(v)
+                })
+                .collect();
+            qs.sort_by(f64::total_cmp);
+            qs.get(qs.len() / 2).copied().unwrap_or(1.0)
+        }
+    };
+    let t = [f0.ln(), q.ln(), (1.0 / top).ln()];
+    if t.iter().all(|v| v.is_finite()) {
+        Ok(t)
+    } else {
+        Err(FitError::Singular)
+    }
+}
+
+/// Weighted least-squares fit of the series model to (f, |Y|, u) sorted by f.
+pub fn fit_resonance(f: &[f64], y: &[f64], u: &[f64]) -> Result<ResonanceFit, FitError> {
+    let n = f.len();
+    if n < 4 || y.len() != n || u.len() != n {
+        return Err(FitError::TooFewPoints(n));
+    }
+    if f.iter()
+        .chain(y)
+        .chain(u)
+        .any(|v| !(v.is_finite() && *v > 0.0))
+    {
+        return Err(FitError::Singular);
+    }
+    let t0 = start(f, y)?;
+    let prob = Problem {
+        f,
+        y,
+        u,
+        p: Vector3::from(t0),
+    };
+    let (prob, report) = LevenbergMarquardt::new().with_patience(200).minimize(prob);
+    if !report.termination.was_successful() {
+        return Err(FitError::NotConverged(format!("{:?}", report.termination)));
+    }
+    let theta = [prob.p[0], prob.p[1], prob.p[2]];
+    let fmin = f.iter().copied().fold(f64::INFINITY, f64::min);
+    let fmax = f.iter().copied().fold(0.0, f64::max);
+    // A resonance found far outside the sweep is an extrapolation, not a fit.
+    if !(theta[0].exp() > fmin / 10.0 && theta[0].exp() < fmax * 10.0)
+        || theta.iter().any(|v| !v.is_finite())
+    {
+        return Err(FitError::NotConverged("f0 left the swept range".into()));
+    }
+    let jac = prob.jacobian().ok_or(FitError::Singular)?;
+    let h: Matrix3<f64> = jac.transpose() * &jac;
+    let hinv = h.try_inverse().ok_or(FitError::Singular)?;
+    if hinv.iter().any(|v| !v.is_finite()) || (0..3).any(|k| !(hinv[(k, k)] > 0.0)) {
+        return Err(FitError::Singular);
+    }
+    let gain: Vec<[f64; 3]> = (0..n)
+        .map(|i| {
+            let row = Vector3::new(jac[(i, 0)], jac[(i, 1)], jac[(i, 2)]) / u[i];
+            let g = hinv * row;
+            [g[0], g[1], g[2]]
+        })
+        .collect();
+    let residuals: Vec<f64> = (0..n).map(|i| y[i] - prob.point(i).0).collect();
+    let chi2 = residuals.iter().zip(u).map(|(r, s)| (r / s).powi(2)).sum();
+    let mut cov_theta = [[0.0; 3]; 3];
+    for a in 0..3 {
+        for b in 0..3 {
+            cov_theta[a][b] = hinv[(a, b)];
+        }
+    }
+    Ok(ResonanceFit {
+        theta,
+        cov_theta,
+        gain,
+        chi2,
+        dof: n - 3,
+        residuals,
+        evaluations: report.number_of_evaluations,
+    })
+}
+
+/// Interpolated zero crossing of a phase sweep (f sorted): the first sign change, linear in f.
+pub fn zero_crossing(f: &[f64], phase: &[f64]) -> Option<(f64, usize)> {
+    let n = f.len().min(phase.len());
+    (0..n.saturating_sub(1)).find_map(|i| {
+        let (a, b) = (phase[i], phase[i + 1]);
+        if a == 0.0 {
+            return Some((f[i], i));
+        }
+        (a * b < 0.0).then(|| (f[i] + (f[i + 1] - f[i]) * a / (a - b), i))
+    })
+}
+
+fn part_value(
+    ctx: &Context,
+    block: &ReadingsBlock,
+    kind: PartKind,
+) -> Option<(String, f64, Option<f64>)> {
+    block
+        .parts
+        .iter()
+        .filter_map(|n| ctx.parts.get(&n.name))
+        .find(|p| p.kind == kind)
+        .and_then(|p| {
+            let v = p.measured.or(p.nominal)?.value;
+            Some((p.name.clone(), v, p.dcr.map(|d| d.value)))
+        })
+}
+
+pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
+    let bi = BlockInputs::build(ctx, block, &SPEC)?;
+    let mut diags = Vec::new();
+    for s in ["VR", "Vs", "period"] {
+        let Some(ci) = block.col(s) else { continue };
+        for row in &block.rows {
+            if let Some(c) = row.cells.get(ci) {
+                if !(c.value > 0.0) {
+                    diags.push(
+                        Diagnostic::new(c.span, format!("{s} must be positive"))
+                            .expected(format!("{s} > 0"))
+                            .found(c.text.clone()),
+                    );
+                }
+            }
+        }
+    }
+    let has_vs = bi.has("Vs");
+    if !has_vs && block.source.is_none() {
+        diags.push(
+            Diagnostic::new(
+                block.span,
+                "network RLC needs the source level: a Vs column or `source` in the header",
+            )
+            .expected("a column Vs or a header line like `source: 2 V`")
+            .found("neither"),
+        );
+    }
+    if !diags.is_empty() {
+        return Err(diags);
+    }
+    let mut flags = bi.flags.clone();
+    if !has_vs {
+        flags.push(Flag {
+            span: Some(block.span),
+            message: "no Vs column: |Y| uses the stated source level, taken as exact".into(),
+        });
+    }
+    let level = block.source.unwrap_or(f64::NAN);
+    let fail = |e: String| {
+        vec![Diagnostic::new(
+            block.span,
+            format!("block {} could not be reduced: {e}", block.id),
+        )]
+    };
+    let ng = bi.groups.len();
+    // Groups in order of frequency.
+    let mut order: Vec<usize> = (0..ng).collect();
+    order.sort_by(|&a, &b| {
+        let fa = bi.groups[a].f.unwrap_or(0.0);
+        let fb = bi.groups[b].f.unwrap_or(0.0);
+        fa.total_cmp(&fb)
+    });
+    let fs: Vec<f64> = order
+        .iter()
+        .map(|&g| bi.groups[g].f.unwrap_or(f64::NAN))
+        .collect();
+    let y_of = |x: &[f64], g: usize| -> f64 {
+        let vs = if has_vs {
+            bi.voltage("Vs", g, x)
+        } else {
+            level
+        };
+        bi.voltage("VR", g, x) / (bi.r(x) * vs)
+    };
+    let ys_model = |x: &[f64]| -> Vec<f64> { order.iter().map(|&g| y_of(x, g)).collect() };
+    let model = bi.model();
+    let py = propagate(&model, &ys_model, ctx.coverage).map_err(fail)?;
+    let ys = py.values.clone();
+    let u_tot: Vec<f64> = py.results.iter().map(|m| m.u).collect();
+
+    // Per-frequency current.
+    let mut rows = Vec::new();
+    let i_model = |x: &[f64]| -> Vec<f64> {
+        order
+            .iter()
+            .map(|&g| bi.voltage("VR", g, x) / bi.r(x))
+            .collect()
+    };
+    let pi = propagate(&model, &i_model, ctx.coverage).map_err(fail)?;
+    for (k, m) in pi.results.iter().enumerate() {
+        rows.push(NamedResult {
+            name: "I".into(),
+            f: Some(fs[k]),
+            unit: Unit::A,
+            m: m.clone(),
+        });
+    }
+
+    // Weights from each point's own inputs (those no other point depends on).
+    let n_in = bi.inputs.len();
+    let mut u_w = vec![0.0; ng];
+    for i in 0..n_in {
+        let users: Vec<usize> = (0..ng).filter(|&k| py.jacobian[k][i] != 0.0).collect();
+        if let [k] = users[..] {
+            u_w[k] += (py.jacobian[k][i] * bi.inputs[i].u).powi(2);
+        }
+    }
+    let mut weights_note = "each point's own (unshared) uncertainty";
+    for k in 0..ng {
+        u_w[k] = u_w[k].sqrt();
+        if !(u_w[k] > 0.0) {
+            u_w[k] = u_tot[k];
+        }
+    }
+    if u_w.iter().any(|u| !(*u > 0.0)) {
+        weights_note = "equal relative weights (the readings carry no per-point uncertainty)";
+        for k in 0..ng {
+            u_w[k] = 1e-3 * ys[k].abs().max(f64::MIN_POSITIVE);
+        }
+    }
+
+    let mut plot = PlotData::default();
+    plot.series.push((
+        "Y".into(),
+        (0..ng).map(|k| (fs[k], ys[k], u_tot[k])).collect(),
+    ));
+    let mut results = Vec::new();
+    let mut correlations = Vec::new();
+
+    // Read-offs from the data, with uncertainty from the readings (indices fixed at the estimates).
+    let ro = read_off(&fs, &ys);
+    let ro_model = |x: &[f64]| -> Vec<f64> {
+        let y = ys_model(x);
+        let mut out = Vec::new();
+        let im = ro.imax;
+        if ro.peak.is_some() {
+            let v = vertex(
+                [fs[im - 1].ln(), fs[im].ln(), fs[im + 1].ln()],
+                [y[im - 1], y[im], y[im + 1]],
+            );
+            out.push(v.map(|p| p.0.exp()).unwrap_or(f64::NAN));
+            let top = v.map(|p| p.1.max(y[im])).unwrap_or(f64::NAN);
+            let level = top / 2f64.sqrt();
+            for side in [ro.low, ro.high].iter().flatten() {
+                let i = side.1;
+                out.push(fs[i] + (fs[i + 1] - fs[i]) * (level - y[i]) / (y[i + 1] - y[i]));
+            }
+        }
+        out
+    };
+    if ro.peak.is_some() {
+        let names: Vec<&str> = std::iter::once("f0_peak")
+            .chain(ro.low.map(|_| "f_low"))
+            .chain(ro.high.map(|_| "f_high"))
+            .collect();
+        match propagate(&model, &ro_model, ctx.coverage) {
+            Ok(p) => {
+                for (name, m) in names.iter().zip(p.results) {
+                    plot.markers
+                        .push((name.replace("f0_peak", "f0").to_string(), m.value));
+                    results.push(NamedResult {
+                        name: name.to_string(),
+                        f: None,
+                        unit: Unit::Hz,
+                        m,
+                    });
+                }
+            }
+            Err(e) => flags.push(Flag {
+                span: Some(block.span),
+                message: format!("the read-off points have no uncertainty: {e}"),
+            }),
+        }
+        for (side, name) in [(ro.low, "lower"), (ro.high, "upper")] {
+            if side.is_none() {
+                flags.push(Flag {
+                    span: Some(block.span),
+                    message: format!("the sweep does not reach the {name} half-power point: it is not read off the data"),
+                });
+            }
+        }
+    }
+
+    // The fit.
+    match fit_resonance(&fs, &ys, &u_w) {
+        Err(e) => flags.push(Flag {
+            span: Some(block.span),
+            message: format!("RLC fit: {e}"),
+        }),
+        Ok(fit) => {
+            let cov = fit.cov_with(&py.cov);
+            let names = ["ln f0 (fit)", "ln Q (fit)", "ln Rtotal (fit)"];
+            let theta_in: Vec<Input> = (0..3)
+                .map(|k| {
+                    Input::type_b(
+                        names[k],
+                        fit.theta[k],
+                        cov[k][k].max(0.0).sqrt(),
+                        Dist::Normal,
+                    )
+                })
+                .collect();
+            let mut corr = Vec::new();
+            for a in 0..3 {
+                for b in a + 1..3 {
+                    let d = (cov[a][a] * cov[b][b]).sqrt();
+                    if d > 0.0 {
+                        corr.push((a, b, (cov[a][b] / d).clamp(-1.0, 1.0)));
+                    }
+                }
+            }
+            let pd = propagate(
+                &Model {
+                    inputs: &theta_in,
+                    corr: &corr,
+                },
+                &derived,
+                ctx.coverage,
+            )
+            .map_err(fail)?;
+            let mc = monte_carlo(
+                &theta_in,
+                &corr,
+                &(|t: &[f64]| derived(t)),
+                ctx.coverage,
+                super::rl::seed_of(&block.id, 0x5eed),
+                None,
+            );
+            let mut unvalidated = Vec::new();
+            for (k, (name, unit)) in DERIVED.iter().enumerate() {
+                let mut m = pd.results[k].clone();
+                m.mc = mc.get(k).cloned();
+                if let Some(v) = attach_validation(&mut m) {
+                    if !v.validated && m.u > 0.0 {
+                        unvalidated.push(*name);
+                    }
+                }
+                results.push(NamedResult {
+                    name: name.to_string(),
+                    f: None,
+                    unit: *unit,
+                    m,
+                });
+            }
+            for (a, b) in [(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)] {
+                correlations.push(Correlation {
+                    a: DERIVED[a].0.into(),
+                    b: DERIVED[b].0.into(),
+                    r: correlation(&pd, a, b),
+                    f: None,
+                });
+            }
+            if !unvalidated.is_empty() {
+                flags.push(Flag {
+                    span: Some(block.span),
+                    message: format!(
+                        "the GUM intervals of {} differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo intervals",
+                        unvalidated.join(", ")
+                    ),
+                });
+            }
+            let nu = fit.dof;
+            let rc2 = fit.reduced_chi2();
+            let limit = ChiSquared::new(nu.max(1) as f64)
+                .map(|d| d.inverse_cdf(0.95) / nu.max(1) as f64)
+                .unwrap_or(f64::INFINITY);
+            flags.push(Flag {
+                span: Some(block.span),
+                message: format!(
+                    "RLC fit: χ²/ν = {} (ν = {nu}), weights from {weights_note}; the covariance is not scaled by χ²/ν{}",
+                    fmt_sig(rc2, 3),
+                    if rc2 > limit {
+                        format!(": the scatter exceeds the stated uncertainties (95 % limit {}), so the fit uncertainties may be understated by √(χ²/ν) = {}", fmt_sig(limit, 3), fmt_sig(rc2.sqrt(), 3))
+                    } else {
+                        String::new()
+                    }
+                ),
+            });
+            let (f0, q, rt) = (fit.f0(), fit.q(), fit.rt());
+            plot.markers.insert(0, ("f0".into(), f0));
+            let (lo, hi) = (
+                fs.first().copied().unwrap_or(f0),
+                fs.last().copied().unwrap_or(f0),
+            );
+            let curve: Vec<(f64, f64)> = (0..200)
+                .map(|k| {
+                    let fk = lo * (hi / lo).powf(k as f64 / 199.0);
+                    (fk, admittance(fk, f0, q, rt))
+                })
+                .collect();
+            plot.curves.push(("fit".into(), curve));
+            plot.series.push((
+                "residual".into(),
+                (0..ng)
+                    .map(|k| (fs[k], fit.residuals[k], u_tot[k]))
+                    .collect(),
+            ));
+        }
+    }
+    // Keep one marker per name, in a fixed order.
+    let mut markers = Vec::new();
+    for name in ["f0", "f_low", "f_high"] {
+        if let Some(m) = plot.markers.iter().find(|(n, _)| n == name) {
+            markers.push(m.clone());
+        }
+    }
+    plot.markers = markers;
+
+    // Phase zero crossing as a further f0 estimate.
+    let has_phi = bi.has("phi");
+    let has_shift = bi.has("shift") && bi.has("period");
+    if has_phi || has_shift {
+        let ph = |x: &[f64], g: usize| -> f64 {
+            if has_phi {
+                bi.value("phi", g, x)
+            } else {
+                2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x)
+            }
+        };
+        let x0 = bi.estimates();
+        let phases: Vec<f64> = order.iter().map(|&g| ph(&x0, g)).collect();
+        plot.series.push((
+            "phase_measured".into(),
+            (0..ng).map(|k| (fs[k], phases[k], 0.0)).collect(),
+        ));
+        match zero_crossing(&fs, &phases) {
+            Some((_, i)) => {
+                let zc = |x: &[f64]| -> Vec<f64> {
+                    let (a, b) = (ph(x, order[i]), ph(x, order[i + 1]));
+                    vec![fs[i] + (fs[i + 1] - fs[i]) * a / (a - b)]
+                };
+                match propagate(&model, &zc, ctx.coverage) {
+                    Ok(p) => {
+                        if let Some(m) = p.results.into_iter().next() {
+                            results.push(NamedResult {
+                                name: "f0_phase".into(),
+                                f: None,
+                                unit: Unit::Hz,
+                                m,
+                            });
+                        }
+                    }
+                    Err(e) => flags.push(Flag {
+                        span: Some(block.span),
+                        message: format!("phase zero crossing not computed: {e}"),
+                    }),
+                }
+            }
+            None => flags.push(Flag {
+                span: Some(block.span),
+                message:
+                    "the measured phase does not change sign over the sweep: no f0 from the phase"
+                        .into(),
+            }),
+        }
+    }
+
+    // Prediction from the parts' values.
+    if let (Some((ln, l, dcr)), Some((cn, c, _))) = (
+        part_value(ctx, block, PartKind::Inductor),
+        part_value(ctx, block, PartKind::Capacitor),
+    ) {
+        let r = bi.r(&bi.estimates()) + dcr.unwrap_or(0.0);
+        let f0p = 1.0 / (2.0 * PI * (l * c).sqrt());
+        let qp = (l / c).sqrt() / r;
+        if f0p.is_finite() && qp.is_finite() {
+            flags.push(Flag {
+                span: Some(block.span),
+                message: format!(
+                    "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {} ohm)",
+                    fmt_hz(f0p),
+                    fmt_sig(qp, 3),
+                    if dcr.is_some() { " + dcr" } else { "" },
+                    fmt_sig(r, 4)
+                ),
+            });
+        }
+    }
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: Network::RLC,
+        rows,
+        results,
+        correlations,
+        flags,
+        plot,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn sweep(f0: f64, q: f64, rt: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
+        let f: Vec<f64> = (0..n)
+            .map(|k| f0 * 0.5 * 4f64.powf(k as f64 / (n - 1) as f64))
+            .collect();
+        let y = f.iter().map(|&x| admittance(x, f0, q, rt)).collect();
+        (f, y)
+    }
+
+    // Series resonance (circuit theory): at f0 |Y| = 1/Rt; at the half-power points
+    // f0(√(1 + 1/(4Q²)) ∓ 1/(2Q)) |Y| = 1/(√2 Rt), and their difference is f0/Q.
+    #[test]
+    fn model_and_half_power_points() {
+        let (f0, q, rt) = (3170.0, 7.3, 41.0);
+        assert!((admittance(f0, f0, q, rt) - 1.0 / rt).abs() < 1e-15);
+        let s = (1.0 + 1.0 / (4.0 * q * q)).sqrt();
+        let (fl, fh) = (f0 * (s - 0.5 / q), f0 * (s + 0.5 / q));
+        for fx in [fl, fh] {
+            assert!((admittance(fx, f0, q, rt) * rt * 2f64.sqrt() - 1.0).abs() < 1e-12);
+        }
+        assert!((fh - fl - f0 / q).abs() < 1e-9);
+        // L and C from (f0, Q, Rt): ω0 L = Q Rt, 1/(ω0 C) = Q Rt.
+        let d = derived(&[f0.ln(), q.ln(), rt.ln()]);
+        assert!((1.0 / (2.0 * PI * (d[3] * d[4]).sqrt()) - f0).abs() < 1e-9);
+    }
+
+    #[test]
+    fn exact_sweep_is_recovered() {
+        let (f, y) = sweep(3170.0, 7.3, 41.0, 25);
+        let u: Vec<f64> = y.iter().map(|v| v * 1e-3).collect();
+        let fit = fit_resonance(&f, &y, &u).unwrap();
+        assert!((fit.f0() / 3170.0 - 1.0).abs() < 1e-9);
+        assert!((fit.q() / 7.3 - 1.0).abs() < 1e-9);
+        assert!((fit.rt() / 41.0 - 1.0).abs() < 1e-9);
+        assert!(fit.chi2 < 1e-12);
+    }
+
+    #[test]
+    fn monotonic_sweep_is_no_peak() {
+        let f: Vec<f64> = (1..10).map(|k| 100.0 * k as f64).collect();
+        let y: Vec<f64> = f.iter().map(|x| 1.0 / x).collect();
+        let u: Vec<f64> = y.iter().map(|v| v * 0.01).collect();
+        assert_eq!(
+            fit_resonance(&f, &y, &u).unwrap_err(),
+            FitError::NoPeak { at_low_end: true }
+        );
+        let e = FitError::NoPeak { at_low_end: true }.to_string();
+        assert!(e.contains("no resonance peak"));
+    }
+
+    #[test]
+    fn read_off_parabola_is_exact_for_a_parabola() {
+        // A parabola in ln f is recovered exactly by the three-point vertex (algebra).
+        let f: Vec<f64> = [0.5f64, 0.8, 1.1, 1.7, 2.6]
+            .iter()
+            .map(|v| 1000.0 * v)
+            .collect();
+        let y: Vec<f64> = f
+            .iter()
+            .map(|v| 3.0 - (v.ln() - 1100f64.ln()).powi(2))
+            .collect();
+        let ro = read_off(&f, &y);
+        let (fp, yp) = ro.peak.unwrap();
+        assert!((fp - 1100.0).abs() < 1e-9 && (yp - 3.0).abs() < 1e-12);
+    }
+}

@@ -1,0 +1,147 @@
+//! Network Z: a direct impedance reading of V, I and the phase φ of V on I.
+//!
+//! R = (V/I) cos φ, X = (V/I) sin φ, |Z| = V/I (GUM H.2). Repeats give Type A means with
+//! their correlations; R, X, Z and their correlations come from one propagation. With an `f`
+//! column there is one set per distinct f (per-frequency results); without, one block set.
+
+use super::inputs::{BlockInputs, Spec};
+use super::{BlockResult, Context, Correlation, NamedResult, PlotData};
+use crate::diag::Diagnostic;
+use crate::notebook::{Network, ReadingsBlock};
+use crate::quantity::Unit;
+use crate::uncertainty::{correlation, propagate};
+
+pub const SPEC: Spec<'static> = Spec {
+    network: "Z",
+    required: &["V", "I", "phi"],
+    optional: &[],
+    resistor: false,
+};
+
+pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
+    let bi = BlockInputs::build(ctx, block, &SPEC)?;
+    let mut diags = Vec::new();
+    for s in ["V", "I"] {
+        let Some(ci) = block.col(s) else { continue };
+        for row in &block.rows {
+            if let Some(c) = row.cells.get(ci) {
+                if !(c.value > 0.0) {
+                    diags.push(
+                        Diagnostic::new(
+                            c.span,
+                            format!("{s} must be positive: it is the amplitude of a sinusoid"),
+                        )
+                        .expected(format!("{s} > 0"))
+                        .found(c.text.clone()),
+                    );
+                }
+            }
+        }
+    }
+    if !diags.is_empty() {
+        return Err(diags);
+    }
+    let ng = bi.groups.len();
+    let model = |x: &[f64]| -> Vec<f64> {
+        let mut y = Vec::with_capacity(3 * ng);
+        for g in 0..ng {
+            let z = bi.voltage("V", g, x) / bi.value("I", g, x);
+            let phi = bi.value("phi", g, x);
+            y.push(z * phi.cos());
+            y.push(z * phi.sin());
+            y.push(z);
+        }
+        y
+    };
+    let p = propagate(&bi.model(), &model, ctx.coverage).map_err(|e| {
+        vec![Diagnostic::new(
+            block.span,
+            format!("block {} could not be reduced: {e}", block.id),
+        )]
+    })?;
+    let names = [("R", Unit::Ohm), ("X", Unit::Ohm), ("Z", Unit::Ohm)];
+    let mut rows = Vec::new();
+    let mut results = Vec::new();
+    let mut correlations = Vec::new();
+    let mut plot = PlotData::default();
+    let mut series: Vec<Vec<(f64, f64, f64)>> = vec![Vec::new(); 3];
+    for (g, grp) in bi.groups.iter().enumerate() {
+        for (k, (name, unit)) in names.iter().enumerate() {
+            let Some(m) = p.results.get(3 * g + k) else {
+                continue;
+            };
+            let r = NamedResult {
+                name: name.to_string(),
+                f: grp.f,
+                unit: *unit,
+                m: m.clone(),
+            };
+            match grp.f {
+                Some(f) => {
+                    if let Some(s) = series.get_mut(k) {
+                        s.push((f, m.value, m.u));
+                    }
+                    rows.push(r)
+                }
+                None => results.push(r),
+            }
+        }
+        for (a, b) in [(0usize, 1usize), (0, 2), (1, 2)] {
+            correlations.push(Correlation {
+                a: names[a].0.into(),
+                b: names[b].0.into(),
+                r: correlation(&p, 3 * g + a, 3 * g + b),
+                f: grp.f,
+            });
+        }
+    }
+    if bi.groups.iter().any(|g| g.f.is_some()) {
+        for (k, s) in series.into_iter().enumerate() {
+            plot.series.push((names[k].0.into(), s));
+        }
+    }
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: Network::Z,
+        rows,
+        results,
+        correlations,
+        flags: bi.flags,
+        plot,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::super::inputs::testutil::*;
+    use super::*;
+
+    // Single reading, exact: R = |Z| cos φ by trigonometry (handbook).
+    #[test]
+    fn single_reading_per_frequency() {
+        let env = Env::new();
+        let b = block(
+            Network::Z,
+            &[
+                ("f", Unit::Hz),
+                ("V", Unit::V),
+                ("I", Unit::A),
+                ("phi", Unit::Rad),
+            ],
+            &[vec![400.0, 1.3, 0.01, 0.5], vec![800.0, 1.3, 0.02, -0.25]],
+        );
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(out.results.is_empty());
+        assert_eq!(out.rows.len(), 6);
+        assert!((out.rows[0].m.value - 130.0 * 0.5f64.cos()).abs() < 1e-12);
+        assert!((out.rows[4].m.value - 65.0 * (-0.25f64).sin()).abs() < 1e-12);
+        assert_eq!(out.correlations.len(), 6);
+        assert_eq!(out.correlations[3].f, Some(800.0));
+        let bad = block(
+            Network::Z,
+            &[("V", Unit::V), ("I", Unit::A), ("phi", Unit::Rad)],
+            &[vec![1.0, 0.0, 0.1]],
+        );
+        assert!(reduce(&env.ctx(), &bad).is_err());
+    }
+}
