@@ -22,7 +22,11 @@ fn children_peak_mib() -> f64 {
 
 fn run(args: &[&str]) -> f64 {
     let t0 = Instant::now();
-    let st = Command::new(exe()).args(args).stdout(std::process::Stdio::null()).status().expect("run benchrec");
+    let st = Command::new(exe())
+        .args(args)
+        .stdout(std::process::Stdio::null())
+        .status()
+        .expect("run benchrec");
     let dt = t0.elapsed().as_secs_f64();
     assert!(st.success(), "benchrec {args:?} failed");
     dt
@@ -42,7 +46,11 @@ instruments:\n  meter:\n    accuracy: 0.5% + 3\n    resolution: 1 mV\nparts:\n  
     );
     for b in 0..3 {
         s.push_str(&format!("```readings\nid: blk{b}\nnetwork: RC\nparts: [R, C]\nmeter: meter\n---\nf/Hz Vs/V VR/V VC/V\n"));
-        for (f, vr, vc) in [(400.0, 0.528, 1.404), (800.0, 0.902, 1.199), (1600.0, 1.249, 0.831)] {
+        for (f, vr, vc) in [
+            (400.0, 0.528, 1.404),
+            (800.0, 0.902, 1.199),
+            (1600.0, 1.249, 0.831),
+        ] {
             let d = 0.001 * ((i + b) % 7) as f64;
             s.push_str(&format!("{f} 1.500 {:.3} {:.3}\n", vr + d, vc - d));
         }
@@ -58,7 +66,11 @@ fn main() {
     let (d, o) = (demo.to_str().unwrap(), out.to_str().unwrap());
     run(&["build", d, "-o", o]); // warm the page cache
     let times: Vec<f64> = (0..7).map(|_| run(&["build", d, "-o", o])).collect();
-    println!("demo record, cold process: median {:.3} s wall over 7 runs; peak RSS {:.0} MiB", median(times), children_peak_mib());
+    println!(
+        "demo record, cold process: median {:.3} s wall over 7 runs; peak RSS {:.0} MiB",
+        median(times),
+        children_peak_mib()
+    );
 
     let tree = tmp.path().join("tree");
     for i in 0..500 {
@@ -70,6 +82,9 @@ fn main() {
     let full = run(&["build", t]);
     println!("500 notebooks x 3 blocks, full build: {full:.2} s wall");
     let again: Vec<f64> = (0..5).map(|_| run(&["build", t])).collect();
-    println!("500 notebooks, nothing changed: median {:.3} s wall", median(again));
+    println!(
+        "500 notebooks, nothing changed: median {:.3} s wall",
+        median(again)
+    );
     println!("peak RSS of any run: {:.0} MiB", children_peak_mib());
 }

@@ -51,22 +51,33 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
     let single_file = paths.len() == 1 && paths[0].is_file();
     for p in paths {
         if p.is_dir() {
-            let walker = walkdir::WalkDir::new(p).sort_by_file_name().follow_links(false);
+            let walker = walkdir::WalkDir::new(p)
+                .sort_by_file_name()
+                .follow_links(false);
             for entry in walker {
                 let entry = match entry {
                     Ok(e) => e,
                     Err(e) => {
-                        errors.push(Failure::Io { path: p.clone(), message: e.to_string() });
+                        errors.push(Failure::Io {
+                            path: p.clone(),
+                            message: e.to_string(),
+                        });
                         continue;
                     }
                 };
                 let path = entry.path();
-                let hidden = entry.depth() > 0 && entry.file_name().to_string_lossy().starts_with('.');
-                if !entry.file_type().is_file() || hidden || path.extension().and_then(|e| e.to_str()) != Some("md") {
+                let hidden =
+                    entry.depth() > 0 && entry.file_name().to_string_lossy().starts_with('.');
+                if !entry.file_type().is_file()
+                    || hidden
+                    || path.extension().and_then(|e| e.to_str()) != Some("md")
+                {
                     continue;
                 }
                 let is_nb = std::fs::read(path)
-                    .map(|b| looks_like_notebook(&String::from_utf8_lossy(&b[..b.len().min(64 * 1024)])))
+                    .map(|b| {
+                        looks_like_notebook(&String::from_utf8_lossy(&b[..b.len().min(64 * 1024)]))
+                    })
                     .unwrap_or(false);
                 if !is_nb {
                     found.skipped.push(path.to_path_buf());
@@ -79,7 +90,10 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
                     }
                     None => pipeline::default_output(path),
                 };
-                found.jobs.push(Job { notebook: path.to_path_buf(), output });
+                found.jobs.push(Job {
+                    notebook: path.to_path_buf(),
+                    output,
+                });
             }
         } else {
             let output = match out_dir {
@@ -87,7 +101,10 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
                 Some(o) => o.join(pipeline::default_output(p).file_name().unwrap_or_default()),
                 None => pipeline::default_output(p),
             };
-            found.jobs.push(Job { notebook: p.clone(), output });
+            found.jobs.push(Job {
+                notebook: p.clone(),
+                output,
+            });
         }
     }
     (found, errors)
@@ -96,7 +113,10 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
 /// Where the cache key of an output is kept: `.benchrec/<file name>.key` beside the output.
 pub fn key_path(output: &Path) -> PathBuf {
     let dir = output.parent().unwrap_or(Path::new(""));
-    let name = output.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
+    let name = output
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
     dir.join(".benchrec").join(format!("{name}.key"))
 }
 
@@ -153,17 +173,28 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
     let t0 = std::time::Instant::now();
     let raw = match std::fs::read(&job.notebook) {
         Ok(r) => r,
-        Err(e) => return Outcome::Failed(Failure::Io { path: job.notebook.clone(), message: e.to_string() }),
+        Err(e) => {
+            return Outcome::Failed(Failure::Io {
+                path: job.notebook.clone(),
+                message: e.to_string(),
+            })
+        }
     };
     let key = build_key(&job.notebook, &raw);
     let kp = key_path(&job.output);
-    if !force && job.output.is_file() && std::fs::read_to_string(&kp).is_ok_and(|k| k.trim() == key) {
-        return Outcome::UpToDate { output: job.output.clone() };
+    if !force && job.output.is_file() && std::fs::read_to_string(&kp).is_ok_and(|k| k.trim() == key)
+    {
+        return Outcome::UpToDate {
+            output: job.output.clone(),
+        };
     }
     if let Some(parent) = job.output.parent() {
         if !parent.as_os_str().is_empty() {
             if let Err(e) = std::fs::create_dir_all(parent) {
-                return Outcome::Failed(Failure::Io { path: parent.to_path_buf(), message: e.to_string() });
+                return Outcome::Failed(Failure::Io {
+                    path: parent.to_path_buf(),
+                    message: e.to_string(),
+                });
             }
         }
     }
@@ -174,7 +205,10 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
                 let _ = std::fs::create_dir_all(d);
             }
             let _ = pipeline::write_atomic(&kp, key.as_bytes());
-            Outcome::Built { output, seconds: t0.elapsed().as_secs_f64() }
+            Outcome::Built {
+                output,
+                seconds: t0.elapsed().as_secs_f64(),
+            }
         }
         Err(f) => Outcome::Failed(f),
     }

@@ -120,7 +120,11 @@ pub fn to_json(rec: &Record) -> JsonRecord {
                 correlations: b
                     .correlations
                     .iter()
-                    .map(|c| JsonCorrelation { a: c.a.clone(), b: c.b.clone(), r: c.r })
+                    .map(|c| JsonCorrelation {
+                        a: c.a.clone(),
+                        b: c.b.clone(),
+                        r: c.r,
+                    })
                     .collect(),
                 verdicts: rec
                     .verdicts
@@ -139,7 +143,10 @@ pub fn to_json(rec: &Record) -> JsonRecord {
             }
         })
         .collect();
-    JsonRecord { record: rec.notebook.front.record.clone(), blocks }
+    JsonRecord {
+        record: rec.notebook.front.record.clone(),
+        blocks,
+    }
 }
 
 pub fn json_string(rec: &Record) -> String {
@@ -147,7 +154,9 @@ pub fn json_string(rec: &Record) -> String {
 }
 
 /// Column names of the CSV export, one row per result.
-pub const CSV_HEADER: [&str; 10] = ["record", "block", "name", "f", "value", "unit", "u", "k", "U", "verdict"];
+pub const CSV_HEADER: [&str; 10] = [
+    "record", "block", "name", "f", "value", "unit", "u", "k", "U", "verdict",
+];
 
 /// Appends one record's results to a CSV writer (SI units; `f` empty for block results,
 /// `verdict` empty where the result is not judged).

@@ -52,9 +52,17 @@ pub struct SafetyCheck {
 #[derive(Debug, Clone, PartialEq)]
 pub enum SignState {
     Unsigned,
-    Valid { by: String, on: String, digest: String },
+    Valid {
+        by: String,
+        on: String,
+        digest: String,
+    },
     /// Signed, but the readings changed since.
-    Void { by: String, on: String, recorded: String },
+    Void {
+        by: String,
+        on: String,
+        recorded: String,
+    },
 }
 
 #[derive(Debug, Clone)]
@@ -87,7 +95,11 @@ impl Default for Derating {
     /// Common practice on the bench: resistors at half their rated power, capacitors and
     /// coils at 80 % of their rated voltage or current.
     fn default() -> Self {
-        Derating { resistor_power: 0.5, capacitor_voltage: 0.8, inductor_current: 0.8 }
+        Derating {
+            resistor_power: 0.5,
+            capacitor_voltage: 0.8,
+            inductor_current: 0.8,
+        }
     }
 }
 
@@ -152,14 +164,18 @@ fn kind_for_result(name: &str) -> Option<PartKind> {
 fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<Verdict> {
     let mut out = Vec::new();
     for r in &res.results {
-        let Some(kind) = kind_for_result(&r.name) else { continue };
+        let Some(kind) = kind_for_result(&r.name) else {
+            continue;
+        };
         let part = block
             .parts
             .iter()
             .filter_map(|n| nb.front.parts.get(&n.name))
             .find(|p| p.kind == kind);
         let Some(part) = part else { continue };
-        let (Some(nominal), Some(tol)) = (part.nominal, part.tolerance.as_ref()) else { continue };
+        let (Some(nominal), Some(tol)) = (part.nominal, part.tolerance.as_ref()) else {
+            continue;
+        };
         let (low, high) = tolerance_interval(nominal.value, tol);
         out.push(Verdict {
             block: block.id.clone(),
@@ -180,14 +196,25 @@ fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<
 
 /// The value of a resistor for the safety checks: measured if given, else nominal.
 fn part_value(p: &Part) -> Option<f64> {
-    p.measured.or(p.nominal).map(|q| q.value).filter(|v| v.is_finite() && *v > 0.0)
+    p.measured
+        .or(p.nominal)
+        .map(|q| q.value)
+        .filter(|v| v.is_finite() && *v > 0.0)
 }
 
 /// Worst value of `f(row)` over a block's rows, with the row's span.
-fn worst(block: &ReadingsBlock, f: impl Fn(&dyn Fn(&str) -> Option<f64>) -> Option<f64>) -> Option<(f64, Span)> {
+fn worst(
+    block: &ReadingsBlock,
+    f: impl Fn(&dyn Fn(&str) -> Option<f64>) -> Option<f64>,
+) -> Option<(f64, Span)> {
     let mut best: Option<(f64, Span)> = None;
     for row in &block.rows {
-        let get = |sym: &str| block.col(sym).and_then(|i| row.cells.get(i)).map(|c| c.value);
+        let get = |sym: &str| {
+            block
+                .col(sym)
+                .and_then(|i| row.cells.get(i))
+                .map(|c| c.value)
+        };
         if let Some(v) = f(&get) {
             if v.is_finite() && best.map_or(true, |(b, _)| v > b) {
                 best = Some((v, row.span));
@@ -200,28 +227,35 @@ fn worst(block: &ReadingsBlock, f: impl Fn(&dyn Fn(&str) -> Option<f64>) -> Opti
 /// Computed safety checks from the readings: series resistor dissipation VR²/R, capacitor
 /// peak voltage √2·VC (or √2·I·XC from the nominal C where VC was not read), coil current.
 pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<SafetyCheck> {
-    let parts: Vec<&Part> = block.parts.iter().filter_map(|n| nb.front.parts.get(&n.name)).collect();
+    let parts: Vec<&Part> = block
+        .parts
+        .iter()
+        .filter_map(|n| nb.front.parts.get(&n.name))
+        .collect();
     let resistor = parts.iter().copied().find(|p| p.kind == PartKind::Resistor);
     let r_value = resistor.and_then(part_value);
     let current = |get: &dyn Fn(&str) -> Option<f64>| -> Option<f64> {
         get("I").or_else(|| Some(get("VR")? / r_value?))
     };
     let mut out = Vec::new();
-    let mut push = |part: &Part, what: &str, worst: Option<(f64, Span)>, unit: Unit, factor: f64| {
-        let (Some(rating), Some((value, span))) = (part.rating, worst) else { return };
-        let limit = rating.value * factor;
-        out.push(SafetyCheck {
-            block: block.id.clone(),
-            part: part.name.clone(),
-            what: what.into(),
-            value,
-            rating: rating.value,
-            limit,
-            unit,
-            ok: value <= limit,
-            span: Some(span),
-        });
-    };
+    let mut push =
+        |part: &Part, what: &str, worst: Option<(f64, Span)>, unit: Unit, factor: f64| {
+            let (Some(rating), Some((value, span))) = (part.rating, worst) else {
+                return;
+            };
+            let limit = rating.value * factor;
+            out.push(SafetyCheck {
+                block: block.id.clone(),
+                part: part.name.clone(),
+                what: what.into(),
+                value,
+                rating: rating.value,
+                limit,
+                unit,
+                ok: value <= limit,
+                span: Some(span),
+            });
+        };
     for part in &parts {
         match part.kind {
             PartKind::Resistor => {
@@ -246,7 +280,13 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                 if rating.unit == Unit::W {
                     let res = part.dcr.map(|q| q.value);
                     let w = worst(block, |g| Some(current(g)?.powi(2) * res?));
-                    push(part, "winding dissipation I²·dcr", w, Unit::W, d.inductor_current);
+                    push(
+                        part,
+                        "winding dissipation I²·dcr",
+                        w,
+                        Unit::W,
+                        d.inductor_current,
+                    );
                 } else {
                     let w = worst(block, |g| current(g));
                     push(part, "coil current I", w, Unit::A, d.inductor_current);
@@ -264,17 +304,29 @@ pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedRe
         None => (key, None),
     };
     let Some((block_id, name)) = path.rsplit_once('.') else {
-        return Err(format!("a citation is written `=block.result` or `=block.result@f`, found `={key}`"));
+        return Err(format!(
+            "a citation is written `=block.result` or `=block.result@f`, found `={key}`"
+        ));
     };
     let Some(block) = red.blocks.iter().find(|b| b.id == block_id) else {
         let ids: Vec<&str> = red.blocks.iter().map(|b| b.id.as_str()).collect();
-        return Err(format!("no readings block `{block_id}` (blocks: {})", ids.join(", ")));
+        return Err(format!(
+            "no readings block `{block_id}` (blocks: {})",
+            ids.join(", ")
+        ));
     };
     match at {
-        None => block.results.iter().find(|r| r.name == name).ok_or_else(|| {
-            let names: Vec<&str> = block.results.iter().map(|r| r.name.as_str()).collect();
-            format!("block `{block_id}` has no block result `{name}` (it has: {})", names.join(", "))
-        }),
+        None => block
+            .results
+            .iter()
+            .find(|r| r.name == name)
+            .ok_or_else(|| {
+                let names: Vec<&str> = block.results.iter().map(|r| r.name.as_str()).collect();
+                format!(
+                    "block `{block_id}` has no block result `{name}` (it has: {})",
+                    names.join(", ")
+                )
+            }),
         Some(ftext) => {
             let f = parse_quantity(ftext)
                 .ok()
@@ -284,7 +336,11 @@ pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedRe
             block
                 .rows
                 .iter()
-                .find(|r| r.name == name && r.f.is_some_and(|rf| (rf - f).abs() <= 1e-9 * f.abs().max(1e-300)))
+                .find(|r| {
+                    r.name == name
+                        && r.f
+                            .is_some_and(|rf| (rf - f).abs() <= 1e-9 * f.abs().max(1e-300))
+                })
                 .ok_or_else(|| {
                     let fs: Vec<String> = block
                         .rows
@@ -296,7 +352,10 @@ pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedRe
                     if fs.is_empty() {
                         format!("block `{block_id}` has no per-frequency result `{name}`")
                     } else {
-                        format!("block `{block_id}` has `{name}` at {} but not at {f} Hz", fs.join(", "))
+                        format!(
+                            "block `{block_id}` has `{name}` at {} but not at {f} Hz",
+                            fs.join(", ")
+                        )
                     }
                 })
         }
@@ -313,11 +372,16 @@ pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
     use pulldown_cmark::{Event, Options, Parser};
     let mut out = Vec::new();
     for item in &nb.items {
-        let Item::Prose { text, span } = item else { continue };
+        let Item::Prose { text, span } = item else {
+            continue;
+        };
         for (ev, range) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
             if let Event::Code(code) = ev {
                 // `=` followed by a name: a lone `=` or `= x` is ordinary code.
-                if let Some(key) = code.strip_prefix('=').filter(|k| k.starts_with(|c: char| c.is_alphanumeric())) {
+                if let Some(key) = code
+                    .strip_prefix('=')
+                    .filter(|k| k.starts_with(|c: char| c.is_alphanumeric()))
+                {
                     let s = Span::new(span.start + range.start, span.start + range.end);
                     out.push((key.trim().to_string(), s));
                 }
@@ -333,7 +397,9 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
     let mut verdicts = Vec::new();
     let mut safety = Vec::new();
     for item in &nb.items {
-        let Item::Readings(block) = item else { continue };
+        let Item::Readings(block) = item else {
+            continue;
+        };
         if let Some(res) = reduction.blocks.iter().find(|b| b.id == block.id) {
             verdicts.extend(verdicts_for(&nb, block, res));
         }
@@ -347,9 +413,14 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
                 cites.insert(key, cite_text(r));
             }
             Err(msg) => diags.push(
-                Diagnostic::new(span, format!("citation `={key}` does not name a result: {msg}"))
-                    .expected("`=block.result` for a block result, or `=block.result@f` for one frequency")
-                    .found(format!("`={key}`")),
+                Diagnostic::new(
+                    span,
+                    format!("citation `={key}` does not name a result: {msg}"),
+                )
+                .expected(
+                    "`=block.result` for a block result, or `=block.result@f` for one frequency",
+                )
+                .found(format!("`={key}`")),
             ),
         }
     }
@@ -359,13 +430,29 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
     let digest = signoff::digest(&nb);
     let sign = match &nb.front.signoff {
         None => SignState::Unsigned,
-        Some(s) if s.digest == digest => {
-            SignState::Valid { by: s.by.clone(), on: s.on.clone(), digest: s.digest.clone() }
-        }
-        Some(s) => SignState::Void { by: s.by.clone(), on: s.on.clone(), recorded: s.digest.clone() },
+        Some(s) if s.digest == digest => SignState::Valid {
+            by: s.by.clone(),
+            on: s.on.clone(),
+            digest: s.digest.clone(),
+        },
+        Some(s) => SignState::Void {
+            by: s.by.clone(),
+            on: s.on.clone(),
+            recorded: s.digest.clone(),
+        },
     };
     let source_digest = signoff::sha256_hex(nb.source.as_bytes());
-    Ok(Record { notebook: nb, reduction, verdicts, safety, sign, digest, source_digest, citations: cites, derating })
+    Ok(Record {
+        notebook: nb,
+        reduction,
+        verdicts,
+        safety,
+        sign,
+        digest,
+        source_digest,
+        citations: cites,
+        derating,
+    })
 }
 
 #[cfg(test)]
@@ -383,8 +470,16 @@ mod tests {
         use Outcome::*;
         let d = |v, u| decide(v, u, LO, HI, Decision::Simple);
         assert_eq!(d(10.0, 0.5), Pass);
-        assert_eq!(d(11.0, 0.5), Pass, "a value on the upper limit is within the interval");
-        assert_eq!(d(9.0, 0.5), Pass, "a value on the lower limit is within the interval");
+        assert_eq!(
+            d(11.0, 0.5),
+            Pass,
+            "a value on the upper limit is within the interval"
+        );
+        assert_eq!(
+            d(9.0, 0.5),
+            Pass,
+            "a value on the lower limit is within the interval"
+        );
         assert_eq!(d(11.000001, 0.0), Fail);
         assert_eq!(d(8.9, 5.0), Fail, "simple acceptance ignores U");
         assert_eq!(d(10.9, 5.0), Pass, "simple acceptance ignores U");
@@ -395,14 +490,26 @@ mod tests {
         use Outcome::*;
         let d = |v, u| decide(v, u, LO, HI, Decision::Guarded);
         assert_eq!(d(10.0, 0.5), Pass);
-        assert_eq!(d(10.5, 0.5), Pass, "value + U exactly on the limit is still inside");
+        assert_eq!(
+            d(10.5, 0.5),
+            Pass,
+            "value + U exactly on the limit is still inside"
+        );
         assert_eq!(d(10.6, 0.5), Inconclusive, "U straddles the upper limit");
         assert_eq!(d(11.0, 0.5), Inconclusive, "value on the limit: straddles");
         assert_eq!(d(9.3, 0.5), Inconclusive, "U straddles the lower limit");
-        assert_eq!(d(11.5, 0.5), Inconclusive, "value − U exactly on the limit is not wholly outside");
+        assert_eq!(
+            d(11.5, 0.5),
+            Inconclusive,
+            "value − U exactly on the limit is not wholly outside"
+        );
         assert_eq!(d(11.6, 0.5), Fail);
         assert_eq!(d(8.4, 0.5), Fail);
-        assert_eq!(d(10.0, 1.5), Inconclusive, "U wider than the interval can never pass");
+        assert_eq!(
+            d(10.0, 1.5),
+            Inconclusive,
+            "U wider than the interval can never pass"
+        );
     }
 
     #[test]
@@ -416,5 +523,63 @@ mod tests {
         assert_eq!((lo, hi), (21.5, 22.5));
         let (lo, hi) = tolerance_interval(1000.0, &Tolerance::Relative(0.01));
         assert_eq!((lo, hi), (990.0, 1010.0));
+    }
+
+    fn notebook(rows: &str) -> Notebook {
+        let src = format!(
+            "---\nrecord: T-1\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n    tolerance: 1%\n    rating: 0.25 W\n  C:\n    kind: capacitor\n    nominal: 1 uF\n    tolerance: 10%\n    rating: 10 V\n  L:\n    kind: inductor\n    nominal: 10 mH\n    tolerance: 10%\n    rating: 40 mA\n---\n\n```readings\nid: b\nnetwork: RC\nparts: [R, C, L]\n---\nf/Hz VR/V VC/V\n{rows}```\n"
+        );
+        crate::notebook::parse(&src).expect("test notebook parses")
+    }
+
+    fn checks(rows: &str) -> Vec<(String, bool)> {
+        let nb = notebook(rows);
+        let Some(Item::Readings(block)) = nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+        else {
+            panic!("no block")
+        };
+        safety_checks(&nb, block, &Derating::default())
+            .into_iter()
+            .map(|c| (c.what, c.ok))
+            .collect()
+    }
+
+    #[test]
+    fn safety_checks_fire_at_the_derated_limits() {
+        // Derating is common practice: resistor at 50 % of rated power, capacitor and coil at
+        // 80 % of rated voltage and current. R = 100 Ω rated 0.25 W → limit 0.125 W, i.e.
+        // VR = √(0.125·100) = 3.5355 V; C rated 10 V → √2·VC ≤ 8 V, VC ≤ 5.657 V;
+        // coil rated 40 mA → I = VR/R ≤ 32 mA, VR ≤ 3.2 V.
+        let ok = checks("1000 3.199 5.656\n");
+        assert!(ok.iter().all(|(_, ok)| *ok), "{ok:?}");
+        let hot = checks("1000 3.201 5.658\n");
+        assert!(
+            hot.iter()
+                .any(|(w, ok)| w.starts_with("coil current") && !ok),
+            "{hot:?}"
+        );
+        assert!(
+            hot.iter()
+                .any(|(w, ok)| w.starts_with("peak voltage") && !ok),
+            "{hot:?}"
+        );
+        assert!(
+            hot.iter()
+                .any(|(w, ok)| w.starts_with("dissipation") && *ok),
+            "{hot:?}"
+        );
+        let burning = checks("1000 3.536 1.0\n1000 1.0 1.0\n");
+        assert!(
+            burning
+                .iter()
+                .any(|(w, ok)| w.starts_with("dissipation") && !ok),
+            "{burning:?}"
+        );
+        let cool = checks("1000 3.535 1.0\n");
+        assert!(
+            cool.iter()
+                .any(|(w, ok)| w.starts_with("dissipation") && *ok),
+            "{cool:?}"
+        );
     }
 }

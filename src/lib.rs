@@ -3,16 +3,16 @@
 //! Data flows one way: [`notebook`] (parse) → [`networks`] (reduce, pure maths) →
 //! [`judge`] (verdicts, safety, sign-off state) → [`render`] (typst) → the CLI writes the file.
 
+pub mod batch;
 pub mod diag;
-pub mod quantity;
-pub mod notebook;
-pub mod uncertainty;
+pub mod export;
+pub mod judge;
 pub mod montecarlo;
 pub mod networks;
-pub mod judge;
-pub mod signoff;
-pub mod export;
-pub mod render;
+pub mod notebook;
 pub mod pipeline;
-pub mod batch;
+pub mod quantity;
+pub mod render;
+pub mod signoff;
 pub mod starter;
+pub mod uncertainty;

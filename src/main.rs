@@ -10,7 +10,11 @@ use std::process::ExitCode;
 use std::sync::Mutex;
 
 #[derive(Parser)]
-#[command(name = "benchrec", version, about = "Turn a Markdown bench notebook of AC readings into a typeset PDF record")]
+#[command(
+    name = "benchrec",
+    version,
+    about = "Turn a Markdown bench notebook of AC readings into a typeset PDF record"
+)]
 struct Cli {
     #[command(subcommand)]
     verb: Verb,
@@ -95,7 +99,11 @@ enum Verb {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     match cli.verb {
-        Verb::Build { paths, output, force } => build(&paths, output.as_deref(), force),
+        Verb::Build {
+            paths,
+            output,
+            force,
+        } => build(&paths, output.as_deref(), force),
         Verb::Check { paths } => check(&paths),
         Verb::Results { path, format } => results(&path, format),
         Verb::Sign { notebook, by, on } => sign(&notebook, &by, on),
@@ -144,7 +152,9 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
     let tty = std::io::stderr().is_terminal();
     let bar = if tty && n > 1 {
         let b = indicatif::ProgressBar::new(n as u64);
-        if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:32} {pos}/{len} records  {msg}") {
+        if let Ok(style) =
+            indicatif::ProgressStyle::with_template("{bar:32} {pos}/{len} records  {msg}")
+        {
             b.set_style(style);
         }
         Some(b)
@@ -222,7 +232,11 @@ fn check(paths: &[PathBuf]) -> ExitCode {
         match analyse(&nb) {
             Ok(rec) => {
                 let flags: usize = rec.reduction.blocks.iter().map(|b| b.flags.len()).sum();
-                println!("ok {} ({} blocks, {flags} flags)", nb.display(), rec.reduction.blocks.len());
+                println!(
+                    "ok {} ({} blocks, {flags} flags)",
+                    nb.display(),
+                    rec.reduction.blocks.len()
+                );
             }
             Err(f) => {
                 eprint!("{}", f.report());
@@ -257,7 +271,11 @@ fn results(path: &Path, format: Format) -> ExitCode {
                 println!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
             }
         }
-        return if failed { ExitCode::from(1) } else { ExitCode::SUCCESS };
+        return if failed {
+            ExitCode::from(1)
+        } else {
+            ExitCode::SUCCESS
+        };
     }
     match analyse(path) {
         Ok(rec) => {
@@ -328,7 +346,10 @@ fn verify(path: &Path) -> ExitCode {
             ExitCode::from(1)
         }
         Some(s) if s.digest == rec.digest => {
-            println!("verified: {origin} matches the sign-off by {} on {} ({})", s.by, s.on, s.digest);
+            println!(
+                "verified: {origin} matches the sign-off by {} on {} ({})",
+                s.by, s.on, s.digest
+            );
             ExitCode::SUCCESS
         }
         Some(s) => {
@@ -358,14 +379,26 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
         }
     };
     // Watch the folder, so editors that save by renaming a new file into place are seen.
-    let target = if path.is_dir() { path.to_path_buf() } else { path.parent().map(Path::to_path_buf).unwrap_or_default() };
-    let target = if target.as_os_str().is_empty() { PathBuf::from(".") } else { target };
+    let target = if path.is_dir() {
+        path.to_path_buf()
+    } else {
+        path.parent().map(Path::to_path_buf).unwrap_or_default()
+    };
+    let target = if target.as_os_str().is_empty() {
+        PathBuf::from(".")
+    } else {
+        target
+    };
     if let Err(e) = watcher.watch(&target, RecursiveMode::Recursive) {
         eprintln!("error: cannot watch {}: {e}", target.display());
         return ExitCode::from(1);
     }
     let canon = |p: &Path| p.canonicalize().unwrap_or_else(|_| p.to_path_buf());
-    let single = if path.is_file() { Some(canon(path)) } else { None };
+    let single = if path.is_file() {
+        Some(canon(path))
+    } else {
+        None
+    };
     println!("watching {} (Ctrl-C to stop)", path.display());
     let mut builds = 0usize;
     // Content last built per notebook: a save that changes nothing is not rebuilt.
@@ -373,10 +406,18 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     let build_one = |nb: &Path, builds: &mut usize| {
         let t0 = std::time::Instant::now();
         match pipeline::build_file(nb, None) {
-            Ok(out) => println!("built {} in {:.2} s", out.display(), t0.elapsed().as_secs_f64()),
+            Ok(out) => println!(
+                "built {} in {:.2} s",
+                out.display(),
+                t0.elapsed().as_secs_f64()
+            ),
             Err(f) => {
                 eprint!("{}", f.report());
-                println!("not built {} ({:.2} s): the last good PDF is kept", nb.display(), t0.elapsed().as_secs_f64());
+                println!(
+                    "not built {} ({:.2} s): the last good PDF is kept",
+                    nb.display(),
+                    t0.elapsed().as_secs_f64()
+                );
             }
         }
         *builds += 1;
@@ -385,7 +426,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
         if max_builds.is_some_and(|m| builds >= m) {
             return ExitCode::SUCCESS;
         }
-        let Ok(first) = rx.recv() else { return ExitCode::SUCCESS };
+        let Ok(first) = rx.recv() else {
+            return ExitCode::SUCCESS;
+        };
         let mut events = vec![first];
         // Editors write in bursts: gather what arrives within a short pause.
         while let Ok(e) = rx.recv_timeout(std::time::Duration::from_millis(60)) {
@@ -403,7 +446,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
                 let p = canon(&p);
                 let wanted = match &single {
                     Some(s) => &p == s,
-                    None => std::fs::read_to_string(&p).is_ok_and(|t| batch::looks_like_notebook(&t)),
+                    None => {
+                        std::fs::read_to_string(&p).is_ok_and(|t| batch::looks_like_notebook(&t))
+                    }
                 };
                 if wanted && !changed.contains(&p) {
                     changed.push(p);
@@ -411,7 +456,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
             }
         }
         for nb in changed {
-            let Ok(bytes) = std::fs::read(&nb) else { continue };
+            let Ok(bytes) = std::fs::read(&nb) else {
+                continue;
+            };
             if last.get(&nb) == Some(&bytes) {
                 continue;
             }
@@ -423,11 +470,16 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
 
 fn new_notebook(path: &Path, record: Option<String>) -> ExitCode {
     if path.exists() {
-        eprintln!("error: {} already exists; benchrec new never overwrites a file", path.display());
+        eprintln!(
+            "error: {} already exists; benchrec new never overwrites a file",
+            path.display()
+        );
         return ExitCode::from(1);
     }
     let record = record.unwrap_or_else(|| {
-        path.file_stem().map(|s| s.to_string_lossy().to_uppercase()).unwrap_or_else(|| "NEW-0001".into())
+        path.file_stem()
+            .map(|s| s.to_string_lossy().to_uppercase())
+            .unwrap_or_else(|| "NEW-0001".into())
     });
     let date = chrono::Utc::now().format("%Y-%m-%d").to_string();
     let text = starter::starter(&record, &date);
@@ -441,7 +493,11 @@ fn new_notebook(path: &Path, record: Option<String>) -> ExitCode {
     }
     match pipeline::write_atomic(path, text.as_bytes()) {
         Ok(()) => {
-            println!("wrote {}: edit it, then `benchrec build {}`", path.display(), path.display());
+            println!(
+                "wrote {}: edit it, then `benchrec build {}`",
+                path.display(),
+                path.display()
+            );
             ExitCode::SUCCESS
         }
         Err(e) => {

@@ -88,6 +88,9 @@ pub fn validate(y: f64, u: f64, expanded: f64, mc: &McInterval, ndig: u32) -> Va
 /// Sets `gum_validated` in `m.mc` (if any) by [`validate`], and returns the comparison.
 pub fn attach_validation(m: &mut Measured) -> Option<Validation> {
     let (y, u, e) = (m.value, m.u, m.expanded);
+    if m.mc.as_ref().is_some_and(|mc| mc.trials < 2) {
+        m.mc = None; // every trial was dropped: no interval to show
+    }
     let mc = m.mc.as_mut()?;
     let v = validate(y, u, e, mc, 2);
     mc.gum_validated = v.validated;

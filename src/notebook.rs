@@ -1,5 +1,13 @@
 //! The notebook: front matter, prose and readings blocks, with a span on every value.
 //! Parsing only; no maths and no typst here.
+//!
+//! Beyond FORMAT.md this parser accepts: `coverage` as a number (`0.95`) or a percentage
+//! (`95%`); a tolerance with a leading `±`; `by` on a part for both `measured` and `dcr`, or
+//! `measured_by` / `dcr_by`, or the map form `dcr: {value: 38 ohm, by: dmm}`; accuracy counts
+//! written `+ 3`, `+ 3 counts` or `+ 3 digits`; whitespace tables with a space before a unit
+//! (`1.5 kHz`); headings `f/Hz`, `f / Hz`, `VR (mV)`. A bare `source` or `bandwidth` number
+//! is in V or Hz; part values need their unit. Readings blocks must sit at the left margin.
+//! Every problem in a notebook is reported in one pass; none panics.
 
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::{
@@ -2035,7 +2043,12 @@ struct BlockCtx<'a> {
     defined: &'a Defined,
 }
 
-fn parse_block(cx: &BlockCtx, r: Span, d: &mut Vec<Diagnostic>) -> Option<ReadingsBlock> {
+fn parse_block(
+    cx: &BlockCtx,
+    r: Span,
+    ids: &mut BTreeMap<String, Span>,
+    d: &mut Vec<Diagnostic>,
+) -> Option<ReadingsBlock> {
     let src = cx.src;
     let lines = split_lines(src, r.start, r.end);
     let open = *lines.first()?;
@@ -2201,6 +2214,24 @@ fn parse_block(cx: &BlockCtx, r: Span, d: &mut Vec<Diagnostic>) -> Option<Readin
                             .found("no `network`"),
                     );
                 }
+            }
+        }
+    }
+
+    // Ids are unique even among blocks that fail elsewhere.
+    if let Some((name, span)) = &id {
+        match ids.get(name) {
+            Some(first) => {
+                let (l, c) = line_col(src, first.start);
+                d.push(
+                    Diagnostic::new(*span, format!("block id `{name}` is used twice"))
+                        .expected("an id unique in the notebook")
+                        .found(format!("`{name}` again"))
+                        .help(format!("first used at line {l}, column {c}")),
+                );
+            }
+            None => {
+                ids.insert(name.clone(), *span);
             }
         }
     }
@@ -2523,24 +2554,7 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
                                 });
                             }
                             prev = r.end.max(prev);
-                            if let Some(b) = parse_block(&cx, r, &mut d) {
-                                match ids.get(&b.id) {
-                                    Some(first) => {
-                                        let (l, c) = line_col(&source, first.start);
-                                        d.push(
-                                            Diagnostic::new(
-                                                b.id_span,
-                                                format!("block id `{}` is used twice", b.id),
-                                            )
-                                            .expected("an id unique in the notebook")
-                                            .found(format!("`{}` again", b.id))
-                                            .help(format!("first used at line {l}, column {c}")),
-                                        );
-                                    }
-                                    None => {
-                                        ids.insert(b.id.clone(), b.id_span);
-                                    }
-                                }
+                            if let Some(b) = parse_block(&cx, r, &mut ids, &mut d) {
                                 items.push(Item::Readings(b));
                             }
                         }

@@ -12,9 +12,19 @@ use std::path::{Component, Path, PathBuf};
 /// Why one notebook did not build. Other notebooks of a batch go on.
 #[derive(Debug)]
 pub enum Failure {
-    Io { path: PathBuf, message: String },
-    Notebook { path: PathBuf, source: String, diags: Vec<Diagnostic> },
-    Render { path: PathBuf, message: String },
+    Io {
+        path: PathBuf,
+        message: String,
+    },
+    Notebook {
+        path: PathBuf,
+        source: String,
+        diags: Vec<Diagnostic>,
+    },
+    Render {
+        path: PathBuf,
+        message: String,
+    },
 }
 
 impl Failure {
@@ -22,28 +32,46 @@ impl Failure {
     pub fn report(&self) -> String {
         match self {
             Failure::Io { path, message } => format!("error: {}: {message}\n", path.display()),
-            Failure::Notebook { path, source, diags } => {
-                diag::render(&path.display().to_string(), source, diags)
-            }
+            Failure::Notebook {
+                path,
+                source,
+                diags,
+            } => diag::render(&path.display().to_string(), source, diags),
             Failure::Render { path, message } => {
-                format!("error: {}: the report could not be typeset: {message}\n", path.display())
+                format!(
+                    "error: {}: the report could not be typeset: {message}\n",
+                    path.display()
+                )
             }
         }
     }
 
     pub fn path(&self) -> &Path {
         match self {
-            Failure::Io { path, .. } | Failure::Notebook { path, .. } | Failure::Render { path, .. } => path,
+            Failure::Io { path, .. }
+            | Failure::Notebook { path, .. }
+            | Failure::Render { path, .. } => path,
         }
     }
 
     /// One line for summaries: the first problem with its location.
     pub fn summary(&self) -> String {
         match self {
-            Failure::Notebook { path, source, diags } => match diags.first() {
+            Failure::Notebook {
+                path,
+                source,
+                diags,
+            } => match diags.first() {
                 Some(d) => {
-                    let more = if diags.len() > 1 { format!(" (+{} more)", diags.len() - 1) } else { String::new() };
-                    format!("{}{more}", diag::one_line(&path.display().to_string(), source, d))
+                    let more = if diags.len() > 1 {
+                        format!(" (+{} more)", diags.len() - 1)
+                    } else {
+                        String::new()
+                    };
+                    format!(
+                        "{}{more}",
+                        diag::one_line(&path.display().to_string(), source, d)
+                    )
                 }
                 None => format!("{}: invalid notebook", path.display()),
             },
@@ -53,7 +81,10 @@ impl Failure {
 }
 
 fn io_fail(path: &Path, e: impl std::fmt::Display) -> Failure {
-    Failure::Io { path: path.to_path_buf(), message: e.to_string() }
+    Failure::Io {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    }
 }
 
 /// A notebook read from disk: its bytes as read and its text.
@@ -67,23 +98,44 @@ pub struct Source {
 pub fn read_source(path: &Path) -> Result<Source, Failure> {
     let raw = std::fs::read(path).map_err(|e| io_fail(path, e))?;
     match String::from_utf8(raw.clone()) {
-        Ok(text) => Ok(Source { path: path.to_path_buf(), raw, text }),
+        Ok(text) => Ok(Source {
+            path: path.to_path_buf(),
+            raw,
+            text,
+        }),
         Err(e) => {
             let at = e.utf8_error().valid_up_to();
             let lossy = String::from_utf8_lossy(&raw).into_owned();
-            let start = lossy.char_indices().nth(String::from_utf8_lossy(&raw[..at]).chars().count()).map_or(lossy.len(), |(i, _)| i);
-            let d = Diagnostic::new(Span::new(start, start + 1), "the notebook is not valid UTF-8 text")
-                .expected("UTF-8 text")
-                .found(format!("the byte 0x{:02x}", raw.get(at).copied().unwrap_or(0)))
-                .help("save the notebook as UTF-8 in your editor");
-            Err(Failure::Notebook { path: path.to_path_buf(), source: lossy, diags: vec![d] })
+            let start = lossy
+                .char_indices()
+                .nth(String::from_utf8_lossy(&raw[..at]).chars().count())
+                .map_or(lossy.len(), |(i, _)| i);
+            let d = Diagnostic::new(
+                Span::new(start, start + 1),
+                "the notebook is not valid UTF-8 text",
+            )
+            .expected("UTF-8 text")
+            .found(format!(
+                "the byte 0x{:02x}",
+                raw.get(at).copied().unwrap_or(0)
+            ))
+            .help("save the notebook as UTF-8 in your editor");
+            Err(Failure::Notebook {
+                path: path.to_path_buf(),
+                source: lossy,
+                diags: vec![d],
+            })
         }
     }
 }
 
 /// Parse, reduce and judge one notebook's text. Pure: no file system access.
 pub fn analyse_text(path: &Path, text: &str) -> Result<Record, Failure> {
-    let fail = |source: &str, diags| Failure::Notebook { path: path.to_path_buf(), source: source.to_string(), diags };
+    let fail = |source: &str, diags| Failure::Notebook {
+        path: path.to_path_buf(),
+        source: source.to_string(),
+        diags,
+    };
     let nb = notebook::parse(text).map_err(|d| fail(text, d))?;
     let red = networks::reduce(&nb).map_err(|d| fail(&nb.source, d))?;
     let src = nb.source.clone();
@@ -99,7 +151,8 @@ fn is_inside(rel: &str) -> bool {
     if p.has_root() || rel.get(1..2) == Some(":") {
         return false;
     }
-    p.components().all(|c| matches!(c, Component::Normal(_) | Component::CurDir))
+    p.components()
+        .all(|c| matches!(c, Component::Normal(_) | Component::CurDir))
 }
 
 /// Images named in the prose, as (path as written, span).
@@ -107,10 +160,15 @@ pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
     use pulldown_cmark::{Event, Options, Parser, Tag};
     let mut out = Vec::new();
     for item in &rec.notebook.items {
-        let Item::Prose { text, span } = item else { continue };
+        let Item::Prose { text, span } = item else {
+            continue;
+        };
         for (ev, r) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
             if let Event::Start(Tag::Image { dest_url, .. }) = ev {
-                out.push((dest_url.to_string(), Span::new(span.start + r.start, span.start + r.end)));
+                out.push((
+                    dest_url.to_string(),
+                    Span::new(span.start + r.start, span.start + r.end),
+                ));
             }
         }
     }
@@ -120,10 +178,18 @@ pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
 /// Gathers what the renderer may use: images inside the notebook's folder and a user template.
 pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
     let dir = src.path.parent().map(Path::to_path_buf).unwrap_or_default();
-    let dir = if dir.as_os_str().is_empty() { PathBuf::from(".") } else { dir };
+    let dir = if dir.as_os_str().is_empty() {
+        PathBuf::from(".")
+    } else {
+        dir
+    };
     let canon_dir = dir.canonicalize().map_err(|e| io_fail(&dir, e))?;
     let mut assets = Assets {
-        source_name: src.path.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_else(|| "notebook.md".into()),
+        source_name: src
+            .path
+            .file_name()
+            .map(|n| n.to_string_lossy().into_owned())
+            .unwrap_or_else(|| "notebook.md".into()),
         ..Assets::default()
     };
     let mut diags = Vec::new();
@@ -149,7 +215,9 @@ pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
                 }
                 Err(e) => diags.push(refuse(&format!("could not be read: {e}"))),
             },
-            Ok(_) => diags.push(refuse("resolves (through a link) outside the notebook's folder")),
+            Ok(_) => diags.push(refuse(
+                "resolves (through a link) outside the notebook's folder",
+            )),
             Err(_) => diags.push(refuse("does not exist")),
         }
     }
@@ -167,7 +235,11 @@ pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
     if diags.is_empty() {
         Ok(assets)
     } else {
-        Err(Failure::Notebook { path: src.path.clone(), source: rec.notebook.source.clone(), diags })
+        Err(Failure::Notebook {
+            path: src.path.clone(),
+            source: rec.notebook.source.clone(),
+            diags,
+        })
     }
 }
 
@@ -183,7 +255,10 @@ pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
     };
-    let mut tmp = tempfile::Builder::new().prefix(".benchrec-").suffix(".tmp").tempfile_in(&dir)?;
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".benchrec-")
+        .suffix(".tmp")
+        .tempfile_in(&dir)?;
     tmp.write_all(bytes)?;
     tmp.as_file().sync_all()?;
     tmp.persist(out).map_err(|e| e.error)?;
@@ -196,15 +271,19 @@ pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     let rec = analyse_text(path, &src.text)?;
     let mut assets = gather_assets(&src, &rec)?;
     assets.source = src.raw.clone();
-    let pdf = render::render_pdf(&rec, &assets)
-        .map_err(|e| Failure::Render { path: path.to_path_buf(), message: e.to_string() })?;
+    let pdf = render::render_pdf(&rec, &assets).map_err(|e| Failure::Render {
+        path: path.to_path_buf(),
+        message: e.to_string(),
+    })?;
     Ok((rec, pdf))
 }
 
 /// Builds one notebook into `out` (default beside it). Returns the path written.
 pub fn build_file(path: &Path, out: Option<&Path>) -> Result<PathBuf, Failure> {
     let (_rec, pdf) = render_file(path)?;
-    let out = out.map(Path::to_path_buf).unwrap_or_else(|| default_output(path));
+    let out = out
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| default_output(path));
     write_atomic(&out, &pdf).map_err(|e| io_fail(&out, e))?;
     Ok(out)
 }

@@ -41,7 +41,10 @@ fn canonical_front(yaml_text: &str) -> String {
 /// The canonical form hashed by [`digest`]: front matter (less `signoff`) and every readings
 /// block, in order. Prose is left out, so editing the narrative does not void a sign-off.
 pub fn canonical_form(nb: &Notebook) -> String {
-    let front = nb.source.get(nb.front_span.start..nb.front_span.end).unwrap_or("");
+    let front = nb
+        .source
+        .get(nb.front_span.start..nb.front_span.end)
+        .unwrap_or("");
     let mut out = String::from("benchrec canonical form 1\n[front]\n");
     out.push_str(&canonical_front(front));
     out.push('\n');
@@ -56,7 +59,10 @@ pub fn canonical_form(nb: &Notebook) -> String {
 
 /// `sha256:<hex>` of [`canonical_form`].
 pub fn digest(nb: &Notebook) -> String {
-    format!("{DIGEST_PREFIX}{}", sha256_hex(canonical_form(nb).as_bytes()))
+    format!(
+        "{DIGEST_PREFIX}{}",
+        sha256_hex(canonical_form(nb).as_bytes())
+    )
 }
 
 pub fn sha256_hex(bytes: &[u8]) -> String {
@@ -85,7 +91,11 @@ pub fn set_signoff(raw: &str, by: &str, on: &str, digest: &str) -> Result<String
         let e = starts.get(i + 1).copied().unwrap_or(raw.len());
         raw[s..e].trim_end_matches(['\n', '\r'])
     };
-    let nlines = if raw.ends_with('\n') { starts.len() - 1 } else { starts.len() };
+    let nlines = if raw.ends_with('\n') {
+        starts.len() - 1
+    } else {
+        starts.len()
+    };
     if nlines == 0 || line(0).trim_start_matches('\u{feff}').trim_end() != "---" {
         return Err("the notebook does not start with a front matter line `---`".into());
     }
@@ -146,10 +156,18 @@ pub fn pdf_attachments(pdf: &[u8]) -> Result<Vec<(String, Vec<u8>)>, String> {
             .and_then(|o| o.as_str().ok())
             .map(|b| String::from_utf8_lossy(b).into_owned())
             .unwrap_or_default();
-        let Ok(ef) = dict.get(b"EF").and_then(|o| o.as_dict()) else { continue };
-        let Ok(r) = ef.get(b"F").and_then(|o| o.as_reference()) else { continue };
-        let Ok(stream) = doc.get_object(r).and_then(|o| o.as_stream()) else { continue };
-        let bytes = stream.decompressed_content().unwrap_or_else(|_| stream.content.clone());
+        let Ok(ef) = dict.get(b"EF").and_then(|o| o.as_dict()) else {
+            continue;
+        };
+        let Ok(r) = ef.get(b"F").and_then(|o| o.as_reference()) else {
+            continue;
+        };
+        let Ok(stream) = doc.get_object(r).and_then(|o| o.as_stream()) else {
+            continue;
+        };
+        let bytes = stream
+            .decompressed_content()
+            .unwrap_or_else(|_| stream.content.clone());
         out.push((name, bytes));
     }
     out.sort();
@@ -165,6 +183,83 @@ pub fn verify_pdf_source(pdf: &[u8]) -> Result<String, String> {
         [] => return Err("the PDF carries no notebook attachment".into()),
         _ => return Err("the PDF carries more than one notebook attachment".into()),
     };
-    let text = String::from_utf8(bytes.clone()).map_err(|_| "the attached notebook is not UTF-8 text".to_string())?;
+    let text = String::from_utf8(bytes.clone())
+        .map_err(|_| "the attached notebook is not UTF-8 text".to_string())?;
     Ok(text)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const NB: &str = "---\nrecord: S-1\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n    tolerance: 1%\n---\n\nSome prose.\n\n```readings\nid: b\nnetwork: RC\nparts: [R]\n---\nf/Hz VR/V VC/V\n1000 1.0 1.0\n```\n\nMore prose.\n";
+
+    fn dig(src: &str) -> String {
+        digest(&crate::notebook::parse(src).expect("parses"))
+    }
+
+    #[test]
+    fn digest_ignores_prose_and_signoff_but_not_readings_or_parts() {
+        let d = dig(NB);
+        assert_eq!(d, dig(&NB.replace("Some prose.", "Other words entirely.")));
+        assert_eq!(
+            d,
+            dig(&NB.replace("More prose.\n", "More prose.\n\n# A new heading\n"))
+        );
+        assert_ne!(
+            d,
+            dig(&NB.replace("1000 1.0 1.0", "1000 1.0 1.1")),
+            "a reading"
+        );
+        assert_ne!(
+            d,
+            dig(&NB.replace("nominal: 100 ohm", "nominal: 101 ohm")),
+            "a part value"
+        );
+        assert_ne!(
+            d,
+            dig(&NB.replace("tolerance: 1%", "tolerance: 2%")),
+            "a tolerance"
+        );
+        let signed = set_signoff(NB, "A", "2026-11-03", &d).unwrap();
+        assert_eq!(d, dig(&signed), "the sign-off itself is not hashed");
+        assert!(d.starts_with(DIGEST_PREFIX) && d.len() == DIGEST_PREFIX.len() + 64);
+    }
+
+    #[test]
+    fn signing_changes_only_the_signoff_entry() {
+        let once = set_signoff(NB, "A. One", "2026-11-03T09:00:00Z", "sha256:aa").unwrap();
+        let close = NB.find("---\n\nSome").unwrap();
+        assert_eq!(&once[..close], &NB[..close]);
+        assert!(once.ends_with(&NB[close..]));
+        // Signing again replaces the entry in place.
+        let twice = set_signoff(&once, "B. Two", "2026-11-04T09:00:00Z", "sha256:bb").unwrap();
+        assert_eq!(
+            twice,
+            once.replace("A. One", "B. Two")
+                .replace("11-03", "11-04")
+                .replace("aa", "bb")
+        );
+        // CRLF files get CRLF lines; nothing else changes.
+        let crlf = NB.replace('\n', "\r\n");
+        let signed = set_signoff(&crlf, "C", "D", "E").unwrap();
+        assert!(signed.contains("signoff:\r\n  by: \"C\"\r\n"));
+        assert_eq!(
+            signed.replace(
+                "signoff:\r\n  by: \"C\"\r\n  on: \"D\"\r\n  digest: \"E\"\r\n",
+                ""
+            ),
+            crlf
+        );
+        // Names are quoted, so YAML-special characters stay text.
+        let odd = set_signoff(NB, "O'Neil: #1", "x", "y").unwrap();
+        assert!(
+            crate::notebook::parse(&odd)
+                .map(|n| n.front.signoff.map(|s| s.by))
+                .ok()
+                .flatten()
+                .as_deref()
+                == Some("O'Neil: #1")
+        );
+    }
 }

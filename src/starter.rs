@@ -56,7 +56,14 @@ Close with what the numbers mean for the part and what you would do next.
 
 /// A starter notebook for `record` dated `date` (ISO 8601).
 pub fn starter(record: &str, date: &str) -> String {
-    let clean: String = record.chars().filter(|c| c.is_alphanumeric() || matches!(c, '-' | '_' | '.')).collect();
-    let record = if clean.is_empty() { "NEW-0001".to_string() } else { clean };
+    let clean: String = record
+        .chars()
+        .filter(|c| c.is_alphanumeric() || matches!(c, '-' | '_' | '.'))
+        .collect();
+    let record = if clean.is_empty() {
+        "NEW-0001".to_string()
+    } else {
+        clean
+    };
     STARTER.replace("{record}", &record).replace("{date}", date)
 }

@@ -13,7 +13,9 @@ fn run(args: &[&str]) -> Output {
 }
 
 fn demo(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("demo").join(name)
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("demo")
+        .join(name)
 }
 
 /// Copies a demo notebook into a fresh temporary folder.
@@ -50,9 +52,13 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
     assert!(o.status.success(), "build failed: {}", stderr(&o));
     let text = squash(&pdf_text(&out));
     assert!(text.contains("BR-DEMO-0101"), "record id missing");
-    assert!(text.contains("snub-c1") && text.contains("snub-pair-z"), "block ids missing");
+    assert!(
+        text.contains("snub-c1") && text.contains("snub-pair-z"),
+        "block ids missing"
+    );
     // The block C as the results export gives it, printed the way the report prints it.
-    let json: serde_json::Value = serde_json::from_str(&stdout(&run(&["results", nb.to_str().unwrap()]))).unwrap();
+    let json: serde_json::Value =
+        serde_json::from_str(&stdout(&run(&["results", nb.to_str().unwrap()]))).unwrap();
     let c = json["blocks"][0]["results"]
         .as_array()
         .unwrap()
@@ -65,7 +71,10 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
         c["U"].as_f64().unwrap(),
         benchrec::quantity::Unit::F,
     );
-    assert!(text.contains(&squash(&printed)), "computed C `{printed}` not in the PDF text");
+    assert!(
+        text.contains(&squash(&printed)),
+        "computed C `{printed}` not in the PDF text"
+    );
 }
 
 #[test]
@@ -90,11 +99,16 @@ fn two_builds_are_byte_identical_and_declare_pdfa3b_with_the_source_attached() {
     // PDF/A identification lives in the XMP packet (ISO 19005-3 §6.6.4): part 3, conformance B.
     let s = String::from_utf8_lossy(&pa);
     let xmp_part = s.contains("<pdfaid:part>3</pdfaid:part>") || s.contains("pdfaid:part=\"3\"");
-    let xmp_conf = s.contains("<pdfaid:conformance>B</pdfaid:conformance>") || s.contains("pdfaid:conformance=\"B\"");
+    let xmp_conf = s.contains("<pdfaid:conformance>B</pdfaid:conformance>")
+        || s.contains("pdfaid:conformance=\"B\"");
     assert!(xmp_part && xmp_conf, "XMP does not declare PDF/A-3b");
     let files = benchrec::signoff::pdf_attachments(&pa).unwrap();
     assert_eq!(files.len(), 1, "one attachment expected");
-    assert_eq!(files[0].1, std::fs::read(&nb).unwrap(), "attachment differs from the notebook bytes");
+    assert_eq!(
+        files[0].1,
+        std::fs::read(&nb).unwrap(),
+        "attachment differs from the notebook bytes"
+    );
 }
 
 #[test]
@@ -111,8 +125,15 @@ fn a_bad_notebook_exits_1_names_file_line_column_and_leaves_the_old_pdf() {
     let o = run(&["build", nb.to_str().unwrap()]);
     assert_eq!(o.status.code(), Some(1));
     let err = stderr(&o);
-    assert!(err.contains(&format!("snubber-caps.md:{line}:")), "no file:line in {err}");
-    assert_eq!(std::fs::read(&pdf).unwrap(), before, "the earlier PDF was touched");
+    assert!(
+        err.contains(&format!("snubber-caps.md:{line}:")),
+        "no file:line in {err}"
+    );
+    assert_eq!(
+        std::fs::read(&pdf).unwrap(),
+        before,
+        "the earlier PDF was touched"
+    );
     let leftovers: Vec<_> = std::fs::read_dir(dir.path())
         .unwrap()
         .flatten()
@@ -125,10 +146,23 @@ fn a_bad_notebook_exits_1_names_file_line_column_and_leaves_the_old_pdf() {
 fn usage_errors_exit_2_and_every_verb_has_help() {
     assert_eq!(run(&["build"]).status.code(), Some(2));
     assert_eq!(run(&["no-such-verb"]).status.code(), Some(2));
-    for verb in ["build", "check", "results", "sign", "verify", "watch", "new", "completions", "man"] {
+    for verb in [
+        "build",
+        "check",
+        "results",
+        "sign",
+        "verify",
+        "watch",
+        "new",
+        "completions",
+        "man",
+    ] {
         let o = run(&[verb, "--help"]);
         assert!(o.status.success(), "{verb} --help failed");
-        assert!(stdout(&o).contains("Usage"), "{verb} --help prints no usage");
+        assert!(
+            stdout(&o).contains("Usage"),
+            "{verb} --help prints no usage"
+        );
     }
 }
 
@@ -150,7 +184,11 @@ fn result_values(nb: &Path) -> Vec<(String, Option<f64>, f64)> {
     for b in json["blocks"].as_array().unwrap() {
         for r in b["results"].as_array().unwrap() {
             out.push((
-                format!("{}/{}", b["id"].as_str().unwrap(), r["name"].as_str().unwrap()),
+                format!(
+                    "{}/{}",
+                    b["id"].as_str().unwrap(),
+                    r["name"].as_str().unwrap()
+                ),
                 r.get("f").and_then(|f| f.as_f64()),
                 r["value"].as_f64().unwrap(),
             ));
@@ -166,12 +204,23 @@ fn csv_export_round_trips_through_a_csv_parser_with_the_json_values() {
     assert!(o.status.success(), "{}", stderr(&o));
     let mut rdr = csv::Reader::from_reader(o.stdout.as_slice());
     let headers = rdr.headers().unwrap().clone();
-    assert_eq!(headers.iter().collect::<Vec<_>>(), benchrec::export::CSV_HEADER.to_vec());
+    assert_eq!(
+        headers.iter().collect::<Vec<_>>(),
+        benchrec::export::CSV_HEADER.to_vec()
+    );
     let mut from_csv = Vec::new();
     for rec in rdr.records() {
         let rec = rec.unwrap();
-        let f = if rec[3].is_empty() { None } else { Some(rec[3].parse::<f64>().unwrap()) };
-        from_csv.push((format!("{}/{}", &rec[1], &rec[2]), f, rec[4].parse::<f64>().unwrap()));
+        let f = if rec[3].is_empty() {
+            None
+        } else {
+            Some(rec[3].parse::<f64>().unwrap())
+        };
+        from_csv.push((
+            format!("{}/{}", &rec[1], &rec[2]),
+            f,
+            rec[4].parse::<f64>().unwrap(),
+        ));
     }
     assert_eq!(from_csv, result_values(&nb), "CSV and JSON disagree");
 }
@@ -180,39 +229,74 @@ fn csv_export_round_trips_through_a_csv_parser_with_the_json_values() {
 fn sign_then_verify_then_tamper() {
     let (dir, nb) = copy_demo("snubber-caps.md");
     let original = std::fs::read_to_string(&nb).unwrap();
-    let o = run(&["sign", nb.to_str().unwrap(), "--by", "T. Reviewer", "--on", "2026-11-30T10:00:00Z"]);
+    let o = run(&[
+        "sign",
+        nb.to_str().unwrap(),
+        "--by",
+        "T. Reviewer",
+        "--on",
+        "2026-11-30T10:00:00Z",
+    ]);
     assert!(o.status.success(), "{}", stderr(&o));
     let signed = std::fs::read_to_string(&nb).unwrap();
     // Only the front matter's closing fence moved down: every other byte is as it was.
     let close = original[4..].find("\n---\n").unwrap() + 5;
     let added = &signed[close..signed.len() - (original.len() - close)];
-    assert!(added.starts_with("signoff:\n  by: \"T. Reviewer\"\n"), "unexpected insertion: {added}");
-    assert_eq!(format!("{}{}{}", &original[..close], added, &original[close..]), signed);
-    assert_eq!(run(&["verify", nb.to_str().unwrap()]).status.code(), Some(0));
+    assert!(
+        added.starts_with("signoff:\n  by: \"T. Reviewer\"\n"),
+        "unexpected insertion: {added}"
+    );
+    assert_eq!(
+        format!("{}{}{}", &original[..close], added, &original[close..]),
+        signed
+    );
+    assert_eq!(
+        run(&["verify", nb.to_str().unwrap()]).status.code(),
+        Some(0)
+    );
 
     // Prose edits keep the sign-off valid.
     let prose_edit = signed.replace("Before the lot is fitted", "Before the reel is fitted");
     std::fs::write(&nb, &prose_edit).unwrap();
-    assert_eq!(run(&["verify", nb.to_str().unwrap()]).status.code(), Some(0), "prose edit voided the sign-off");
+    assert_eq!(
+        run(&["verify", nb.to_str().unwrap()]).status.code(),
+        Some(0),
+        "prose edit voided the sign-off"
+    );
 
     // The PDF of a valid record verifies; a tampered attachment does not.
     let pdf = dir.path().join("signed.pdf");
     let o = run(&["build", nb.to_str().unwrap(), "-o", pdf.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert_eq!(run(&["verify", pdf.to_str().unwrap()]).status.code(), Some(0));
+    assert_eq!(
+        run(&["verify", pdf.to_str().unwrap()]).status.code(),
+        Some(0)
+    );
     let bytes = std::fs::read(&pdf).unwrap();
     let tampered = tamper_attachment(&bytes, "1.965", "1.975");
     let tpdf = dir.path().join("tampered.pdf");
     std::fs::write(&tpdf, tampered).unwrap();
     let o = run(&["verify", tpdf.to_str().unwrap()]);
-    assert_eq!(o.status.code(), Some(1), "tampered attachment verified: {}", stdout(&o));
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "tampered attachment verified: {}",
+        stdout(&o)
+    );
 
     // A reading changed after signing voids it, and so does a part value.
-    for (from, to) in [("1.965", "1.964"), ("measured: 998.7 ohm", "measured: 998.8 ohm")] {
+    for (from, to) in [
+        ("1.965", "1.964"),
+        ("measured: 998.7 ohm", "measured: 998.8 ohm"),
+    ] {
         let edited = prose_edit.replacen(from, to, 1);
         std::fs::write(&nb, &edited).unwrap();
         let o = run(&["verify", nb.to_str().unwrap()]);
-        assert_eq!(o.status.code(), Some(1), "{from} → {to} did not void the sign-off");
+        assert_eq!(
+            o.status.code(),
+            Some(1),
+            "{from} → {to} did not void the sign-off"
+        );
         assert!(stdout(&o).contains("VOID"));
     }
 }
@@ -231,7 +315,9 @@ fn tamper_attachment(pdf: &[u8], from: &str, to: &str) -> Vec<u8> {
         .collect();
     assert_eq!(ids.len(), 1, "one embedded file expected");
     let stream = doc.get_object_mut(ids[0]).unwrap().as_stream_mut().unwrap();
-    let content = stream.decompressed_content().unwrap_or_else(|_| stream.content.clone());
+    let content = stream
+        .decompressed_content()
+        .unwrap_or_else(|_| stream.content.clone());
     let text = String::from_utf8(content).unwrap().replacen(from, to, 1);
     stream.dict.remove(b"Filter");
     stream.set_content(text.into_bytes());
@@ -261,7 +347,11 @@ fn lab_tree() -> tempfile::TempDir {
     std::fs::write(root.join("lot1/sub/b.md"), &starter).unwrap();
     let bad = starter.replacen("network: RC", "network: RQ", 1);
     std::fs::write(root.join("lot1/bad.md"), bad).unwrap();
-    std::fs::write(root.join("lot1/README.md"), "# Not a notebook\n\nJust notes.\n").unwrap();
+    std::fs::write(
+        root.join("lot1/README.md"),
+        "# Not a notebook\n\nJust notes.\n",
+    )
+    .unwrap();
     std::fs::write(root.join("lot1/data.txt"), "not markdown").unwrap();
     dir
 }
@@ -271,34 +361,67 @@ fn folder_build_builds_good_reports_bad_skips_others_and_caches() {
     let dir = lab_tree();
     let root = dir.path().to_str().unwrap().to_string();
     let o = run(&["build", &root]);
-    assert_eq!(o.status.code(), Some(1), "a failed notebook must make the exit status non-zero");
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "a failed notebook must make the exit status non-zero"
+    );
     let out = stdout(&o);
     let err = stderr(&o);
     assert!(dir.path().join("lot1/a.pdf").is_file() && dir.path().join("lot1/sub/b.pdf").is_file());
-    assert!(!dir.path().join("lot1/bad.pdf").exists() && !dir.path().join("lot1/README.pdf").exists());
-    let bad_line = benchrec::starter::starter("TREE-B", "2026-11-02").lines().position(|l| l.contains("network: RC")).unwrap() + 1;
-    assert!(err.contains(&format!("bad.md:{bad_line}:")), "bad notebook not located: {err}");
-    assert!(out.contains("2 built, 0 up to date, 1 skipped, 1 failed"), "summary: {out}");
-    assert_eq!(std::fs::read_to_string(dir.path().join("lot1/README.md")).unwrap(), "# Not a notebook\n\nJust notes.\n");
+    assert!(
+        !dir.path().join("lot1/bad.pdf").exists() && !dir.path().join("lot1/README.pdf").exists()
+    );
+    let bad_line = benchrec::starter::starter("TREE-B", "2026-11-02")
+        .lines()
+        .position(|l| l.contains("network: RC"))
+        .unwrap()
+        + 1;
+    assert!(
+        err.contains(&format!("bad.md:{bad_line}:")),
+        "bad notebook not located: {err}"
+    );
+    assert!(
+        out.contains("2 built, 0 up to date, 1 skipped, 1 failed"),
+        "summary: {out}"
+    );
+    assert_eq!(
+        std::fs::read_to_string(dir.path().join("lot1/README.md")).unwrap(),
+        "# Not a notebook\n\nJust notes.\n"
+    );
 
     // Nothing changed: nothing rebuilt.
     std::fs::remove_file(dir.path().join("lot1/bad.md")).unwrap();
     let a_pdf = std::fs::read(dir.path().join("lot1/a.pdf")).unwrap();
     let o = run(&["build", &root]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert!(stdout(&o).contains("0 built, 2 up to date"), "{}", stdout(&o));
+    assert!(
+        stdout(&o).contains("0 built, 2 up to date"),
+        "{}",
+        stdout(&o)
+    );
 
     // Touching one reading rebuilds exactly that notebook.
     let a = dir.path().join("lot1/a.md");
-    let t = std::fs::read_to_string(&a).unwrap().replacen("1.965", "1.966", 1);
+    let t = std::fs::read_to_string(&a)
+        .unwrap()
+        .replacen("1.965", "1.966", 1);
     std::fs::write(&a, t).unwrap();
     let o = run(&["build", &root]);
-    assert!(stdout(&o).contains("1 built, 1 up to date"), "{}", stdout(&o));
+    assert!(
+        stdout(&o).contains("1 built, 1 up to date"),
+        "{}",
+        stdout(&o)
+    );
     assert_ne!(std::fs::read(dir.path().join("lot1/a.pdf")).unwrap(), a_pdf);
 
     // --force rebuilds all.
     let o = run(&["build", &root, "--force"]);
-    assert!(stdout(&o).contains("2 built, 0 up to date"), "{}", stdout(&o));
+    assert!(
+        stdout(&o).contains("2 built, 0 up to date"),
+        "{}",
+        stdout(&o)
+    );
 }
 
 #[test]
@@ -307,7 +430,11 @@ fn a_changed_user_template_rebuilds_every_notebook_that_uses_it() {
     let tpl = dir.path().join("letterhead.typ");
     std::fs::write(&tpl, benchrec::render::BUILTIN_TEMPLATE).unwrap();
     for name in ["x", "y"] {
-        let text = benchrec::starter::starter(name, "2026-11-02").replacen("decision: guarded", "decision: guarded\ntemplate: letterhead.typ", 1);
+        let text = benchrec::starter::starter(name, "2026-11-02").replacen(
+            "decision: guarded",
+            "decision: guarded\ntemplate: letterhead.typ",
+            1,
+        );
         std::fs::write(dir.path().join(format!("{name}.md")), text).unwrap();
     }
     let root = dir.path().to_str().unwrap();
@@ -315,10 +442,25 @@ fn a_changed_user_template_rebuilds_every_notebook_that_uses_it() {
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(stdout(&o).contains("2 built"), "{}", stdout(&o));
     let o = run(&["build", root]);
-    assert!(stdout(&o).contains("0 built, 2 up to date"), "{}", stdout(&o));
-    std::fs::write(&tpl, format!("{}\n// lab letterhead v2\n", benchrec::render::BUILTIN_TEMPLATE)).unwrap();
+    assert!(
+        stdout(&o).contains("0 built, 2 up to date"),
+        "{}",
+        stdout(&o)
+    );
+    std::fs::write(
+        &tpl,
+        format!(
+            "{}\n// lab letterhead v2\n",
+            benchrec::render::BUILTIN_TEMPLATE
+        ),
+    )
+    .unwrap();
     let o = run(&["build", root]);
-    assert!(stdout(&o).contains("2 built, 0 up to date"), "{}", stdout(&o));
+    assert!(
+        stdout(&o).contains("2 built, 0 up to date"),
+        "{}",
+        stdout(&o)
+    );
 }
 
 #[test]
@@ -326,7 +468,12 @@ fn output_folder_mirrors_the_tree() {
     let dir = lab_tree();
     std::fs::remove_file(dir.path().join("lot1/bad.md")).unwrap();
     let out = tempfile::tempdir().unwrap();
-    let o = run(&["build", dir.path().to_str().unwrap(), "-o", out.path().to_str().unwrap()]);
+    let o = run(&[
+        "build",
+        dir.path().to_str().unwrap(),
+        "-o",
+        out.path().to_str().unwrap(),
+    ]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(out.path().join("lot1/a.pdf").is_file() && out.path().join("lot1/sub/b.pdf").is_file());
     assert!(!dir.path().join("lot1/a.pdf").exists());
@@ -363,12 +510,76 @@ fn watch_rebuilds_on_save_and_keeps_the_last_good_pdf() {
             if let Some(s) = child.try_wait().unwrap() {
                 break s;
             }
-            assert!(t0.elapsed().as_secs() < 60, "watch did not finish its two builds");
+            assert!(
+                t0.elapsed().as_secs() < 60,
+                "watch did not finish its two builds"
+            );
             std::thread::sleep(std::time::Duration::from_millis(100));
         }
     };
     assert!(status.success());
     let out = child.wait_with_output().unwrap();
     assert!(String::from_utf8_lossy(&out.stdout).contains("the last good PDF is kept"));
-    assert_eq!(std::fs::read(&pdf).unwrap(), good, "a bad save replaced the good PDF");
+    assert_eq!(
+        std::fs::read(&pdf).unwrap(),
+        good,
+        "a bad save replaced the good PDF"
+    );
+}
+
+#[test]
+fn prose_citations_print_the_result_and_unknown_ones_are_errors_at_their_line() {
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("cite.md");
+    let text = benchrec::starter::starter("CITE-1", "2026-11-02")
+        .replace("Close with what the numbers mean", "OPEN `=cx-sweep.C` SHUT and at 800 Hz `=cx-sweep.XC@800Hz`.\n\nClose with what the numbers mean");
+    std::fs::write(&nb, &text).unwrap();
+    let o = run(&["build", nb.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let json: serde_json::Value =
+        serde_json::from_str(&stdout(&run(&["results", nb.to_str().unwrap()]))).unwrap();
+    let c = json["blocks"][0]["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["name"] == "C" && r.get("f").is_none())
+        .unwrap()
+        .clone();
+    let printed = benchrec::quantity::format_value_u(
+        c["value"].as_f64().unwrap(),
+        c["U"].as_f64().unwrap(),
+        benchrec::quantity::Unit::F,
+    );
+    let pdf = squash(&pdf_text(&dir.path().join("cite.pdf")));
+    assert!(
+        pdf.contains(&format!("OPEN{}SHUT", squash(&printed))),
+        "citation not printed as {printed}"
+    );
+
+    let bad = text.replace("`=cx-sweep.XC@800Hz`", "`=cx-sweep.XL`");
+    std::fs::write(&nb, &bad).unwrap();
+    let line = bad
+        .lines()
+        .position(|l| l.contains("=cx-sweep.XL"))
+        .unwrap()
+        + 1;
+    let col = bad
+        .lines()
+        .nth(line - 1)
+        .unwrap()
+        .find("`=cx-sweep.XL")
+        .unwrap()
+        + 1;
+    let o = run(&["check", nb.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(
+        stderr(&o).contains(&format!("cite.md:{line}:{col}")),
+        "{}",
+        stderr(&o)
+    );
+    assert!(
+        stderr(&o).contains("has no block result `XL`"),
+        "{}",
+        stderr(&o)
+    );
 }

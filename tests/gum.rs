@@ -190,3 +190,17 @@ fn zero_current_is_a_diagnostic() {
     assert!(e[0].message.starts_with("I must be positive"));
     assert_eq!(e[0].span, Span::new(10, 15));
 }
+
+// Diagnostics about a block's network point at the `network:` value (FORMAT.md: errors name
+// line and column).
+#[test]
+fn network_span_points_at_the_value() {
+    let src = "# t\n\n```readings\nid: a\nnetwork:  RC   # series\n---\nf/Hz VR/V\n```\n";
+    let mut b = readings(Network::RC, &[("f", Unit::Hz)], &[]);
+    b.span = Span::new(5, src.len());
+    let mut nb = notebook(b.clone());
+    nb.source = src.to_string();
+    let ctx = networks::Context::new(&nb);
+    let s = ctx.network_span(&b);
+    assert_eq!(&src[s.start..s.end], "RC");
+}

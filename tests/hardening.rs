@@ -21,7 +21,11 @@ fn bin() -> Command {
 }
 
 fn run(args: &[&str]) -> Output {
-    bin().args(args).stdin(Stdio::null()).output().expect("benchrec runs")
+    bin()
+        .args(args)
+        .stdin(Stdio::null())
+        .output()
+        .expect("benchrec runs")
 }
 
 fn manifest_dir() -> PathBuf {
@@ -83,7 +87,8 @@ fn contains_bytes(hay: &[u8], needle: &[u8]) -> bool {
 
 /// The base notebook of the catalogue; it must build.
 fn base_notebook() -> String {
-    std::fs::read_to_string(malformed_dir().join("ok-minimal.md")).expect("tests/malformed/ok-minimal.md")
+    std::fs::read_to_string(malformed_dir().join("ok-minimal.md"))
+        .expect("tests/malformed/ok-minimal.md")
 }
 
 /// The 10 MB line: the VR cell of the 800 Hz row (line 32, column 9) becomes a 1 followed by
@@ -112,11 +117,21 @@ fn read_manifest() -> Vec<Case> {
             continue;
         }
         let f: Vec<&str> = line.split('\t').collect();
-        assert!(f.len() >= 4, "EXPECT.tsv line {}: needs file, line, col, message", n + 1);
+        assert!(
+            f.len() >= 4,
+            "EXPECT.tsv line {}: needs file, line, col, message",
+            n + 1
+        );
         out.push(Case {
             file: f[0].to_string(),
-            line: f[1].parse().unwrap_or_else(|_| panic!("EXPECT.tsv line {}: bad line number", n + 1)),
-            col: if f[2] == "-" { None } else { Some(f[2].parse().expect("column number")) },
+            line: f[1]
+                .parse()
+                .unwrap_or_else(|_| panic!("EXPECT.tsv line {}: bad line number", n + 1)),
+            col: if f[2] == "-" {
+                None
+            } else {
+                Some(f[2].parse().expect("column number"))
+            },
             needles: f[3].split('|').map(str::to_string).collect(),
             what: f.get(4).unwrap_or(&"").to_string(),
         });
@@ -127,15 +142,20 @@ fn read_manifest() -> Vec<Case> {
 /// A 1×1 PNG (PNG spec, ISO/IEC 15948: signature, IHDR, IDAT, IEND), valid so that a refusal
 /// cannot be blamed on a broken file.
 const TINY_PNG: &[u8] = &[
-    0x89, 0x50, 0x4E, 0x47, 0x0D, 0x0A, 0x1A, 0x0A, 0x00, 0x00, 0x00, 0x0D, 0x49, 0x48, 0x44, 0x52, 0x00, 0x00, 0x00,
-    0x01, 0x00, 0x00, 0x00, 0x01, 0x08, 0x06, 0x00, 0x00, 0x00, 0x1F, 0x15, 0xC4, 0x89, 0x00, 0x00, 0x00, 0x0D, 0x49,
-    0x44, 0x41, 0x54, 0x78, 0x9C, 0x63, 0xF8, 0xCF, 0xC0, 0xF0, 0x1F, 0x00, 0x05, 0x00, 0x01, 0xFF, 0x89, 0x99, 0x3D,
-    0x1D, 0x00, 0x00, 0x00, 0x00, 0x49, 0x45, 0x4E, 0x44, 0xAE, 0x42, 0x60, 0x82,
+    0x89, 0x50, 0x4E, 0x47, 0x0D, 0x0A, 0x1A, 0x0A, 0x00, 0x00, 0x00, 0x0D, 0x49, 0x48, 0x44, 0x52,
+    0x00, 0x00, 0x00, 0x01, 0x00, 0x00, 0x00, 0x01, 0x08, 0x06, 0x00, 0x00, 0x00, 0x1F, 0x15, 0xC4,
+    0x89, 0x00, 0x00, 0x00, 0x0D, 0x49, 0x44, 0x41, 0x54, 0x78, 0x9C, 0x63, 0xF8, 0xCF, 0xC0, 0xF0,
+    0x1F, 0x00, 0x05, 0x00, 0x01, 0xFF, 0x89, 0x99, 0x3D, 0x1D, 0x00, 0x00, 0x00, 0x00, 0x49, 0x45,
+    0x4E, 0x44, 0xAE, 0x42, 0x60, 0x82,
 ];
 
 fn files_in(dir: &Path) -> Vec<String> {
     let mut v: Vec<String> = std::fs::read_dir(dir)
-        .map(|rd| rd.filter_map(|e| e.ok()).map(|e| e.file_name().to_string_lossy().into_owned()).collect())
+        .map(|rd| {
+            rd.filter_map(|e| e.ok())
+                .map(|e| e.file_name().to_string_lossy().into_owned())
+                .collect()
+        })
         .unwrap_or_default();
     v.sort();
     v
@@ -147,7 +167,11 @@ fn files_in(dir: &Path) -> Vec<String> {
 #[test]
 fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
     let cases = read_manifest();
-    assert!(cases.len() >= 40, "the catalogue must hold at least 40 cases, has {}", cases.len());
+    assert!(
+        cases.len() >= 40,
+        "the catalogue must hold at least 40 cases, has {}",
+        cases.len()
+    );
     let root = tempfile::tempdir().unwrap();
     // Files the bad notebooks point at from outside their folders, present so that a refusal
     // is for the path and not for a missing file.
@@ -161,7 +185,11 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
     std::fs::write(&good_nb, base_notebook()).unwrap();
     let good_pdf = good_dir.join("out.pdf");
     let o = run(&["build", s(&good_nb), "-o", s(&good_pdf)]);
-    assert!(o.status.success(), "the base notebook ok-minimal.md must build:\n{}", stderr(&o));
+    assert!(
+        o.status.success(),
+        "the base notebook ok-minimal.md must build:\n{}",
+        stderr(&o)
+    );
     let good_bytes = std::fs::read(&good_pdf).unwrap();
     assert!(good_bytes.starts_with(b"%PDF"));
     let good_key = std::fs::read(benchrec::batch::key_path(&good_pdf)).ok();
@@ -171,7 +199,11 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
         let (name, bad): (String, Vec<u8>) = match c.file.strip_prefix('@') {
             Some("huge-line.md") => ("huge-line.md".into(), huge_line_notebook()),
             Some(other) => panic!("no generator for {other}"),
-            None => (c.file.clone(), std::fs::read(malformed_dir().join(&c.file)).unwrap_or_else(|e| panic!("{}: {e}", c.file))),
+            None => (
+                c.file.clone(),
+                std::fs::read(malformed_dir().join(&c.file))
+                    .unwrap_or_else(|e| panic!("{}: {e}", c.file)),
+            ),
         };
         let dir = root.path().join(format!("case{i:02}"));
         std::fs::create_dir(&dir).unwrap();
@@ -213,31 +245,61 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
         }
         let after = files_in(&dir);
         if after != before {
-            problems.push(format!("files changed beside the notebook: {before:?} -> {after:?}"));
+            problems.push(format!(
+                "files changed beside the notebook: {before:?} -> {after:?}"
+            ));
         }
         // Default output (beside the notebook): nothing may appear.
         let o2 = run(&["build", s(&nb)]);
         if o2.status.code() != Some(1) || nb.with_extension("pdf").exists() {
-            problems.push(format!("build without -o: exit {:?}, PDF written: {}", o2.status.code(), nb.with_extension("pdf").exists()));
+            problems.push(format!(
+                "build without -o: exit {:?}, PDF written: {}",
+                o2.status.code(),
+                nb.with_extension("pdf").exists()
+            ));
         }
-        // `results` must not print a JSON document for a bad notebook.
+        // `results` must not print a JSON document for a notebook that does not parse or
+        // reduce. (Images and templates are read only by `build`, so those cases are exempt.)
+        let asset_case = name.starts_with("prose-image-") || name.starts_with("fm-template-");
         let o3 = run(&["results", s(&nb)]);
-        if o3.status.code() != Some(1) || !stdout(&o3).trim().is_empty() {
-            problems.push(format!("results: exit {:?}, stdout {:?}", o3.status.code(), stdout(&o3).chars().take(80).collect::<String>()));
+        if !asset_case && (o3.status.code() != Some(1) || !stdout(&o3).trim().is_empty()) {
+            problems.push(format!(
+                "results: exit {:?}, stdout {:?}",
+                o3.status.code(),
+                stdout(&o3).chars().take(80).collect::<String>()
+            ));
         }
         if !problems.is_empty() {
             let shown: String = err.chars().take(600).collect();
-            failures.push(format!("{} ({}): {}\n    stderr: {}", c.file, c.what, problems.join("; "), shown.replace('\n', "\n    | ")));
+            failures.push(format!(
+                "{} ({}): {}\n    stderr: {}",
+                c.file,
+                c.what,
+                problems.join("; "),
+                shown.replace('\n', "\n    | ")
+            ));
         }
     }
-    assert!(failures.is_empty(), "{} of {} malformed cases misbehave:\n{}", failures.len(), cases.len(), failures.join("\n"));
+    assert!(
+        failures.is_empty(),
+        "{} of {} malformed cases misbehave:\n{}",
+        failures.len(),
+        cases.len(),
+        failures.join("\n")
+    );
 }
 
 /// Results of a notebook as JSON, or a panic with its stderr.
 fn results_json(nb: &Path) -> serde_json::Value {
     let o = run(&["results", s(nb)]);
-    assert!(o.status.success(), "results {} failed:\n{}", nb.display(), stderr(&o));
-    serde_json::from_str(&stdout(&o)).unwrap_or_else(|e| panic!("results JSON of {}: {e}", nb.display()))
+    assert!(
+        o.status.success(),
+        "results {} failed:\n{}",
+        nb.display(),
+        stderr(&o)
+    );
+    serde_json::from_str(&stdout(&o))
+        .unwrap_or_else(|e| panic!("results JSON of {}: {e}", nb.display()))
 }
 
 /// (block id, name, f, value, u, U) of every result, rounded to 12 significant digits.
@@ -245,8 +307,20 @@ fn result_values(j: &serde_json::Value) -> Vec<String> {
     let mut v = Vec::new();
     for b in j["blocks"].as_array().into_iter().flatten() {
         for r in b["results"].as_array().into_iter().flatten() {
-            let num = |k: &str| r[k].as_f64().map(|x| format!("{x:.12e}")).unwrap_or_else(|| format!("{}", r[k]));
-            v.push(format!("{} {} {} {} {} {}", b["id"], r["name"], r["f"], num("value"), num("u"), num("U")));
+            let num = |k: &str| {
+                r[k].as_f64()
+                    .map(|x| format!("{x:.12e}"))
+                    .unwrap_or_else(|| format!("{}", r[k]))
+            };
+            v.push(format!(
+                "{} {} {} {} {} {}",
+                b["id"],
+                r["name"],
+                r["f"],
+                num("value"),
+                num("u"),
+                num("U")
+            ));
         }
     }
     v
@@ -257,7 +331,8 @@ fn result_values(j: &serde_json::Value) -> Vec<String> {
 /// white space; FORMAT.md: "whitespace-separated columns").
 #[test]
 fn crlf_bom_and_tabs_are_harmless() {
-    let demo = std::fs::read_to_string(manifest_dir().join("demo").join("snubber-caps.md")).unwrap();
+    let demo =
+        std::fs::read_to_string(manifest_dir().join("demo").join("snubber-caps.md")).unwrap();
     let dir = tempfile::tempdir().unwrap();
     let plain = dir.path().join("plain.md");
     std::fs::write(&plain, &demo).unwrap();
@@ -298,7 +373,10 @@ fn crlf_bom_and_tabs_are_harmless() {
         tabs.push_str(line);
         tabs.push('\n');
     }
-    assert!(tabs.contains("300\t2.000\t0.378"), "tab variant generator missed the table");
+    assert!(
+        tabs.contains("300\t2.000\t0.378"),
+        "tab variant generator missed the table"
+    );
     let mut variants: Vec<(String, Vec<u8>)> = vec![
         ("crlf.md".into(), crlf.into_bytes()),
         ("bom.md".into(), bom.into_bytes()),
@@ -320,7 +398,10 @@ fn crlf_bom_and_tabs_are_harmless() {
             failures.push(format!("{name}: build failed:\n{}", stderr(&o)));
             continue;
         }
-        if !std::fs::read(&out).map(|b| b.starts_with(b"%PDF")).unwrap_or(false) {
+        if !std::fs::read(&out)
+            .map(|b| b.starts_with(b"%PDF"))
+            .unwrap_or(false)
+        {
             failures.push(format!("{name}: no PDF"));
         }
         if !name.starts_with("ok-") {
@@ -353,14 +434,22 @@ fn impossible_readings(name: &str, text: &str, words: &[&str]) -> Option<String>
     let err = stderr(&o);
     let bad_tokens = non_finite_tokens(&out);
     if !bad_tokens.is_empty() {
-        return Some(format!("{name}: results print non-finite numbers {bad_tokens:?}"));
+        return Some(format!(
+            "{name}: results print non-finite numbers {bad_tokens:?}"
+        ));
     }
-    let hit = |t: &str| words.iter().any(|w| t.to_lowercase().contains(&w.to_lowercase()));
+    let hit = |t: &str| {
+        words
+            .iter()
+            .any(|w| t.to_lowercase().contains(&w.to_lowercase()))
+    };
     if !o.status.success() {
         if err.contains(&format!("{name}:")) && hit(&err) {
             return None; // refused with a located, clear error
         }
-        return Some(format!("{name}: refused without a located error naming one of {words:?}:\n{err}"));
+        return Some(format!(
+            "{name}: refused without a located error naming one of {words:?}:\n{err}"
+        ));
     }
     let j: serde_json::Value = match serde_json::from_str(&out) {
         Ok(j) => j,
@@ -373,7 +462,10 @@ fn impossible_readings(name: &str, text: &str, words: &[&str]) -> Option<String>
             for k in ["value", "u", "U", "k"] {
                 // serde_json writes a non-finite f64 as null.
                 if !r[k].as_f64().is_some_and(f64::is_finite) {
-                    problems.push(format!("result {} {}: `{k}` is {}", r["name"], r["f"], r[k]));
+                    problems.push(format!(
+                        "result {} {}: `{k}` is {}",
+                        r["name"], r["f"], r[k]
+                    ));
                 }
             }
         }
@@ -384,7 +476,10 @@ fn impossible_readings(name: &str, text: &str, words: &[&str]) -> Option<String>
         }
     }
     if !flagged {
-        problems.push(format!("no flag mentions any of {words:?}; flags: {}", flags_of(&j)));
+        problems.push(format!(
+            "no flag mentions any of {words:?}; flags: {}",
+            flags_of(&j)
+        ));
     }
     if problems.is_empty() {
         None
@@ -394,7 +489,13 @@ fn impossible_readings(name: &str, text: &str, words: &[&str]) -> Option<String>
 }
 
 fn flags_of(j: &serde_json::Value) -> String {
-    j["blocks"].as_array().into_iter().flatten().map(|b| b["flags"].to_string()).collect::<Vec<_>>().join(" ")
+    j["blocks"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .map(|b| b["flags"].to_string())
+        .collect::<Vec<_>>()
+        .join(" ")
 }
 
 const IMPOSSIBLE_FM: &str = "---
@@ -446,7 +547,17 @@ f/Hz    Vs/V    VR/V    VC/V
 ```
 "
     );
-    if let Some(p) = impossible_readings("rc-bad.md", &text, &["Vs", "source", "Kirchhoff", "residual"]) {
+    if let Some(p) = impossible_readings(
+        "rc-bad.md",
+        &text,
+        &[
+            "impossible",
+            "exceeds Vs",
+            "above Vs",
+            "greater than Vs",
+            "VR > Vs",
+        ],
+    ) {
         panic!("{p}");
     }
 }
@@ -470,7 +581,18 @@ f/Hz    Vs/V    VR/V    VL/V
 ```
 "
     );
-    if let Some(p) = impossible_readings("rl-bad.md", &text, &["cos", "Rac", "negative", "three-voltmeter", "impossible", "Vs"]) {
+    if let Some(p) = impossible_readings(
+        "rl-bad.md",
+        &text,
+        &[
+            "cos",
+            "Rac",
+            "negative",
+            "three-voltmeter",
+            "impossible",
+            "Vs",
+        ],
+    ) {
         panic!("GAP (RL network): {p}");
     }
 }
@@ -501,7 +623,11 @@ f/Hz    Vs/V    VR/V
 {rows}```
 "
     );
-    if let Some(p) = impossible_readings("rlc-bad.md", &text, &["peak", "resonan", "half-power", "maximum", "edge", "range"]) {
+    if let Some(p) = impossible_readings(
+        "rlc-bad.md",
+        &text,
+        &["peak", "resonan", "half-power", "maximum", "edge", "range"],
+    ) {
         panic!("GAP (RLC network): {p}");
     }
 }
@@ -520,8 +646,16 @@ fn injection_setup(root: &Path, extra_prose: &str, front_extra: &str) -> (PathBu
     std::fs::write(nbdir.join("x.typ"), format!("{INCLUDED}\n")).unwrap();
     std::fs::write(nbdir.join("local.txt"), format!("{LOCAL}\n")).unwrap();
     let base = base_notebook();
-    let base = base.replacen("operator: T. Tester (synthetic)\n", &format!("operator: T. Tester (synthetic)\n{front_extra}"), 1);
-    let base = base.replacen("The block value is", &format!("{extra_prose}\n\nThe block value is"), 1);
+    let base = base.replacen(
+        "operator: T. Tester (synthetic)\n",
+        &format!("operator: T. Tester (synthetic)\n{front_extra}"),
+        1,
+    );
+    let base = base.replacen(
+        "The block value is",
+        &format!("{extra_prose}\n\nThe block value is"),
+        1,
+    );
     let nb = nbdir.join("inj.md");
     std::fs::write(&nb, base).unwrap();
     (nb.clone(), nbdir.join("inj.pdf"))
@@ -544,10 +678,15 @@ A link [see notes](../secret.txt) and another [etc](/etc/passwd) are text with a
 | #read("../secret.txt") | $z$ |
 
 Code `#include "x.typ"` in a code span."#;
-    let front = "lab: '#read(\"../secret.txt\") lab'\nproject: \"$a$ @ref #include \\\"x.typ\\\"\"\n";
+    let front =
+        "lab: '#read(\"../secret.txt\") lab'\nproject: \"$a$ @ref #include \\\"x.typ\\\"\"\n";
     let (nb, out) = injection_setup(root.path(), prose, front);
     let o = run(&["build", s(&nb), "-o", s(&out)]);
-    assert!(o.status.success(), "injection notebook must build (its text is harmless):\n{}", stderr(&o));
+    assert!(
+        o.status.success(),
+        "injection notebook must build (its text is harmless):\n{}",
+        stderr(&o)
+    );
     let bytes = std::fs::read(&out).unwrap();
     let text = squash(&pdf_text(&bytes));
     for lit in [
@@ -563,20 +702,41 @@ Code `#include "x.typ"` in a code span."#;
         "#{1+1}",
         "seenotes",
     ] {
-        assert!(text.contains(lit), "literal `{lit}` missing from the PDF text");
+        assert!(
+            text.contains(lit),
+            "literal `{lit}` missing from the PDF text"
+        );
     }
     let lab = squash(r#"#read("../secret.txt") lab"#);
-    assert!(text.contains(&lab), "front matter `lab` text not shown literally");
+    assert!(
+        text.contains(&lab),
+        "front matter `lab` text not shown literally"
+    );
     let streams = pdf_all_stream_bytes(&bytes);
     for marker in [SECRET, INCLUDED, LOCAL, "root:x:0:0"] {
-        assert!(!text.contains(marker), "`{marker}` leaked into the PDF text");
-        assert!(!contains_bytes(&bytes, marker.as_bytes()), "`{marker}` leaked into the PDF bytes");
-        assert!(!contains_bytes(&streams, marker.as_bytes()), "`{marker}` leaked into a PDF stream");
+        assert!(
+            !text.contains(marker),
+            "`{marker}` leaked into the PDF text"
+        );
+        assert!(
+            !contains_bytes(&bytes, marker.as_bytes()),
+            "`{marker}` leaked into the PDF bytes"
+        );
+        assert!(
+            !contains_bytes(&streams, marker.as_bytes()),
+            "`{marker}` leaked into a PDF stream"
+        );
     }
     if let Ok(hosts) = std::fs::read_to_string("/etc/hosts") {
-        let line = hosts.lines().map(str::trim).find(|l| l.len() > 12 && !l.starts_with('#'));
+        let line = hosts
+            .lines()
+            .map(str::trim)
+            .find(|l| l.len() > 12 && !l.starts_with('#'));
         if let Some(l) = line {
-            assert!(!contains_bytes(&streams, l.as_bytes()), "/etc/hosts content leaked into the PDF");
+            assert!(
+                !contains_bytes(&streams, l.as_bytes()),
+                "/etc/hosts content leaked into the PDF"
+            );
         }
     }
 }
@@ -585,29 +745,56 @@ Code `#include "x.typ"` in a code span."#;
 /// any file of the notebook's folder except the notebook itself (no image is named).
 #[test]
 fn injection_build_opens_no_file_outside_under_strace() {
-    if Command::new("strace").arg("-V").output().map(|o| !o.status.success()).unwrap_or(true) {
+    if Command::new("strace")
+        .arg("-V")
+        .output()
+        .map(|o| !o.status.success())
+        .unwrap_or(true)
+    {
         eprintln!("strace not installed; skipped");
         return;
     }
     let root = tempfile::tempdir().unwrap();
-    let prose = r#"Calls #read("../secret.txt") #include "x.typ" #image("/etc/hosts") #read("local.txt")."#;
+    let prose =
+        r#"Calls #read("../secret.txt") #include "x.typ" #image("/etc/hosts") #read("local.txt")."#;
     let (nb, out) = injection_setup(root.path(), prose, "");
     let log = root.path().join("trace.log");
     let o = Command::new("strace")
-        .args(["-f", "-qq", "-e", "trace=open,openat,openat2,stat,newfstatat,statx,access", "-o", s(&log)])
+        .args([
+            "-f",
+            "-qq",
+            "-e",
+            "trace=open,openat,openat2,stat,newfstatat,statx,access",
+            "-o",
+            s(&log),
+        ])
         .arg(env!("CARGO_BIN_EXE_benchrec"))
         .args(["build", s(&nb), "-o", s(&out)])
         .output()
         .unwrap();
     if !log.exists() {
-        eprintln!("strace could not trace here ({}); skipped", String::from_utf8_lossy(&o.stderr));
+        eprintln!(
+            "strace could not trace here ({}); skipped",
+            String::from_utf8_lossy(&o.stderr)
+        );
         return;
     }
     assert!(o.status.success(), "{}", stderr(&o));
     let trace = std::fs::read_to_string(&log).unwrap();
-    for bad in ["secret.txt", "secret.typ", "/etc/hosts", "/etc/passwd", "x.typ\"", "local.txt"] {
+    for bad in [
+        "secret.txt",
+        "secret.typ",
+        "/etc/hosts",
+        "/etc/passwd",
+        "x.typ\"",
+        "local.txt",
+    ] {
         let hits: Vec<&str> = trace.lines().filter(|l| l.contains(bad)).collect();
-        assert!(hits.is_empty(), "the build touched `{bad}`:\n{}", hits.join("\n"));
+        assert!(
+            hits.is_empty(),
+            "the build touched `{bad}`:\n{}",
+            hits.join("\n")
+        );
     }
 }
 
@@ -622,12 +809,28 @@ fn paths_outside_the_folder_are_refused() {
     std::fs::write(root.path().join("secret.png"), &secret_png).unwrap();
     let cases: Vec<(&str, String, &str)> = vec![
         ("image-parent", "![t](../secret.png)".into(), ""),
-        ("image-absolute", format!("![t]({})", root.path().join("secret.png").display()), ""),
-        ("image-dotdot-inside", "![t](sub/../../secret.png)".into(), ""),
+        (
+            "image-absolute",
+            format!("![t]({})", root.path().join("secret.png").display()),
+            "",
+        ),
+        (
+            "image-dotdot-inside",
+            "![t](sub/../../secret.png)".into(),
+            "",
+        ),
         ("image-symlink", "![t](link.png)".into(), ""),
         ("image-etc-passwd", "![t](/etc/passwd)".into(), ""),
-        ("template-parent", String::new(), "template: ../secret.typ\n"),
-        ("template-absolute", String::new(), "template: /etc/passwd\n"),
+        (
+            "template-parent",
+            String::new(),
+            "template: ../secret.typ\n",
+        ),
+        (
+            "template-absolute",
+            String::new(),
+            "template: /etc/passwd\n",
+        ),
         ("template-symlink", String::new(), "template: tlink.typ\n"),
     ];
     let mut failures = Vec::new();
@@ -653,12 +856,18 @@ fn paths_outside_the_folder_are_refused() {
             p.push("no located `outside` refusal".to_string());
         }
         if let Ok(bytes) = std::fs::read(&out) {
-            if contains_bytes(&bytes, SECRET.as_bytes()) || contains_bytes(&pdf_all_stream_bytes(&bytes), SECRET.as_bytes()) {
+            if contains_bytes(&bytes, SECRET.as_bytes())
+                || contains_bytes(&pdf_all_stream_bytes(&bytes), SECRET.as_bytes())
+            {
                 p.push("the outside file's content is in the PDF".into());
             }
         }
         if !p.is_empty() {
-            failures.push(format!("{name}: {}\n    stderr: {}", p.join("; "), err.trim().replace('\n', "\n    | ")));
+            failures.push(format!(
+                "{name}: {}\n    stderr: {}",
+                p.join("; "),
+                err.trim().replace('\n', "\n    | ")
+            ));
         }
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
@@ -743,14 +952,21 @@ fn build_large(name: &str, text: &str) {
     let t0 = std::time::Instant::now();
     let o = run(&["build", s(&nb), "-o", s(&out)]);
     eprintln!("{name}: build took {:.1} s", t0.elapsed().as_secs_f64());
-    assert!(o.status.success(), "{name} did not build:\n{}", stderr(&o).chars().take(3000).collect::<String>());
+    assert!(
+        o.status.success(),
+        "{name} did not build:\n{}",
+        stderr(&o).chars().take(3000).collect::<String>()
+    );
     assert!(std::fs::read(&out).unwrap().starts_with(b"%PDF"));
     let j = results_json(&nb);
     let out = j.to_string();
     assert!(non_finite_tokens(&out).is_empty());
     for b in j["blocks"].as_array().into_iter().flatten() {
         for r in b["results"].as_array().into_iter().flatten() {
-            assert!(r["value"].as_f64().is_some_and(f64::is_finite), "{name}: non-finite result {r}");
+            assert!(
+                r["value"].as_f64().is_some_and(f64::is_finite),
+                "{name}: non-finite result {r}"
+            );
         }
     }
 }
@@ -790,22 +1006,42 @@ fn concurrent_builds_leave_one_whole_pdf() {
     let out = dir.path().join("same.pdf");
     for round in 0..3 {
         let spawn = || {
-            bin().args(["build", "--force", s(&nb), "-o", s(&out)]).stdout(Stdio::null()).stderr(Stdio::piped()).spawn().unwrap()
+            bin()
+                .args(["build", "--force", s(&nb), "-o", s(&out)])
+                .stdout(Stdio::null())
+                .stderr(Stdio::piped())
+                .spawn()
+                .unwrap()
         };
         let (a, b) = (spawn(), spawn());
         let (a, b) = (a.wait_with_output().unwrap(), b.wait_with_output().unwrap());
-        assert!(a.status.success() && b.status.success(), "round {round}: {} / {}", stderr(&a), stderr(&b));
+        assert!(
+            a.status.success() && b.status.success(),
+            "round {round}: {} / {}",
+            stderr(&a),
+            stderr(&b)
+        );
         let bytes = std::fs::read(&out).unwrap();
-        let doc = lopdf::Document::load_mem(&bytes).unwrap_or_else(|e| panic!("round {round}: PDF does not load: {e}"));
-        assert!(!doc.get_pages().is_empty(), "round {round}: PDF has no pages");
+        let doc = lopdf::Document::load_mem(&bytes)
+            .unwrap_or_else(|e| panic!("round {round}: PDF does not load: {e}"));
+        assert!(
+            !doc.get_pages().is_empty(),
+            "round {round}: PDF has no pages"
+        );
         let att = benchrec::signoff::pdf_attachments(&bytes).unwrap();
         assert!(
             att.iter().any(|(n, b)| n.ends_with(".md") && b == &src),
             "round {round}: the notebook is not attached whole: {:?}",
             att.iter().map(|(n, b)| (n, b.len())).collect::<Vec<_>>()
         );
-        let leftovers: Vec<String> = files_in(dir.path()).into_iter().filter(|f| f.ends_with(".tmp")).collect();
-        assert!(leftovers.is_empty(), "round {round}: temporary files left: {leftovers:?}");
+        let leftovers: Vec<String> = files_in(dir.path())
+            .into_iter()
+            .filter(|f| f.ends_with(".tmp"))
+            .collect();
+        assert!(
+            leftovers.is_empty(),
+            "round {round}: temporary files left: {leftovers:?}"
+        );
     }
 }
 
@@ -825,19 +1061,43 @@ fn fuzz_regressions_do_not_panic() {
 /// span lies inside the source and on character boundaries (diag.rs: spans index the source).
 #[test]
 fn parser_spans_stay_inside_the_source() {
-    let mut files: Vec<PathBuf> = files_in(&malformed_dir()).into_iter().filter(|f| f.ends_with(".md")).map(|f| malformed_dir().join(f)).collect();
+    let mut files: Vec<PathBuf> = files_in(&malformed_dir())
+        .into_iter()
+        .filter(|f| f.ends_with(".md"))
+        .map(|f| malformed_dir().join(f))
+        .collect();
     for d in files_in(&manifest_dir().join("demo")) {
-        files.push(manifest_dir().join("demo").join(d));
+        if d.ends_with(".md") {
+            files.push(manifest_dir().join("demo").join(d));
+        }
     }
     for p in files {
         let text = String::from_utf8_lossy(&std::fs::read(&p).unwrap()).into_owned();
         if let Err(diags) = benchrec::notebook::parse(&text) {
-            assert!(!diags.is_empty(), "{}: error with no diagnostic", p.display());
+            assert!(
+                !diags.is_empty(),
+                "{}: error with no diagnostic",
+                p.display()
+            );
             let src = text.strip_prefix('\u{feff}').unwrap_or(&text);
             for d in diags {
-                assert!(d.span.start <= d.span.end && d.span.end <= src.len(), "{}: span {:?} outside the source", p.display(), d.span);
-                assert!(src.is_char_boundary(d.span.start) && src.is_char_boundary(d.span.end), "{}: span {:?} splits a character", p.display(), d.span);
-                assert!(!d.message.trim().is_empty(), "{}: empty message", p.display());
+                assert!(
+                    d.span.start <= d.span.end && d.span.end <= src.len(),
+                    "{}: span {:?} outside the source",
+                    p.display(),
+                    d.span
+                );
+                assert!(
+                    src.is_char_boundary(d.span.start) && src.is_char_boundary(d.span.end),
+                    "{}: span {:?} splits a character",
+                    p.display(),
+                    d.span
+                );
+                assert!(
+                    !d.message.trim().is_empty(),
+                    "{}: empty message",
+                    p.display()
+                );
             }
         }
     }
@@ -846,13 +1106,47 @@ fn parser_spans_stay_inside_the_source() {
 fn notebook_like() -> impl Strategy<Value = String> {
     // Fragments of real notebooks, shuffled: reaches deeper than uniform noise.
     let frag = prop::sample::select(vec![
-        "---\n", "```readings\n", "```\n", "id: a\n", "network: RC\n", "network: RLC\n", "network: Z\n",
-        "network: RL\n", "parts: [R1, C1]\n", "meter: dmm\n", "f/Hz VR/V VC/V\n", "| f/Hz | VR/V | VC/V |\n",
-        "|---|---|---|\n", "| 1 | 2 | 3 |\n", "100 0.5 1.2\n", "100 0.5 # c\n", "record: X\n", "title: T\n",
-        "date: 2026-01-02\n", "operator: O\n", "parts:\n  R1:\n    kind: resistor\n    nominal: 1 kohm\n",
-        "  C1:\n    kind: capacitor\n    nominal: 10 nF\n    tolerance: J\n", "instruments:\n  dmm:\n    accuracy: 1% + 2\n",
-        "`=a.C`\n", "![i](x.png)\n", "\u{feff}", "\r\n", "\t", "µ", "Ω", "&a [*a, *a]\n", "...\n", "# h\n", "1e999\n",
-        "NaN\n", "-0\n", "shift/div period/div\n", "Vs/V\n", "\u{0}", "é", "\u{10FFFF}",
+        "---\n",
+        "```readings\n",
+        "```\n",
+        "id: a\n",
+        "network: RC\n",
+        "network: RLC\n",
+        "network: Z\n",
+        "network: RL\n",
+        "parts: [R1, C1]\n",
+        "meter: dmm\n",
+        "f/Hz VR/V VC/V\n",
+        "| f/Hz | VR/V | VC/V |\n",
+        "|---|---|---|\n",
+        "| 1 | 2 | 3 |\n",
+        "100 0.5 1.2\n",
+        "100 0.5 # c\n",
+        "record: X\n",
+        "title: T\n",
+        "date: 2026-01-02\n",
+        "operator: O\n",
+        "parts:\n  R1:\n    kind: resistor\n    nominal: 1 kohm\n",
+        "  C1:\n    kind: capacitor\n    nominal: 10 nF\n    tolerance: J\n",
+        "instruments:\n  dmm:\n    accuracy: 1% + 2\n",
+        "`=a.C`\n",
+        "![i](x.png)\n",
+        "\u{feff}",
+        "\r\n",
+        "\t",
+        "µ",
+        "Ω",
+        "&a [*a, *a]\n",
+        "...\n",
+        "# h\n",
+        "1e999\n",
+        "NaN\n",
+        "-0\n",
+        "shift/div period/div\n",
+        "Vs/V\n",
+        "\u{0}",
+        "é",
+        "\u{10FFFF}",
     ]);
     prop::collection::vec(frag, 0..40).prop_map(|v| v.concat())
 }

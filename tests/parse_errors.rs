@@ -288,6 +288,9 @@ fn duplicate_block_id() {
     // First block closes on line 22, line 23 is blank, the second fence is on 24, its id on 25.
     let d = expect_at(&src, "block id `b1` is used twice", 25, 5);
     assert!(d.help.unwrap().contains("line 15"));
+    // Also when the first block is wrong elsewhere (an unknown network).
+    let src = src.replacen("network: RC", "network: CR", 1);
+    expect_at(&src, "block id `b1` is used twice", 25, 5);
 }
 
 #[test]
@@ -808,4 +811,38 @@ fn unknown_prefix_in_front_matter() {
 fn dcr_only_on_inductors() {
     let src = "---\nrecord: a\ntitle: t\ndate: 2026-05-04\noperator: o\nparts:\n  C4:\n    kind: capacitor\n    dcr: 2 ohm\n---\n";
     expect_at(src, "applies only to an inductor", 9, 5);
+}
+
+#[test]
+fn mutated_notebooks_do_not_panic() {
+    // Deterministic mutations (a fixed linear congruential sequence) of a valid notebook.
+    let base: Vec<char> = GOOD.chars().collect();
+    let subs = [
+        '|', '#', '-', ':', '\t', '\n', '`', '[', '{', '"', 'µ', '/', '(', ' ', '0', 'e',
+    ];
+    let mut x: u64 = 0x2545_f491_4f6c_dd1d;
+    for _ in 0..3000 {
+        x = x
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        let pos = (x >> 33) as usize % base.len();
+        let sub = subs[(x >> 20) as usize % subs.len()];
+        let mut v = base.clone();
+        if x & 1 == 0 {
+            v[pos] = sub;
+        } else {
+            v.remove(pos);
+        }
+        let s: String = v.into_iter().collect();
+        if let Err(ds) = notebook::parse(&s) {
+            let parsed = s.strip_prefix('\u{FEFF}').unwrap_or(&s);
+            for d in &ds {
+                assert!(
+                    d.span.start <= d.span.end && d.span.end <= parsed.len(),
+                    "{d:?}"
+                );
+            }
+            let _ = diag::render("m.md", parsed, &ds);
+        }
+    }
 }

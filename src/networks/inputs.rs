@@ -1026,4 +1026,107 @@ mod tests {
         assert_eq!(fmt_hz(1000.0), "1 kHz");
         assert_eq!(fmt_hz(159.1549), "159.155 Hz");
     }
+
+    // FORMAT.md flags: bandwidth exceeded (per row) and calibration overdue (per instrument).
+    #[test]
+    fn bandwidth_and_due_flags() {
+        let mut env = Env::new();
+        let mut dmm = instrument(
+            "dmm",
+            Some(Accuracy::Relative {
+                fraction: 0.01,
+                counts: 0.0,
+            }),
+            None,
+        );
+        dmm.bandwidth = Some(1000.0);
+        dmm.due = Some(chrono::NaiveDate::from_ymd_opt(2026, 3, 1).unwrap());
+        env.instruments.insert("dmm".into(), dmm);
+        let mut b = block(
+            Network::RC,
+            &[("f", Unit::Hz), ("VR", Unit::V)],
+            &[vec![500.0, 1.0], vec![2000.0, 1.0]],
+        );
+        b.meter = Some(named("dmm"));
+        let spec = Spec {
+            network: "RC",
+            required: &["VR"],
+            optional: &[],
+            resistor: false,
+        };
+        let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
+        let bw: Vec<&Flag> = bi
+            .flags
+            .iter()
+            .filter(|f| f.message.contains("bandwidth"))
+            .collect();
+        assert_eq!(bw.len(), 1);
+        assert_eq!(bw[0].span, Some(b.rows[1].span));
+        assert!(bi
+            .flags
+            .iter()
+            .any(|f| f.message.contains("calibration of dmm fell due")));
+        // Due date not passed: no flag.
+        let mut env2 = Env::new();
+        env2.date = chrono::NaiveDate::from_ymd_opt(2026, 2, 1).unwrap();
+        env2.instruments = env.instruments.clone();
+        let bi2 = BlockInputs::build(&env2.ctx(), &b, &spec).unwrap();
+        assert!(!bi2.flags.iter().any(|f| f.message.contains("fell due")));
+        // Unknown instrument: a diagnostic at its name.
+        b.meter = Some(named("nope"));
+        assert!(BlockInputs::build(&env.ctx(), &b, &spec).is_err());
+    }
+
+    // Series resistor (GUM 4.3.7): measured value with the ohmmeter's limit 0.1 % + 2 counts of
+    // 0.1 ohm as a rectangular half-width; else nominal ± tolerance (IEC 60062 F = 1 %).
+    #[test]
+    fn series_resistor_sources() {
+        let mut env = Env::new();
+        env.instruments.insert(
+            "ohm".into(),
+            instrument(
+                "ohm",
+                Some(Accuracy::Relative {
+                    fraction: 0.001,
+                    counts: 2.0,
+                }),
+                Some(Quantity {
+                    value: 0.1,
+                    unit: Unit::Ohm,
+                }),
+            ),
+        );
+        let mut r = resistor(
+            "R3",
+            820.0,
+            Some(crate::notebook::Tolerance::Code('F', 0.01)),
+        );
+        env.parts.insert("R3".into(), r.clone());
+        let mut b = block(
+            Network::RC,
+            &[("f", Unit::Hz), ("VR", Unit::V)],
+            &[vec![500.0, 1.0]],
+        );
+        b.parts = vec![named("R3")];
+        let spec = Spec {
+            network: "RC",
+            required: &["VR"],
+            optional: &[],
+            resistor: true,
+        };
+        let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
+        let (ri, _) = bi.resistor.clone().unwrap();
+        assert_eq!(bi.inputs[ri].value, 820.0);
+        assert!((bi.inputs[ri].u - 8.2 / 3f64.sqrt()).abs() < 1e-12);
+        r.measured = Some(Quantity {
+            value: 817.3,
+            unit: Unit::Ohm,
+        });
+        r.measured_by = Some("ohm".into());
+        env.parts.insert("R3".into(), r);
+        let bi = BlockInputs::build(&env.ctx(), &b, &spec).unwrap();
+        let (ri, _) = bi.resistor.clone().unwrap();
+        assert_eq!(bi.inputs[ri].value, 817.3);
+        assert!((bi.inputs[ri].u - (0.8173 + 0.2) / 3f64.sqrt()).abs() < 1e-12);
+    }
 }

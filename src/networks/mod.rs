@@ -5,9 +5,9 @@
 
 pub mod inputs;
 pub mod rc;
-pub mod z;
 pub mod rl;
 pub mod rlc;
+pub mod z;
 
 use crate::diag::{Diagnostic, Span};
 use crate::notebook::{Instrument, Item, Network, Notebook, Part, ReadingsBlock};

@@ -473,4 +473,52 @@ mod tests {
         assert!((find(&out, "C", 1000.0).m.value - 100e-9).abs() < 1e-18);
         assert!((find(&out, "I", 1000.0).m.value - vr / 1000.0 * 2.0 / 1.9).abs() < 1e-12);
     }
+
+    // Phase from a two-trace display (FORMAT.md): φ = 2π·shift/period with each reading's
+    // half-width 0.05 div rectangular (GUM 4.3.7); u by GUM eq. 10:
+    // u²(φ) = (2π/P)²u²(S) + (2πS/P²)²u²(P). Repeats at one f: Type A with ν = n − 1.
+    #[test]
+    fn display_phase_and_repeats() {
+        let mut env = Env::new();
+        let mut scope = instrument("scope", None, None);
+        scope.reading = Some(Quantity {
+            value: 0.05,
+            unit: Unit::Div,
+        });
+        env.instruments.insert("scope".into(), scope);
+        env.parts.insert(
+            "R1".into(),
+            resistor("R1", 1000.0, Some(Tolerance::Relative(0.01))),
+        );
+        let mut b = block(
+            Network::RC,
+            &[
+                ("f", Unit::Hz),
+                ("VR", Unit::V),
+                ("VC", Unit::V),
+                ("shift", Unit::Div),
+                ("period", Unit::Div),
+            ],
+            &[
+                vec![800.0, 1.01, 1.21, 1.4, 10.0],
+                vec![800.0, 1.00, 1.22, 1.4, 10.0],
+                vec![800.0, 1.02, 1.20, 1.4, 10.0],
+            ],
+        );
+        b.parts = vec![named("R1")];
+        b.phase = Some(named("scope"));
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let pm = &find(&out, "phase_measured", 800.0).m;
+        let ur = 0.05 / 3f64.sqrt();
+        let expect = 2.0 * PI * ((ur / 10.0).powi(2) + (1.4 * ur / 100.0).powi(2)).sqrt();
+        assert!((pm.u - expect).abs() / expect < 1e-6);
+        assert!((pm.value - 2.0 * PI * 0.14).abs() < 1e-12);
+        let c = &find(&out, "C", 800.0).m;
+        assert!(c.dof.is_some(), "Type A present: finite ν_eff");
+        assert!(c
+            .budget
+            .iter()
+            .any(|l| l.input == "VR@800 Hz" && l.kind == crate::uncertainty::EvalType::A));
+        assert!(c.budget.iter().any(|l| l.input == "R1"));
+    }
 }

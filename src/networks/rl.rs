@@ -838,6 +838,55 @@ mod tests {
         }
     }
 
+    // A nearly lossless coil: Rac is tiny beside |Z|, so 1 % meter gains leave Rac unresolved
+    // (relative u far above 20 %) while L stays well determined (common practice: the
+    // three-voltmeter method is poor for high-Q coils).
+    #[test]
+    fn high_q_coil_flags_rac() {
+        let (r, l, rc) = (100.0, 0.05, 1.0);
+        let data: Vec<Vec<f64>> = [800.0, 1200.0]
+            .iter()
+            .map(|&f| ideal(r, l, rc, 2.0, f).to_vec())
+            .collect();
+        let mut env = Env::new();
+        env.parts.insert(
+            "R1".into(),
+            resistor("R1", r, Some(Tolerance::Relative(0.001))),
+        );
+        env.parts.insert("L1".into(), coil("L1", Some(rc)));
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.01,
+                    counts: 1.0,
+                }),
+                Some(Quantity {
+                    value: 1e-3,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R1"), named("L1")];
+        b.meter = Some(named("dmm"));
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(
+            out.flags
+                .iter()
+                .any(|f| f.message.contains("above 20 %: Rac")),
+            "{:?}",
+            out.flags
+        );
+        assert!(out.flags.iter().any(|f| f
+            .message
+            .contains("DC-resistance correction method is better conditioned")));
+        for r in out.rows.iter().chain(out.results.iter()) {
+            assert!(r.m.value.is_finite() && r.m.u.is_finite());
+        }
+    }
+
     // χ² test: two equal uncorrelated estimates are consistent; two far apart are not
     // (χ²₀.₉₅(1) = 3.841, statistical tables).
     #[test]

@@ -836,6 +836,54 @@ mod tests {
         assert!(e.contains("no resonance peak"));
     }
 
+    // Phase from a two-trace display (FORMAT.md: 360° × shift/period, current leading
+    // positive) and no Vs column (the stated `source` level): series-resonance phasors by
+    // num-complex; f0 comes back from the fit, and from the phase zero crossing to within one
+    // linear-interpolation step.
+    #[test]
+    fn shift_period_and_source_level() {
+        use super::super::inputs::testutil::*;
+        use crate::notebook::Tolerance;
+        use num_complex::Complex64;
+        let (r, rc, l, c, vs): (f64, f64, f64, f64, f64) = (82.0, 6.1, 12.7e-3, 0.33e-6, 1.25);
+        let f0 = 1.0 / (2.0 * PI * (l * c).sqrt());
+        let period = 10.0;
+        let data: Vec<Vec<f64>> = (0..15)
+            .map(|k| {
+                let f = f0 * 0.6 * (2.9f64).powf(k as f64 / 14.0);
+                let w = 2.0 * PI * f;
+                let i = Complex64::new(vs, 0.0) / Complex64::new(r + rc, w * l - 1.0 / (w * c));
+                vec![f, (i * r).norm(), i.arg() / (2.0 * PI) * period, period]
+            })
+            .collect();
+        let mut env = Env::new();
+        env.parts.insert(
+            "R1".into(),
+            resistor("R1", r, Some(Tolerance::Relative(0.01))),
+        );
+        let mut b = block(
+            Network::RLC,
+            &[
+                ("f", Unit::Hz),
+                ("VR", Unit::V),
+                ("shift", Unit::Div),
+                ("period", Unit::Div),
+            ],
+            &data,
+        );
+        b.parts = vec![named("R1")];
+        b.source = Some(vs);
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let get = |n: &str| out.results.iter().find(|x| x.name == n).map(|x| x.m.value);
+        assert!((get("f0").unwrap() / f0 - 1.0).abs() < 1e-9);
+        assert!((get("Rtotal").unwrap() / (r + rc) - 1.0).abs() < 1e-9);
+        assert!((get("f0_phase").unwrap() / f0 - 1.0).abs() < 0.01);
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| f.message.contains("stated source level")));
+    }
+
     #[test]
     fn read_off_parabola_is_exact_for_a_parabola() {
         // A parabola in ln f is recovered exactly by the three-point vertex (algebra).

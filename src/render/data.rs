@@ -38,7 +38,21 @@ fn trim(x: f64) -> String {
     }
     let s = format!("{:.6}", x);
     let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
-    if s == "-0" { "0".into() } else { s.replace('-', "\u{2212}") }
+    if s == "-0" {
+        "0".into()
+    } else {
+        s.replace('-', "\u{2212}")
+    }
+}
+
+/// Significant digits without trailing zeros: 1500 → "1500", 0.25 → "0.25".
+fn trim_sig(x: f64, digits: usize) -> String {
+    let s = sig(x, digits);
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
 }
 
 fn q(qty: &Quantity) -> String {
@@ -71,14 +85,20 @@ pub fn symbol_parts(name: &str) -> (String, String, bool) {
         "BW" => s("B", ""),
         "f0" => s("f", "0"),
         "f0_peak" => s("f", "0,peak"),
-        "f_low" => s("f", "1"),
-        "f_high" => s("f", "2"),
         "phase" => s("φ", "pred"),
         "phase_measured" => s("φ", "meas"),
         "residual" => s("ΔV", "s"),
         "shift" | "period" => (name.to_string(), String::new(), false),
         other => match other.split_once('_') {
-            Some((b, sub)) => s(b, sub),
+            Some((head, tail)) => {
+                let (b, sub, italic) = symbol_parts(head);
+                let sub = if sub.is_empty() {
+                    tail.to_string()
+                } else {
+                    format!("{sub},{tail}")
+                };
+                (b, sub, italic)
+            }
             None if other.chars().count() <= 2 => {
                 let mut cs = other.chars();
                 let b: String = cs.next().map(String::from).unwrap_or_default();
@@ -120,10 +140,14 @@ fn print_unit(u: &str) -> String {
 
 fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::NaiveDate) -> Value {
     let accuracy = match &i.accuracy {
-        Some(Accuracy::Relative { fraction, counts }) if *counts > 0.0 => {
-            Some(format!("±({} of reading + {} counts)", percent(*fraction), trim(*counts)))
+        Some(Accuracy::Relative { fraction, counts }) if *counts > 0.0 => Some(format!(
+            "±({} of reading + {} counts)",
+            percent(*fraction),
+            trim(*counts)
+        )),
+        Some(Accuracy::Relative { fraction, .. }) => {
+            Some(format!("±{} of reading", percent(*fraction)))
         }
-        Some(Accuracy::Relative { fraction, .. }) => Some(format!("±{} of reading", percent(*fraction))),
         Some(Accuracy::Absolute(a)) => Some(format!("±{}", q(a))),
         None => None,
     };
@@ -192,7 +216,15 @@ fn dist_text(d: Dist) -> &'static str {
 fn result_json(r: &NamedResult) -> Value {
     let m = &r.m;
     let (div, unit) = format::scale_for(r.unit, m.value);
-    let with_unit = |x: String| if unit.is_empty() { x } else if unit == "°" { format!("{x}°") } else { format!("{x} {unit}") };
+    let with_unit = |x: String| {
+        if unit.is_empty() {
+            x
+        } else if unit == "°" {
+            format!("{x}°")
+        } else {
+            format!("{x} {unit}")
+        }
+    };
     let (v, e) = format::value_and_u(m.value / div, m.expanded / div);
     let lines: Vec<Value> = m
         .budget
@@ -205,7 +237,7 @@ fn result_json(r: &NamedResult) -> Value {
                 "type": match b.kind { EvalType::A => "A", EvalType::B => "B" },
                 "distribution": dist_text(b.dist),
                 "sensitivity": sci(b.sensitivity, 3),
-                "contribution": with_unit(sig(b.contribution / div, 2)),
+                "contribution": with_unit(sci(b.contribution / div, 2)),
                 "dof": dof_text(b.dof),
             })
         })
@@ -261,43 +293,54 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
             }
         }
     }
-    let fmax = freqs.iter().copied().fold(0.0, f64::max);
-    let (fdiv, fprefix) = format::prefix_for(fmax);
+    let fmin = freqs
+        .iter()
+        .copied()
+        .filter(|f| *f > 0.0)
+        .fold(f64::INFINITY, f64::min);
+    let (fdiv, fprefix) = format::prefix_for(if fmin.is_finite() { fmin } else { 1.0 });
     let mut columns = Vec::new();
     let mut scales = Vec::new();
     for name in &names {
         let of: Vec<&NamedResult> = block.rows.iter().filter(|r| r.name == *name).collect();
         let unit = of.first().map(|r| r.unit).unwrap_or(Unit::One);
-        let mut mags: Vec<f64> = of.iter().map(|r| r.m.value.abs()).filter(|v| v.is_finite()).collect();
+        let mut mags: Vec<f64> = of
+            .iter()
+            .map(|r| r.m.value.abs())
+            .filter(|v| v.is_finite())
+            .collect();
         mags.sort_by(f64::total_cmp);
         let median = mags.get(mags.len() / 2).copied().unwrap_or(0.0);
         let (div, utext) = format::scale_for(unit, median);
         let ks: Vec<String> = of.iter().map(|r| k_text(r.m.k)).collect();
         let common_k = ks.first().filter(|k0| ks.iter().all(|k| k == *k0)).cloned();
-        columns.push(json!({ "name": name, "symbol": symbol_json(name), "unit": utext, "k": common_k }));
+        columns.push(
+            json!({ "name": name, "symbol": symbol_json(name), "unit": utext, "k": common_k }),
+        );
         scales.push((div, common_k.is_none()));
     }
     let rows: Vec<Value> = freqs
         .iter()
         .map(|&f| {
-            let cells: Vec<String> = names
+            let cells: Vec<Value> = names
                 .iter()
                 .zip(&scales)
                 .map(|(name, (div, show_k))| {
-                    match block.rows.iter().find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f))) {
+                    match block
+                        .rows
+                        .iter()
+                        .find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f)))
+                    {
                         Some(r) => {
                             let (v, e) = format::value_and_u(r.m.value / div, r.m.expanded / div);
-                            if *show_k {
-                                format!("{v} ± {e} (k = {})", k_text(r.m.k))
-                            } else {
-                                format!("{v} ± {e}")
-                            }
+                            let k = if *show_k { Some(k_text(r.m.k)) } else { None };
+                            json!({ "text": format!("{v} ± {e}"), "k": k })
                         }
-                        None => "—".into(),
+                        None => json!({ "text": "—", "k": null }),
                     }
                 })
                 .collect();
-            json!({ "f": sig(f / fdiv, 4), "cells": cells })
+            json!({ "f": trim_sig(f / fdiv, 5), "cells": cells })
         })
         .collect();
     let grid = json!({ "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows });
@@ -309,21 +352,37 @@ fn same_f(a: f64, b: f64) -> bool {
 }
 
 /// The tolerance band to draw for a block: from its verdict, else from the part.
-fn band_for(record: &Record, rb: &ReadingsBlock, block: &BlockResult) -> Option<(&'static str, f64, f64)> {
+fn band_for(
+    record: &Record,
+    rb: &ReadingsBlock,
+    block: &BlockResult,
+) -> Option<(&'static str, f64, f64)> {
     let want: &'static str = match block.network {
         crate::notebook::Network::RC => "C",
         crate::notebook::Network::RL => "L",
         _ => return None,
     };
-    if let Some(v) = record.verdicts.iter().find(|v| v.block == block.id && v.name == want) {
+    if let Some(v) = record
+        .verdicts
+        .iter()
+        .find(|v| v.block == block.id && v.name == want)
+    {
         return Some((want, v.low, v.high));
     }
-    let kind = if want == "C" { PartKind::Capacitor } else { PartKind::Inductor };
-    rb.parts.iter().filter_map(|n| record.notebook.front.parts.get(&n.name)).find(|p| p.kind == kind).and_then(|p| {
-        let nominal = p.nominal.as_ref()?.value;
-        let (lo, hi) = crate::judge::tolerance_interval(nominal, p.tolerance.as_ref()?);
-        Some((want, lo, hi))
-    })
+    let kind = if want == "C" {
+        PartKind::Capacitor
+    } else {
+        PartKind::Inductor
+    };
+    rb.parts
+        .iter()
+        .filter_map(|n| record.notebook.front.parts.get(&n.name))
+        .find(|p| p.kind == kind)
+        .and_then(|p| {
+            let nominal = p.nominal.as_ref()?.value;
+            let (lo, hi) = crate::judge::tolerance_interval(nominal, p.tolerance.as_ref()?);
+            Some((want, lo, hi))
+        })
 }
 
 fn outcome_word(o: Outcome) -> &'static str {
@@ -337,8 +396,16 @@ fn outcome_word(o: Outcome) -> &'static str {
 /// A file name safe as a PDF attachment name and a virtual path.
 fn attachment_name(source_name: &str) -> String {
     let base = source_name.rsplit(['/', '\\']).next().unwrap_or("");
-    let clean: String =
-        base.chars().map(|c| if c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_') { c } else { '_' }).collect();
+    let clean: String = base
+        .chars()
+        .map(|c| {
+            if c.is_ascii_alphanumeric() || matches!(c, '.' | '-' | '_') {
+                c
+            } else {
+                '_'
+            }
+        })
+        .collect();
     let clean = clean.trim_start_matches('.').to_string();
     if clean.is_empty() || clean == "main.typ" || clean == "data.json" {
         "notebook.md".into()
@@ -354,7 +421,10 @@ fn image_ext(path: &str, bytes: &[u8]) -> &'static str {
         "jpg"
     } else if bytes.starts_with(b"GIF8") {
         "gif"
-    } else if bytes.len() > 12 && bytes.get(0..4) == Some(b"RIFF") && bytes.get(8..12) == Some(b"WEBP") {
+    } else if bytes.len() > 12
+        && bytes.get(0..4) == Some(b"RIFF")
+        && bytes.get(8..12) == Some(b"WEBP")
+    {
         "webp"
     } else if path.to_ascii_lowercase().ends_with(".svg") {
         "svg"
@@ -383,9 +453,14 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         if let Some(t) = record.citations.get(key) {
             return Some(t.clone());
         }
-        crate::judge::resolve_citation(&record.reduction, key).ok().map(crate::judge::cite_text)
+        crate::judge::resolve_citation(&record.reduction, key)
+            .ok()
+            .map(crate::judge::cite_text)
     };
-    let ctx = Context { image: &image, cite: &cite };
+    let ctx = Context {
+        image: &image,
+        cite: &cite,
+    };
 
     let mut items = Vec::new();
     let mut prose_n = 0usize;
@@ -437,14 +512,20 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         .collect();
     let sign = match &record.sign {
         SignState::Unsigned => json!({ "state": "unsigned", "reason": "not signed" }),
-        SignState::Valid { by, on, digest } => json!({ "state": "valid", "by": by, "on": on, "digest": digest }),
+        SignState::Valid { by, on, digest } => {
+            json!({ "state": "valid", "by": by, "on": on, "digest": digest })
+        }
         SignState::Void { by, on, recorded } => json!({
             "state": "void", "by": by, "on": on, "recorded": recorded,
             "reason": format!("signed by {by} on {on}, but the readings changed after signing"),
         }),
     };
     let attachment = format!("/{}", attachment_name(&assets.source_name));
-    let bytes = if assets.source.is_empty() { nb.source.as_bytes().to_vec() } else { assets.source.clone() };
+    let bytes = if assets.source.is_empty() {
+        nb.source.as_bytes().to_vec()
+    } else {
+        assets.source.clone()
+    };
     files.insert(attachment.clone(), bytes);
 
     let date = fm.date;
@@ -483,7 +564,11 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
     });
     let text = serde_json::to_vec_pretty(&data).map_err(|e| format!("template data: {e}"))?;
     files.insert("/data.json".into(), text);
-    Ok(Generated { files, sources, attachment })
+    Ok(Generated {
+        files,
+        sources,
+        attachment,
+    })
 }
 
 fn readings_json(
@@ -526,7 +611,10 @@ fn readings_json(
     let Some(block) = block else { return Ok(out) };
     let (long, grid) = frequency_json(block);
     let mut plots_json = Vec::new();
-    for (n, p) in plots::block_plots(block, band_for(record, rb, block))?.into_iter().enumerate() {
+    for (n, p) in plots::block_plots(block, band_for(record, rb, block))?
+        .into_iter()
+        .enumerate()
+    {
         let path = format!("/plots/{index}-{n}.svg");
         files.insert(path.clone(), p.svg.into_bytes());
         plots_json.push(json!({ "file": path, "caption": p.caption }));
@@ -547,7 +635,10 @@ fn readings_json(
     if let Value::Object(map) = &mut out {
         map.insert("frequency_results".into(), long);
         map.insert("frequency_grid".into(), grid);
-        map.insert("results".into(), Value::Array(block.results.iter().map(result_json).collect()));
+        map.insert(
+            "results".into(),
+            Value::Array(block.results.iter().map(result_json).collect()),
+        );
         map.insert(
             "correlations".into(),
             Value::Array(
@@ -563,7 +654,16 @@ fn readings_json(
                     .collect(),
             ),
         );
-        map.insert("flags".into(), Value::Array(block.flags.iter().map(|f| Value::from(f.message.clone())).collect()));
+        map.insert(
+            "flags".into(),
+            Value::Array(
+                block
+                    .flags
+                    .iter()
+                    .map(|f| Value::from(f.message.clone()))
+                    .collect(),
+            ),
+        );
         map.insert("verdicts".into(), Value::Array(verdicts));
         map.insert("plots".into(), Value::Array(plots_json));
     }
@@ -580,6 +680,13 @@ mod tests {
         assert_eq!(symbol_parts("XL_dcr"), ("X".into(), "L,dcr".into(), true));
         assert_eq!(symbol_parts("f0"), ("f".into(), "0".into(), true));
         assert_eq!(symbol_parts("period"), ("period".into(), "".into(), false));
+        assert_eq!(
+            symbol_parts("f0_phase"),
+            ("f".into(), "0,phase".into(), true)
+        );
+        assert_eq!(symbol_parts("f_low"), ("f".into(), "low".into(), true));
+        assert_eq!(trim_sig(1500.0, 5), "1500");
+        assert_eq!(trim_sig(0.25, 5), "0.25");
     }
 
     #[test]

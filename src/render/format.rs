@@ -59,7 +59,11 @@ pub fn prefix_for(magnitude: f64) -> (f64, &'static str) {
     let e = (m.log10() + 1e-9).floor() as i32;
     let e3 = e.div_euclid(3) * 3;
     let e3 = e3.clamp(-12, 12);
-    let p = PREFIXES.iter().find(|(x, _)| *x == e3).map(|(_, p)| *p).unwrap_or("");
+    let p = PREFIXES
+        .iter()
+        .find(|(x, _)| *x == e3)
+        .map(|(_, p)| *p)
+        .unwrap_or("");
     (10f64.powi(e3), p)
 }
 
@@ -230,7 +234,10 @@ pub fn interval(low: f64, high: f64, unit: Unit) -> String {
     let w = ((high - low) / div).abs();
     // Two significant digits of the width, enough to tell the ends apart.
     let d = decimals_for_u(w).unwrap_or(3);
-    join_unit(format!("[{}, {}]", fixed(low / div, d), fixed(high / div, d)), &u)
+    join_unit(
+        format!("[{}, {}]", fixed(low / div, d), fixed(high / div, d)),
+        &u,
+    )
 }
 
 #[cfg(test)]
@@ -241,9 +248,15 @@ mod tests {
     // the same place. GUM 7.2.4 example (from memory): m_S = (100.021 47 ± 0.000 79) g.
     #[test]
     fn gum_726_rounding() {
-        assert_eq!(value_and_u(100.02147, 0.00079), ("100.02147".into(), "0.00079".into()));
+        assert_eq!(
+            value_and_u(100.02147, 0.00079),
+            ("100.02147".into(), "0.00079".into())
+        );
         // Rounding: 0.0347 → 0.035 and the value to three decimals.
-        assert_eq!(value_and_u(4.71234, 0.0347), ("4.712".into(), "0.035".into()));
+        assert_eq!(
+            value_and_u(4.71234, 0.0347),
+            ("4.712".into(), "0.035".into())
+        );
         assert_eq!(value_and_u(468.26, 2.14), ("468.3".into(), "2.1".into()));
         assert_eq!(value_and_u(12345.0, 230.0), ("12345".into(), "230".into()));
     }
@@ -261,7 +274,10 @@ mod tests {
             "(468.3 ± 2.1) nF (k = 2.00)"
         );
         // Phases print in degrees: 0.5 rad = 28.6479°.
-        assert_eq!(value_u_k(0.5, 0.01, 2.0, Unit::Rad), "(28.65 ± 0.57)° (k = 2.00)");
+        assert_eq!(
+            value_u_k(0.5, 0.01, 2.0, Unit::Rad),
+            "(28.65 ± 0.57)° (k = 2.00)"
+        );
     }
 
     #[test]

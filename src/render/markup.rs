@@ -57,10 +57,19 @@ enum Kind {
     Paragraph,
     Heading(u8),
     Quote,
-    Code { lang: Option<String> },
-    List { start: Option<u64>, items: Vec<String> },
+    Code {
+        lang: Option<String>,
+    },
+    List {
+        start: Option<u64>,
+        items: Vec<String>,
+    },
     Item,
-    Table { aligns: Vec<Alignment>, head: Vec<String>, body: Vec<String> },
+    Table {
+        aligns: Vec<Alignment>,
+        head: Vec<String>,
+        body: Vec<String>,
+    },
     Head,
     Row,
     Cell,
@@ -69,8 +78,12 @@ enum Kind {
     Strike,
     Sup,
     Sub,
-    Link { url: String },
-    Image { url: String },
+    Link {
+        url: String,
+    },
+    Image {
+        url: String,
+    },
     Html,
     Other,
 }
@@ -85,7 +98,11 @@ struct Frame {
 /// Convert one run of Markdown prose to Typst markup.
 pub fn markdown_to_typst(md: &str, ctx: &Context) -> String {
     let opts = Options::ENABLE_TABLES | Options::ENABLE_STRIKETHROUGH | Options::ENABLE_TASKLISTS;
-    let mut stack: Vec<Frame> = vec![Frame { kind: Kind::Root, buf: String::new(), plain: String::new() }];
+    let mut stack: Vec<Frame> = vec![Frame {
+        kind: Kind::Root,
+        buf: String::new(),
+        plain: String::new(),
+    }];
     for ev in Parser::new_ext(md, opts) {
         match ev {
             Event::Start(tag) => {
@@ -102,9 +119,16 @@ pub fn markdown_to_typst(md: &str, ctx: &Context) -> String {
                         },
                     },
                     Tag::HtmlBlock => Kind::Html,
-                    Tag::List(start) => Kind::List { start, items: Vec::new() },
+                    Tag::List(start) => Kind::List {
+                        start,
+                        items: Vec::new(),
+                    },
                     Tag::Item => Kind::Item,
-                    Tag::Table(aligns) => Kind::Table { aligns, head: Vec::new(), body: Vec::new() },
+                    Tag::Table(aligns) => Kind::Table {
+                        aligns,
+                        head: Vec::new(),
+                        body: Vec::new(),
+                    },
                     Tag::TableHead => Kind::Head,
                     Tag::TableRow => Kind::Row,
                     Tag::TableCell => Kind::Cell,
@@ -113,11 +137,19 @@ pub fn markdown_to_typst(md: &str, ctx: &Context) -> String {
                     Tag::Strikethrough => Kind::Strike,
                     Tag::Superscript => Kind::Sup,
                     Tag::Subscript => Kind::Sub,
-                    Tag::Link { dest_url, .. } => Kind::Link { url: dest_url.to_string() },
-                    Tag::Image { dest_url, .. } => Kind::Image { url: dest_url.to_string() },
+                    Tag::Link { dest_url, .. } => Kind::Link {
+                        url: dest_url.to_string(),
+                    },
+                    Tag::Image { dest_url, .. } => Kind::Image {
+                        url: dest_url.to_string(),
+                    },
                     _ => Kind::Other,
                 };
-                stack.push(Frame { kind, buf: String::new(), plain: String::new() });
+                stack.push(Frame {
+                    kind,
+                    buf: String::new(),
+                    plain: String::new(),
+                });
             }
             Event::End(end) => {
                 if matches!(end, TagEnd::TableHead | TagEnd::TableRow) {
@@ -239,7 +271,11 @@ fn close(frame: Frame, stack: &mut Vec<Frame>, ctx: &Context) {
             }
         }
         Kind::Item => {
-            if let Some(Frame { kind: Kind::List { items, .. }, .. }) = stack.last_mut() {
+            if let Some(Frame {
+                kind: Kind::List { items, .. },
+                ..
+            }) = stack.last_mut()
+            {
                 items.push(buf);
             }
             return;
@@ -290,7 +326,11 @@ fn close(frame: Frame, stack: &mut Vec<Frame>, ctx: &Context) {
             ),
             None => format!(
                 "#emph[{}]; \\[image {} not available\\]",
-                if buf.is_empty() { escape_markup("(no description)") } else { buf },
+                if buf.is_empty() {
+                    escape_markup("(no description)")
+                } else {
+                    buf
+                },
                 escape_markup(&url)
             ),
         },
@@ -306,14 +346,33 @@ mod tests {
     use super::*;
 
     fn conv(md: &str) -> String {
-        let image = |p: &str| if p == "scope.png" { Some("/images/0.png".to_string()) } else { None };
-        let cite = |c: &str| if c == "=tank.f0" { Some("(1.234 ± 0.012) kHz".to_string()) } else { None };
-        markdown_to_typst(md, &Context { image: &image, cite: &cite })
+        let image = |p: &str| {
+            if p == "scope.png" {
+                Some("/images/0.png".to_string())
+            } else {
+                None
+            }
+        };
+        let cite = |c: &str| {
+            if c == "=tank.f0" {
+                Some("(1.234 ± 0.012) kHz".to_string())
+            } else {
+                None
+            }
+        };
+        markdown_to_typst(
+            md,
+            &Context {
+                image: &image,
+                cite: &cite,
+            },
+        )
     }
 
     #[test]
     fn escapes_every_markup_character() {
-        let e = escape_markup(r#"#read("/etc/passwd") $x$ @ref <l> \ * _ ` [ ] ~ = - + / 1. http://x"#);
+        let e =
+            escape_markup(r#"#read("/etc/passwd") $x$ @ref <l> \ * _ ` [ ] ~ = - + / 1. http://x"#);
         // Every markup-significant character is preceded by a backslash (an escape).
         let cs: Vec<char> = e.chars().collect();
         let mut i = 0;
@@ -322,7 +381,11 @@ mod tests {
                 i += 2;
                 continue;
             }
-            assert!(!cs[i].is_ascii_punctuation() || cs[i] == '"', "bare {:?} in {e}", cs[i]);
+            assert!(
+                !cs[i].is_ascii_punctuation() || cs[i] == '"',
+                "bare {:?} in {e}",
+                cs[i]
+            );
             i += 1;
         }
         assert!(e.contains("\\#read\\(\"\\/etc\\/passwd\"\\)"));
@@ -345,11 +408,20 @@ mod tests {
         assert!(t.contains("#raw(\"=nope.x\");"));
 
         let t = conv("- a\n  - b\n- c\n\n3. x\n4. y\n");
-        assert!(t.contains("#list([a\n\n#list([b]);], [c]);") || t.contains("#list([a#list([b]);], [c]);"), "{t}");
+        assert!(
+            t.contains("#list([a\n\n#list([b]);], [c]);")
+                || t.contains("#list([a#list([b]);], [c]);"),
+            "{t}"
+        );
         assert!(t.contains("#enum(start: 3, [x], [y]);"));
 
         let t = conv("| a | b |\n|:--|--:|\n| 1 | 2 |\n");
-        assert!(t.contains("#table(columns: 2, align: (left, right,), table.header([a], [b]), [1], [2]);"), "{t}");
+        assert!(
+            t.contains(
+                "#table(columns: 2, align: (left, right,), table.header([a], [b]), [1], [2]);"
+            ),
+            "{t}"
+        );
 
         let t = conv("[site](https://example.org/x) ![scope trace](scope.png) ![gone](other.png)");
         assert!(t.contains("site (https\\:\\/\\/example\\.org\\/x)"));

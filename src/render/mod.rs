@@ -48,7 +48,9 @@ pub struct RenderError {
 
 impl RenderError {
     fn one(msg: impl Into<String>) -> Self {
-        RenderError { messages: vec![msg.into()] }
+        RenderError {
+            messages: vec![msg.into()],
+        }
     }
 }
 
@@ -70,9 +72,17 @@ pub struct Compiled {
 /// Build the world for a record: the template as main, generated files, the source.
 pub fn build_world(record: &Record, assets: &Assets) -> Result<RecordWorld, RenderError> {
     let generated = data::generate(record, assets).map_err(RenderError::one)?;
-    let template = assets.template.clone().unwrap_or_else(|| BUILTIN_TEMPLATE.to_string());
-    RecordWorld::new(template, generated.sources, generated.files, record.notebook.front.date)
-        .ok_or_else(|| RenderError::one("cannot set up the typesetting world (bad date?)"))
+    let template = assets
+        .template
+        .clone()
+        .unwrap_or_else(|| BUILTIN_TEMPLATE.to_string());
+    RecordWorld::new(
+        template,
+        generated.sources,
+        generated.files,
+        record.notebook.front.date,
+    )
+    .ok_or_else(|| RenderError::one("cannot set up the typesetting world (bad date?)"))
 }
 
 /// Where the template came from, for messages.
@@ -119,10 +129,23 @@ pub fn compile(record: &Record, assets: &Assets) -> Result<Compiled, RenderError
     let user = assets.template.is_some();
     let tname = template_name(record, assets);
     let warned = typst::compile::<PagedDocument>(&world);
-    let warnings: Vec<String> = warned.warnings.iter().map(|d| describe(&world, d, &tname, user)).collect();
+    let warnings: Vec<String> = warned
+        .warnings
+        .iter()
+        .map(|d| describe(&world, d, &tname, user))
+        .collect();
     match warned.output {
-        Ok(document) => Ok(Compiled { document, world, warnings }),
-        Err(errors) => Err(RenderError { messages: errors.iter().map(|d| describe(&world, d, &tname, user)).collect() }),
+        Ok(document) => Ok(Compiled {
+            document,
+            world,
+            warnings,
+        }),
+        Err(errors) => Err(RenderError {
+            messages: errors
+                .iter()
+                .map(|d| describe(&world, d, &tname, user))
+                .collect(),
+        }),
     }
 }
 
@@ -152,7 +175,10 @@ pub fn render_pdf(record: &Record, assets: &Assets) -> Result<Vec<u8>, RenderErr
     };
     let tname = template_name(record, assets);
     typst_pdf::pdf(&compiled.document, &options).map_err(|errs| RenderError {
-        messages: errs.iter().map(|e| describe(&compiled.world, e, &tname, assets.template.is_some())).collect(),
+        messages: errs
+            .iter()
+            .map(|e| describe(&compiled.world, e, &tname, assets.template.is_some()))
+            .collect(),
     })
 }
 
@@ -215,31 +241,75 @@ pub(crate) mod tests {
         let mut plot_pm = Vec::new();
         for &f in &freqs {
             let x = xc(f);
-            rows.push(NamedResult { name: "XC".into(), f: Some(f), unit: Unit::Ohm, m: measured(x, x * 0.004) });
-            rows.push(NamedResult { name: "C".into(), f: Some(f), unit: Unit::F, m: measured(c_nom * 1.012, 0.9e-9) });
+            rows.push(NamedResult {
+                name: "XC".into(),
+                f: Some(f),
+                unit: Unit::Ohm,
+                m: measured(x, x * 0.004),
+            });
+            rows.push(NamedResult {
+                name: "C".into(),
+                f: Some(f),
+                unit: Unit::F,
+                m: measured(c_nom * 1.012, 0.9e-9),
+            });
             let ph = (x / 1500.0).atan();
-            rows.push(NamedResult { name: "phase".into(), f: Some(f), unit: Unit::Rad, m: measured(ph, 0.004) });
+            rows.push(NamedResult {
+                name: "phase".into(),
+                f: Some(f),
+                unit: Unit::Rad,
+                m: measured(ph, 0.004),
+            });
             plot_c.push((f, c_nom * 1.012 * (1.0 + 1e-6 * f), 1.8e-9));
             plot_ph.push((f, ph, 0.008));
             plot_pm.push((f, ph + 0.01, 0.02));
         }
-        let cell = |t: &str, v: f64| Cell { value: v, text: t.into(), span: s };
-        let col = |sym: &str, unit: Unit, h: &str| Column { symbol: sym.into(), unit, heading: h.into(), span: s };
+        let cell = |t: &str, v: f64| Cell {
+            value: v,
+            text: t.into(),
+            span: s,
+        };
+        let col = |sym: &str, unit: Unit, h: &str| Column {
+            symbol: sym.into(),
+            unit,
+            heading: h.into(),
+            span: s,
+        };
         let block = ReadingsBlock {
             id: "cap-sweep".into(),
             id_span: s,
             network: Network::RC,
-            parts: vec![Named { name: "R1".into(), span: s }, Named { name: "C1".into(), span: s }],
-            meter: Some(Named { name: "dmm".into(), span: s }),
+            parts: vec![
+                Named {
+                    name: "R1".into(),
+                    span: s,
+                },
+                Named {
+                    name: "C1".into(),
+                    span: s,
+                },
+            ],
+            meter: Some(Named {
+                name: "dmm".into(),
+                span: s,
+            }),
             phase: None,
             counter: None,
             note: Some("Sweep of C1 with R1 in series, source held at 2 V.".into()),
             source: Some(2.0),
-            columns: vec![col("f", Unit::Hz, "f/Hz"), col("VR", Unit::V, "VR/V"), col("VC", Unit::V, "VC/V")],
+            columns: vec![
+                col("f", Unit::Hz, "f/Hz"),
+                col("VR", Unit::V, "VR/V"),
+                col("VC", Unit::V, "VC/V"),
+            ],
             rows: freqs
                 .iter()
                 .map(|&f| Row {
-                    cells: vec![cell(&format!("{f}"), f), cell("0.98", 0.98), cell("1.73", 1.73)],
+                    cells: vec![
+                        cell(&format!("{f}"), f),
+                        cell("0.98", 0.98),
+                        cell("1.73", 1.73),
+                    ],
                     span: s,
                 })
                 .collect(),
@@ -247,17 +317,29 @@ pub(crate) mod tests {
             body: String::new(),
         };
         let mut items = Vec::new();
-        items.push(Item::Prose { text: prose.to_string(), span: s });
+        items.push(Item::Prose {
+            text: prose.to_string(),
+            span: s,
+        });
         items.push(Item::Readings(block));
-        items.push(Item::Prose { text: "Closing remark: C1 cited as `=cap-sweep.C`.\n".into(), span: s });
+        items.push(Item::Prose {
+            text: "Closing remark: C1 cited as `=cap-sweep.C`.\n".into(),
+            span: s,
+        });
         let mut instruments = BTreeMap::new();
         instruments.insert(
             "dmm".to_string(),
             Instrument {
                 name: "dmm".into(),
                 what: Some("bench multimeter, 4½ digits".into()),
-                accuracy: Some(Accuracy::Relative { fraction: 0.005, counts: 3.0 }),
-                resolution: Some(Quantity { value: 0.001, unit: Unit::V }),
+                accuracy: Some(Accuracy::Relative {
+                    fraction: 0.005,
+                    counts: 3.0,
+                }),
+                resolution: Some(Quantity {
+                    value: 0.001,
+                    unit: Unit::V,
+                }),
                 bandwidth: Some(20e3),
                 calibrated: NaiveDate::from_ymd_opt(2025, 6, 1),
                 due: NaiveDate::from_ymd_opt(2026, 6, 1),
@@ -270,7 +352,10 @@ pub(crate) mod tests {
         let part = |name: &str, kind, nominal: f64, unit| Part {
             name: name.into(),
             kind,
-            nominal: Some(Quantity { value: nominal, unit }),
+            nominal: Some(Quantity {
+                value: nominal,
+                unit,
+            }),
             tolerance: Some(Tolerance::Code('J', 0.05)),
             measured: None,
             measured_by: None,
@@ -279,8 +364,14 @@ pub(crate) mod tests {
             rating: None,
             span: s,
         };
-        parts.insert("R1".to_string(), part("R1", PartKind::Resistor, 1500.0, Unit::Ohm));
-        parts.insert("C1".to_string(), part("C1", PartKind::Capacitor, c_nom, Unit::F));
+        parts.insert(
+            "R1".to_string(),
+            part("R1", PartKind::Resistor, 1500.0, Unit::Ohm),
+        );
+        parts.insert(
+            "C1".to_string(),
+            part("C1", PartKind::Capacitor, c_nom, Unit::F),
+        );
         let source = format!("---\nrecord: BR-0042\n---\n{prose}\n");
         let notebook = Notebook {
             source,
@@ -303,17 +394,34 @@ pub(crate) mod tests {
             front_span: s,
             items,
         };
-        let c_block = NamedResult { name: "C".into(), f: None, unit: Unit::F, m: measured(c_nom * 1.012, 0.9e-9) };
+        let c_block = NamedResult {
+            name: "C".into(),
+            f: None,
+            unit: Unit::F,
+            m: measured(c_nom * 1.012, 0.9e-9),
+        };
         let reduction = Reduction {
             blocks: vec![BlockResult {
                 id: "cap-sweep".into(),
                 network: Network::RC,
                 rows,
                 results: vec![c_block],
-                correlations: vec![Correlation { a: "XC".into(), b: "phase".into(), r: -0.31, f: Some(1000.0) }],
-                flags: vec![Flag { span: None, message: "row 5: VC near the meter's range limit".into() }],
+                correlations: vec![Correlation {
+                    a: "XC".into(),
+                    b: "phase".into(),
+                    r: -0.31,
+                    f: Some(1000.0),
+                }],
+                flags: vec![Flag {
+                    span: None,
+                    message: "row 5: VC near the meter's range limit".into(),
+                }],
                 plot: PlotData {
-                    series: vec![("C".into(), plot_c), ("phase".into(), plot_ph), ("phase_measured".into(), plot_pm)],
+                    series: vec![
+                        ("C".into(), plot_c),
+                        ("phase".into(), plot_ph),
+                        ("phase_measured".into(), plot_pm),
+                    ],
                     curves: vec![],
                     markers: vec![],
                 },
@@ -375,7 +483,8 @@ pub(crate) mod tests {
         s
     }
 
-    const HOSTILE: &str = "# Notes\n\nTried #read(\"/etc/passwd\") and #include \"x\" and $x$ and @ref, \
+    const HOSTILE: &str =
+        "# Notes\n\nTried #read(\"/etc/passwd\") and #include \"x\" and $x$ and @ref, \
         a back\\\\slash, <label> and `#image(\"/etc/hosts\")` code.\n\n\
         - item with #eval(\"1+1\") and [link](#read) ![pic](../../etc/shadow)\n\n\
         | a | b |\n|---|---|\n| #x | `y` |\n\n```\n#include \"/etc/passwd\"\n```\n";
@@ -383,11 +492,26 @@ pub(crate) mod tests {
     #[test]
     fn hostile_prose_is_literal_and_the_world_serves_only_its_files() {
         let rec = sample_record(HOSTILE, SignState::Unsigned);
-        let assets = Assets { source_name: "cap.md".into(), ..Assets::default() };
+        let assets = Assets {
+            source_name: "cap.md".into(),
+            ..Assets::default()
+        };
         let c = compile(&rec, &assets).expect("compiles");
         let text = text_of(&c);
-        for lit in ["#read(", "/etc/passwd", "#include", "$x$", "@ref", "<label>", "#eval(", "#image("] {
-            assert!(text.replace(' ', "").contains(&lit.replace(' ', "")), "`{lit}` not printed literally in:\n{text}");
+        for lit in [
+            "#read(",
+            "/etc/passwd",
+            "#include",
+            "$x$",
+            "@ref",
+            "<label>",
+            "#eval(",
+            "#image(",
+        ] {
+            assert!(
+                text.replace(' ', "").contains(&lit.replace(' ', "")),
+                "`{lit}` not printed literally in:\n{text}"
+            );
         }
         assert!(text.contains("back\\slash"), "backslash kept");
         // Every request is a file the world serves (no /etc/..., no x).
@@ -399,7 +523,10 @@ pub(crate) mod tests {
                 || p.starts_with("/plots/");
             assert!(ok, "world was asked for {p}");
         }
-        assert!(c.world.requested().iter().any(|p| p == "/cap.md"), "attachment read");
+        assert!(
+            c.world.requested().iter().any(|p| p == "/cap.md"),
+            "attachment read"
+        );
     }
 
     #[test]
@@ -419,15 +546,24 @@ pub(crate) mod tests {
             "Ω µF 23 °C",
         ];
         for sample in samples {
-            let main = format!("#set page(width: 40cm, height: auto)\n{}", markup::escape_markup(sample));
+            let main = format!(
+                "#set page(width: 40cm, height: auto)\n{}",
+                markup::escape_markup(sample)
+            );
             let date = NaiveDate::from_ymd_opt(2026, 1, 2).unwrap();
             let w = RecordWorld::new(main, BTreeMap::new(), BTreeMap::new(), date).unwrap();
-            let doc = typst::compile::<PagedDocument>(&w).output.expect("compiles");
+            let doc = typst::compile::<PagedDocument>(&w)
+                .output
+                .expect("compiles");
             let mut got = String::new();
             for p in doc.pages() {
                 collect_text(&p.frame, &mut got);
             }
-            assert_eq!(got.replace(' ', ""), sample.replace(' ', ""), "sample {sample:?}");
+            assert_eq!(
+                got.replace(' ', ""),
+                sample.replace(' ', ""),
+                "sample {sample:?}"
+            );
             assert_eq!(w.requested(), vec![world::MAIN_PATH.to_string()]);
         }
     }
@@ -449,13 +585,21 @@ pub(crate) mod tests {
         let mut rec = sample_record("x", SignState::Unsigned);
         rec.notebook.front.template = Some(("lab.typ".into(), Span::default()));
         let assets = Assets {
-            template: Some("#let d = json(\"/data.json\")\nRecord #d.record\n#undefined-thing\n".into()),
+            template: Some(
+                "#let d = json(\"/data.json\")\nRecord #d.record\n#undefined-thing\n".into(),
+            ),
             ..Assets::default()
         };
         let err = compile(&rec, &assets).err().expect("fails");
-        assert!(err.messages.iter().any(|m| m.starts_with("lab.typ:3:")), "{err}");
+        assert!(
+            err.messages.iter().any(|m| m.starts_with("lab.typ:3:")),
+            "{err}"
+        );
 
-        let assets = Assets { template: Some("#read(\"/etc/passwd\")\n".into()), ..Assets::default() };
+        let assets = Assets {
+            template: Some("#read(\"/etc/passwd\")\n".into()),
+            ..Assets::default()
+        };
         let err = compile(&rec, &assets).err().expect("refused");
         assert!(err.to_string().contains("lab.typ:1:"), "{err}");
     }
@@ -465,7 +609,12 @@ pub(crate) mod tests {
         let mut out = Vec::new();
         for obj in doc.objects.values() {
             if let lopdf::Object::Stream(s) = obj {
-                let is_file = s.dict.get(b"Type").and_then(|t| t.as_name()).map(|n| n == b"EmbeddedFile").unwrap_or(false);
+                let is_file = s
+                    .dict
+                    .get(b"Type")
+                    .and_then(|t| t.as_name())
+                    .map(|n| n == b"EmbeddedFile")
+                    .unwrap_or(false);
                 if is_file {
                     let bytes = if s.dict.get(b"Filter").is_ok() {
                         s.decompressed_content().expect("inflates")
@@ -483,9 +632,18 @@ pub(crate) mod tests {
         let doc = lopdf::Document::load_mem(pdf).expect("PDF parses");
         for obj in doc.objects.values() {
             if let lopdf::Object::Stream(s) = obj {
-                let is_meta = s.dict.get(b"Type").and_then(|t| t.as_name()).map(|n| n == b"Metadata").unwrap_or(false);
+                let is_meta = s
+                    .dict
+                    .get(b"Type")
+                    .and_then(|t| t.as_name())
+                    .map(|n| n == b"Metadata")
+                    .unwrap_or(false);
                 if is_meta {
-                    let bytes = if s.dict.get(b"Filter").is_ok() { s.decompressed_content().unwrap_or_default() } else { s.content.clone() };
+                    let bytes = if s.dict.get(b"Filter").is_ok() {
+                        s.decompressed_content().unwrap_or_default()
+                    } else {
+                        s.content.clone()
+                    };
                     return String::from_utf8_lossy(&bytes).into_owned();
                 }
             }
@@ -497,7 +655,11 @@ pub(crate) mod tests {
     fn pdf_is_deterministic_pdfa3b_and_carries_the_source() {
         let rec = sample_record("Some *prose* with `=cap-sweep.C`.\n", SignState::Unsigned);
         let raw = b"\xEF\xBB\xBF---\r\nrecord: BR-0042\r\n---\r\nexact bytes\r\n".to_vec();
-        let assets = Assets { source_name: "cap sweep.md".into(), source: raw.clone(), ..Assets::default() };
+        let assets = Assets {
+            source_name: "cap sweep.md".into(),
+            source: raw.clone(),
+            ..Assets::default()
+        };
         let a = render_pdf(&rec, &assets).expect("renders");
         let b = render_pdf(&rec, &assets).expect("renders");
         assert!(a.starts_with(b"%PDF-"));
@@ -506,21 +668,33 @@ pub(crate) mod tests {
         // ISO 19005-3 §6.6.4 (PDF/A identification in XMP): pdfaid:part 3, conformance B.
         let x = xmp(&a);
         let part = x.contains("<pdfaid:part>3</pdfaid:part>") || x.contains("pdfaid:part=\"3\"");
-        let conf = x.contains("<pdfaid:conformance>B</pdfaid:conformance>") || x.contains("pdfaid:conformance=\"B\"");
+        let conf = x.contains("<pdfaid:conformance>B</pdfaid:conformance>")
+            || x.contains("pdfaid:conformance=\"B\"");
         assert!(part && conf, "XMP: {x}");
         // Without raw bytes, the parsed source is attached.
         let c = render_pdf(&rec, &Assets::default()).expect("renders");
-        assert_eq!(embedded_files(&c), vec![rec.notebook.source.as_bytes().to_vec()]);
+        assert_eq!(
+            embedded_files(&c),
+            vec![rec.notebook.source.as_bytes().to_vec()]
+        );
     }
 
     #[test]
     fn signed_and_void_records() {
-        let valid = SignState::Valid { by: "B. Reviewer".into(), on: "2026-02-04".into(), digest: "3f".repeat(32) };
+        let valid = SignState::Valid {
+            by: "B. Reviewer".into(),
+            on: "2026-02-04".into(),
+            digest: "3f".repeat(32),
+        };
         let c = compile(&sample_record("x", valid), &Assets::default()).expect("compiles");
         let t = text_of(&c);
         assert!(!t.contains("DRAFT"), "a valid record has no draft mark");
         assert!(t.contains("B. Reviewer"));
-        let void = SignState::Void { by: "B. Reviewer".into(), on: "2026-02-04".into(), recorded: "ab".repeat(32) };
+        let void = SignState::Void {
+            by: "B. Reviewer".into(),
+            on: "2026-02-04".into(),
+            recorded: "ab".repeat(32),
+        };
         let c = compile(&sample_record("x", void), &Assets::default()).expect("compiles");
         let t = text_of(&c);
         assert!(t.contains("DRAFT") && t.contains("VOID"));
@@ -532,7 +706,11 @@ pub(crate) mod tests {
         for &b in bytes {
             c ^= u32::from(b);
             for _ in 0..8 {
-                c = if c & 1 != 0 { 0xEDB8_8320 ^ (c >> 1) } else { c >> 1 };
+                c = if c & 1 != 0 {
+                    0xEDB8_8320 ^ (c >> 1)
+                } else {
+                    c >> 1
+                };
             }
         }
         !c
@@ -546,7 +724,15 @@ pub(crate) mod tests {
             a = (a + u32::from(x)) % 65521;
             b = (b + a) % 65521;
         }
-        let mut z = vec![0x78, 0x01, 0x01, raw.len() as u8, 0, !(raw.len() as u8), 0xFF];
+        let mut z = vec![
+            0x78,
+            0x01,
+            0x01,
+            raw.len() as u8,
+            0,
+            !(raw.len() as u8),
+            0xFF,
+        ];
         z.extend(&raw);
         z.extend(((b << 16) | a).to_be_bytes());
         let chunk = |ty: &[u8], data: &[u8]| {
@@ -574,7 +760,10 @@ pub(crate) mod tests {
     #[test]
     fn images_from_assets_embed_and_missing_ones_print_alt_text() {
         let png = tiny_png();
-        let rec = sample_record("![the setup](img/setup.png)\n\n![lost](img/lost.png)\n", SignState::Unsigned);
+        let rec = sample_record(
+            "![the setup](img/setup.png)\n\n![lost](img/lost.png)\n",
+            SignState::Unsigned,
+        );
         let mut assets = Assets::default();
         assets.images.insert("img/setup.png".into(), png);
         let pdf = render_pdf(&rec, &assets).expect("renders with a PNG under PDF/A-3b");

@@ -35,7 +35,12 @@ struct YKind {
 }
 
 fn ykind(name: &str) -> YKind {
-    let k = |symbol, unit, factor, prefix| YKind { symbol, unit, factor, prefix };
+    let k = |symbol, unit, factor, prefix| YKind {
+        symbol,
+        unit,
+        factor,
+        prefix,
+    };
     match name {
         "XC" => k("X_C", "Ω", 1.0, true),
         "XL" => k("X_L", "Ω", 1.0, true),
@@ -50,7 +55,9 @@ fn ykind(name: &str) -> YKind {
         "Y" => k("|Y|", "S", 1.0, true),
         "I" => k("I", "A", 1.0, true),
         "Q" => k("Q", "1", 1.0, false),
-        n if n.starts_with("phase") || n == "phi" => k("φ", "°", 180.0 / std::f64::consts::PI, false),
+        n if n.starts_with("phase") || n == "phi" => {
+            k("φ", "°", 180.0 / std::f64::consts::PI, false)
+        }
         "residual" => k("Δ", "V", 1.0, true),
         _ => k("y", "1", 1.0, false),
     }
@@ -81,12 +88,18 @@ struct Panel<'a> {
 }
 
 fn find<'a>(p: &'a PlotData, name: &str) -> Option<&'a (String, Vec<(f64, f64, f64)>)> {
-    p.series.iter().find(|(n, pts)| n == name && !pts.is_empty())
+    p.series
+        .iter()
+        .find(|(n, pts)| n == name && !pts.is_empty())
 }
 
 /// Linear interpolation of a curve at x (curve sorted by x or not; nearest segment).
 fn interp(curve: &[(f64, f64)], x: f64) -> Option<f64> {
-    let mut pts: Vec<(f64, f64)> = curve.iter().copied().filter(|(a, b)| a.is_finite() && b.is_finite()).collect();
+    let mut pts: Vec<(f64, f64)> = curve
+        .iter()
+        .copied()
+        .filter(|(a, b)| a.is_finite() && b.is_finite())
+        .collect();
     pts.sort_by(|a, b| a.0.total_cmp(&b.0));
     for w in pts.windows(2) {
         let (a, b) = (w[0], w[1]);
@@ -102,7 +115,10 @@ fn interp(curve: &[(f64, f64)], x: f64) -> Option<f64> {
 
 /// The figures for a block. `band` is the tolerance interval (SI) of the quantity named,
 /// e.g. ("C", low, high).
-pub fn block_plots(block: &BlockResult, band: Option<(&str, f64, f64)>) -> Result<Vec<Plot>, String> {
+pub fn block_plots(
+    block: &BlockResult,
+    band: Option<(&str, f64, f64)>,
+) -> Result<Vec<Plot>, String> {
     let p = &block.plot;
     let mut panels: Vec<Panel> = Vec::new();
     let empty = |y| Panel {
@@ -116,7 +132,11 @@ pub fn block_plots(block: &BlockResult, band: Option<(&str, f64, f64)>) -> Resul
     };
     match block.network {
         Network::RC | Network::RL => {
-            let main: Vec<&str> = if block.network == Network::RC { vec!["C", "XC"] } else { vec!["L", "XL"] };
+            let main: Vec<&str> = if block.network == Network::RC {
+                vec!["C", "XC"]
+            } else {
+                vec!["L", "XL"]
+            };
             if let Some(first) = main.iter().find_map(|n| find(p, n)) {
                 let mut panel = empty(ykind(&first.0));
                 panel.series.push(first);
@@ -132,7 +152,10 @@ pub fn block_plots(block: &BlockResult, band: Option<(&str, f64, f64)>) -> Resul
                 }
                 panels.push(panel);
             }
-            let phases: Vec<_> = ["phase", "phase_measured"].iter().filter_map(|n| find(p, n)).collect();
+            let phases: Vec<_> = ["phase", "phase_measured"]
+                .iter()
+                .filter_map(|n| find(p, n))
+                .collect();
             if !phases.is_empty() {
                 let mut panel = empty(ykind("phase"));
                 panel.series = phases;
@@ -152,8 +175,11 @@ pub fn block_plots(block: &BlockResult, band: Option<(&str, f64, f64)>) -> Resul
                 if let Some(r) = find(p, "residual") {
                     lower.residuals = r.1.iter().map(|&(x, y, _)| (x, y)).collect();
                 } else if let Some((_, curve)) = panel.curves.first() {
-                    lower.residuals =
-                        first.1.iter().filter_map(|&(x, y, _)| interp(curve, x).map(|c| (x, y - c))).collect();
+                    lower.residuals = first
+                        .1
+                        .iter()
+                        .filter_map(|&(x, y, _)| interp(curve, x).map(|c| (x, y - c)))
+                        .collect();
                 }
                 panels.push(panel);
                 if !lower.residuals.is_empty() {
@@ -203,12 +229,20 @@ fn padded(vals: impl Iterator<Item = f64>, log: bool) -> (f64, f64) {
         return (lo / 1.3, hi * 1.3);
     }
     let span = hi - lo;
-    let pad = if span > 0.0 { span * 0.08 } else { (lo.abs() * 0.05).max(1e-12) };
+    let pad = if span > 0.0 {
+        span * 0.08
+    } else {
+        (lo.abs() * 0.05).max(1e-12)
+    };
     (lo - pad, hi + pad)
 }
 
 fn draw(panels: &[Panel]) -> Result<String, String> {
-    let heights: Vec<u32> = panels.iter().enumerate().map(|(i, _)| if i == 0 { H_MAIN } else { H_LOWER }).collect();
+    let heights: Vec<u32> = panels
+        .iter()
+        .enumerate()
+        .map(|(i, _)| if i == 0 { H_MAIN } else { H_LOWER })
+        .collect();
     let total: u32 = heights.iter().sum();
     // Common x range over every panel.
     let xs = panels.iter().flat_map(|p| {
@@ -220,7 +254,10 @@ fn draw(panels: &[Panel]) -> Result<String, String> {
             .collect::<Vec<_>>()
     });
     let xs: Vec<f64> = xs.filter(|x| x.is_finite() && *x > 0.0).collect();
-    let (xmin, xmax) = (xs.iter().copied().fold(f64::INFINITY, f64::min), xs.iter().copied().fold(0.0, f64::max));
+    let (xmin, xmax) = (
+        xs.iter().copied().fold(f64::INFINITY, f64::min),
+        xs.iter().copied().fold(0.0, f64::max),
+    );
     let log = xmin.is_finite() && xmin > 0.0 && xmax / xmin > 10.0;
     let (xdiv, xprefix) = format::prefix_for(xmax);
     let (x0, x1) = padded(xs.iter().map(|x| x / xdiv), log);
@@ -254,9 +291,21 @@ fn y_scale(panel: &Panel) -> (f64, String, String) {
         .flat_map(|s| s.1.iter().map(|t| t.1.abs() * panel.y.factor))
         .chain(panel.residuals.iter().map(|t| t.1.abs() * panel.y.factor))
         .fold(0.0, f64::max);
-    let (div, prefix) = if panel.y.prefix { format::prefix_for(ys) } else { (1.0, "") };
-    let unit = if panel.y.unit == "1" { "1".to_string() } else { format!("{prefix}{}", panel.y.unit) };
-    let sym = if panel.residuals.is_empty() { panel.y.symbol.to_string() } else { panel.residual_name.clone() };
+    let (div, prefix) = if panel.y.prefix {
+        format::prefix_for(ys)
+    } else {
+        (1.0, "")
+    };
+    let unit = if panel.y.unit == "1" {
+        "1".to_string()
+    } else {
+        format!("{prefix}{}", panel.y.unit)
+    };
+    let sym = if panel.residuals.is_empty() {
+        panel.y.symbol.to_string()
+    } else {
+        panel.residual_name.clone()
+    };
     (div / panel.y.factor, sym, unit)
 }
 
@@ -298,7 +347,11 @@ macro_rules! panel_body {
             .map_err(|e| e.to_string())?;
         let xfmt = |v: &f64| format::sig(*v, 3);
         let yfmt = |v: &f64| format::sig(*v, 3);
-        let ydesc = if yunit == "1" { ysym.clone() } else { format!("{ysym} / {yunit}") };
+        let ydesc = if yunit == "1" {
+            ysym.clone()
+        } else {
+            format!("{ysym} / {yunit}")
+        };
         let mut mesh = chart.configure_mesh();
         mesh.light_line_style(RGBColor(235, 235, 235))
             .bold_line_style(RGBColor(200, 200, 200))
@@ -318,21 +371,33 @@ macro_rules! panel_body {
             let (xa, xb) = $xr;
             let grey = RGBColor(215, 215, 215);
             chart
-                .draw_series(std::iter::once(Rectangle::new([(xa, sy(*lo)), (xb, sy(*hi))], grey.filled())))
+                .draw_series(std::iter::once(Rectangle::new(
+                    [(xa, sy(*lo)), (xb, sy(*hi))],
+                    grey.filled(),
+                )))
                 .map_err(|e| e.to_string())?
                 .label(label.clone())
                 .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 18, y + 5)], grey.filled()));
         }
         for (i, c) in panel.curves.iter().enumerate() {
             let pts: Vec<(f64, f64)> =
-                c.1.iter().filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0).map(|t| (sx(t.0), sy(t.1))).collect();
+                c.1.iter()
+                    .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
+                    .map(|t| (sx(t.0), sy(t.1)))
+                    .collect();
             let style = BLACK.stroke_width(2);
             if i == 0 {
                 chart
                     .draw_series(LineSeries::new(pts, style))
                     .map_err(|e| e.to_string())?
-                    .label(format!("{} (fit)", legend_name(&c.0)))
-                    .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], BLACK.stroke_width(2)));
+                    .label(if c.0.contains("fit") {
+                        legend_name(&c.0)
+                    } else {
+                        format!("{} (fit)", legend_name(&c.0))
+                    })
+                    .legend(|(x, y)| {
+                        PathElement::new(vec![(x, y), (x + 18, y)], BLACK.stroke_width(2))
+                    });
             } else {
                 chart
                     .draw_series(DashedLineSeries::new(pts, 6, 4, style))
@@ -342,12 +407,21 @@ macro_rules! panel_body {
             }
         }
         for (i, s) in panel.series.iter().enumerate() {
-            let pts: Vec<(f64, f64, f64)> = s
-                .1
-                .iter()
-                .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
-                .map(|t| (sx(t.0), sy(t.1), if t.2.is_finite() { t.2.abs() / ydiv } else { 0.0 }))
-                .collect();
+            let pts: Vec<(f64, f64, f64)> =
+                s.1.iter()
+                    .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
+                    .map(|t| {
+                        (
+                            sx(t.0),
+                            sy(t.1),
+                            if t.2.is_finite() {
+                                t.2.abs() / ydiv
+                            } else {
+                                0.0
+                            },
+                        )
+                    })
+                    .collect();
             // Error bars as line segments with short caps.
             let bars: Vec<PathElement<(f64, f64)>> = pts
                 .iter()
@@ -371,11 +445,20 @@ macro_rules! panel_body {
             } else {
                 if centre.len() > 1 {
                     chart
-                        .draw_series(DashedLineSeries::new(centre.clone(), 6, 4, BLACK.stroke_width(1)))
+                        .draw_series(DashedLineSeries::new(
+                            centre.clone(),
+                            6,
+                            4,
+                            BLACK.stroke_width(1),
+                        ))
                         .map_err(|e| e.to_string())?;
                 }
                 chart
-                    .draw_series(centre.iter().map(|&p| TriangleMarker::new(p, 6, BLACK.stroke_width(2))))
+                    .draw_series(
+                        centre
+                            .iter()
+                            .map(|&p| TriangleMarker::new(p, 6, BLACK.stroke_width(2))),
+                    )
                     .map_err(|e| e.to_string())?
                     .label(label)
                     .legend(|(x, y)| TriangleMarker::new((x + 9, y), 6, BLACK.stroke_width(2)));
@@ -384,7 +467,10 @@ macro_rules! panel_body {
         if !panel.residuals.is_empty() {
             let (xa, xb) = $xr;
             chart
-                .draw_series(std::iter::once(PathElement::new(vec![(xa, 0.0), (xb, 0.0)], BLACK)))
+                .draw_series(std::iter::once(PathElement::new(
+                    vec![(xa, 0.0), (xb, 0.0)],
+                    BLACK,
+                )))
                 .map_err(|e| e.to_string())?;
             let pts: Vec<(f64, f64)> = panel
                 .residuals
@@ -393,7 +479,10 @@ macro_rules! panel_body {
                 .map(|t| (sx(t.0), sy(t.1)))
                 .collect();
             chart
-                .draw_series(pts.iter().map(|&(x, y)| PathElement::new(vec![(x, 0.0), (x, y)], BLACK)))
+                .draw_series(
+                    pts.iter()
+                        .map(|&(x, y)| PathElement::new(vec![(x, 0.0), (x, y)], BLACK)),
+                )
                 .map_err(|e| e.to_string())?;
             chart
                 .draw_series(pts.iter().map(|&p| Cross::new(p, 5, BLACK.stroke_width(2))))
@@ -411,7 +500,9 @@ macro_rules! panel_body {
                     .draw_series(DashedLineSeries::new(line, 3, 5, BLACK.stroke_width(1)))
                     .map_err(|e| e.to_string())?;
             } else {
-                chart.draw_series(LineSeries::new(line, BLACK.stroke_width(1))).map_err(|e| e.to_string())?;
+                chart
+                    .draw_series(LineSeries::new(line, BLACK.stroke_width(1)))
+                    .map_err(|e| e.to_string())?;
             }
             let text = match name.as_str() {
                 "f0" => "f₀".to_string(),
@@ -420,7 +511,12 @@ macro_rules! panel_body {
                 other => other.to_string(),
             };
             chart
-                .draw_series(std::iter::once(Text::new(text, (x, y1), TextStyle::from((PLOT_FONT, 17).into_font()).pos(Pos::new(HPos::Left, VPos::Top)))))
+                .draw_series(std::iter::once(Text::new(
+                    text,
+                    (x, y1),
+                    TextStyle::from((PLOT_FONT, 17).into_font())
+                        .pos(Pos::new(HPos::Left, VPos::Top)),
+                )))
                 .map_err(|e| e.to_string())?;
         }
         let labelled = panel.series.len() + panel.curves.len() + usize::from(panel.band.is_some());
@@ -457,7 +553,41 @@ fn draw_panel_log(
     xdesc: &str,
     last: bool,
 ) -> Result<(), String> {
-    panel_body!(area, panel, xr, xdiv, xdesc, last, (xr.0..xr.1).log_scale())
+    panel_body!(
+        area,
+        panel,
+        xr,
+        xdiv,
+        xdesc,
+        last,
+        (xr.0..xr.1)
+            .log_scale()
+            .with_key_points(log_ticks(xr.0, xr.1))
+    )
+}
+
+/// Tick positions on a log axis: 1-2-5 per decade up to three decades, else decades.
+fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
+    if !(lo > 0.0 && hi > lo && lo.is_finite() && hi.is_finite()) {
+        return Vec::new();
+    }
+    let steps: &[f64] = if hi / lo <= 1000.0 {
+        &[1.0, 2.0, 5.0]
+    } else {
+        &[1.0]
+    };
+    let mut out = Vec::new();
+    let mut e = lo.log10().floor() as i32;
+    while 10f64.powi(e) <= hi && out.len() < 40 {
+        for s in steps {
+            let v = s * 10f64.powi(e);
+            if v >= lo && v <= hi {
+                out.push(v);
+            }
+        }
+        e += 1;
+    }
+    out
 }
 
 /// Printed unit of a result for the band (kept for callers that need it).
@@ -496,13 +626,21 @@ mod tests {
             .iter()
             .map(|&f| (f, 330e-9 * (1.0 + f * 1e-6), 2e-9))
             .collect();
-        let ph: Vec<(f64, f64, f64)> = c.iter().map(|&(f, _, _)| (f, (1.0f64 / (f / 1000.0)).atan(), 0.01)).collect();
+        let ph: Vec<(f64, f64, f64)> = c
+            .iter()
+            .map(|&(f, _, _)| (f, (1.0f64 / (f / 1000.0)).atan(), 0.01))
+            .collect();
         let plot = PlotData {
-            series: vec![("C".into(), c), ("phase".into(), ph.clone()), ("phase_measured".into(), ph)],
+            series: vec![
+                ("C".into(), c),
+                ("phase".into(), ph.clone()),
+                ("phase_measured".into(), ph),
+            ],
             curves: vec![],
             markers: vec![],
         };
-        let plots = block_plots(&block(Network::RC, plot), Some(("C", 313.5e-9, 346.5e-9))).unwrap();
+        let plots =
+            block_plots(&block(Network::RC, plot), Some(("C", 313.5e-9, 346.5e-9))).unwrap();
         assert_eq!(plots.len(), 1);
         let svg = &plots[0].svg;
         assert!(svg.starts_with("<svg"));
@@ -511,6 +649,8 @@ mod tests {
         assert!(svg.contains("φ / °"));
         assert!(svg.contains(PLOT_FONT));
         assert!(svg.contains("tolerance of C"));
+        // 1-2-5 ticks on the log axis: 0.2, 0.5, 1, 2, 5 kHz.
+        assert_eq!(log_ticks(0.15, 6.5), vec![0.2, 0.5, 1.0, 2.0, 5.0]);
         assert!(!svg.contains("NaN"));
     }
 
@@ -518,12 +658,23 @@ mod tests {
     fn rlc_plot_has_residual_panel_and_markers() {
         let f0 = 2000.0f64;
         let y = |f: f64| 1.0 / (100.0 * (1.0 + (4.0 * (f / f0 - f0 / f)).powi(2)).sqrt());
-        let pts: Vec<(f64, f64, f64)> = (0..12).map(|i| 1200.0 + 140.0 * i as f64).map(|f| (f, y(f) * 1.01, 1e-4)).collect();
-        let curve: Vec<(f64, f64)> = (0..200).map(|i| 1100.0 + 9.0 * i as f64).map(|f| (f, y(f))).collect();
+        let pts: Vec<(f64, f64, f64)> = (0..12)
+            .map(|i| 1200.0 + 140.0 * i as f64)
+            .map(|f| (f, y(f) * 1.01, 1e-4))
+            .collect();
+        let curve: Vec<(f64, f64)> = (0..200)
+            .map(|i| 1100.0 + 9.0 * i as f64)
+            .map(|f| (f, y(f)))
+            .collect();
         let plot = PlotData {
             series: vec![("Y".into(), pts)],
             curves: vec![("Y".into(), curve)],
-            markers: vec![("f0".into(), f0), ("f_low".into(), 1780.0), ("f_high".into(), 2250.0), ("bad".into(), f64::NAN)],
+            markers: vec![
+                ("f0".into(), f0),
+                ("f_low".into(), 1780.0),
+                ("f_high".into(), 2250.0),
+                ("bad".into(), f64::NAN),
+            ],
         };
         let plots = block_plots(&block(Network::RLC, plot), None).unwrap();
         let svg = &plots[0].svg;
@@ -535,6 +686,8 @@ mod tests {
 
     #[test]
     fn empty_plot_data_gives_no_figure() {
-        assert!(block_plots(&block(Network::RC, PlotData::default()), None).unwrap().is_empty());
+        assert!(block_plots(&block(Network::RC, PlotData::default()), None)
+            .unwrap()
+            .is_empty());
     }
 }

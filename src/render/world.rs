@@ -160,7 +160,10 @@ impl World for RecordWorld {
             return Ok(Bytes::from_string(s));
         }
         let path = id_path(id).ok_or(FileError::AccessDenied)?;
-        self.files.get(&path).cloned().ok_or(FileError::AccessDenied)
+        self.files
+            .get(&path)
+            .cloned()
+            .ok_or(FileError::AccessDenied)
     }
 
     fn font(&self, index: usize) -> Option<Font> {
@@ -196,7 +199,10 @@ mod tests {
             assert_eq!(w.file(id), Err(FileError::AccessDenied), "{p}");
             assert!(matches!(w.source(id), Err(FileError::AccessDenied)), "{p}");
         }
-        assert!(matches!(w.source(file_id("/data.json").unwrap()), Err(FileError::NotSource)));
+        assert!(matches!(
+            w.source(file_id("/data.json").unwrap()),
+            Err(FileError::NotSource)
+        ));
         // Every request was logged.
         assert!(w.requested().iter().any(|p| p == "/etc/passwd"));
     }
@@ -205,8 +211,17 @@ mod tests {
     fn today_is_the_notebook_date() {
         let w = world();
         let d = w.today(None).unwrap();
-        assert_eq!((d.year(), d.month(), d.day()), (Some(2026), Some(3), Some(14)));
-        assert!(w.book().families().any(|(name, _)| name == "Libertinus Serif"));
-        assert!(w.book().families().any(|(name, _)| name == "DejaVu Sans Mono"));
+        assert_eq!(
+            (d.year(), d.month(), d.day()),
+            (Some(2026), Some(3), Some(14))
+        );
+        assert!(w
+            .book()
+            .families()
+            .any(|(name, _)| name == "Libertinus Serif"));
+        assert!(w
+            .book()
+            .families()
+            .any(|(name, _)| name == "DejaVu Sans Mono"));
     }
 }

@@ -1,0 +1,165 @@
+# Writes the malformed catalogue: each case is the base notebook with one edit; the marker
+# ⟦ sits where the error must point (⟦- : only the line is fixed).
+import os, sys
+# Regenerate with: python3 tests/malformed/make_catalogue.py (from the repository root)
+OUT = os.path.join(os.path.dirname(os.path.abspath(__file__)))
+FM = """---
+record: HX-0001
+title: Hardening base notebook
+date: 2026-10-05
+operator: T. Tester (synthetic)
+instruments:
+  dmm:
+    what: bench meter
+    accuracy: 0.5% + 2
+    resolution: 0.1 mV
+parts:
+  R1:
+    kind: resistor
+    nominal: 2.2 kohm
+    tolerance: 1%
+  C1:
+    kind: capacitor
+    nominal: 68 nF
+    tolerance: K
+---
+"""
+PROSE = """
+A synthetic series pair, readings made up by complex arithmetic.
+
+"""
+HEAD = """```readings
+id: blk
+network: RC
+parts: [R1, C1]
+meter: dmm
+---
+"""
+TABLE = """f/Hz    VR/V     VC/V
+400     0.5279   1.4040
+800     0.9015   1.1989
+1600    1.2491   0.8305
+3200    1.4234   0.4732
+"""
+TAIL = """```
+
+The block value is `=blk.C`.
+"""
+BASE = FM + PROSE + HEAD + TABLE + TAIL
+
+cases = []  # (name, text, needle, note)
+def case(name, text, needle, note):
+    assert ("⟦" in text) != ("⟧" in text), name
+    cases.append((name, text, needle, note))
+def sub(old, new, src=None, count=1):
+    s = BASE if src is None else src
+    assert s.count(old) >= 1, old
+    return s.replace(old, new, count)
+
+# --- front matter shape
+case("fm-yaml-unclosed-flow", sub("title: Hardening base notebook", "⟧title: [Hardening base notebook"), "yaml", "broken YAML: unclosed flow sequence")
+case("fm-yaml-bad-indent", sub("    what: bench meter\n", "    what: bench meter\n ⟧  accuracy 0.5%: : x\n", ), "yaml", "broken YAML: bad indentation")
+case("fm-yaml-tab-indent", sub("  dmm:\n    what", "  dmm:\n⟧\twhat"), "yaml|tab", "tab used as YAML indentation")
+case("fm-not-a-mapping", "⟦---\n- just some words\n- in a list\n---\n" + PROSE + HEAD + TABLE + TAIL, "mapping|key", "front matter is a list, not a mapping")
+case("fm-missing-open", "⟦# A notebook that starts with prose\n" + PROSE + HEAD + TABLE + TAIL, "front matter", "no --- fence on line 1")
+case("fm-unclosed", (FM + PROSE).replace("---\n", "⟧--\n", 1).replace("tolerance: K\n---\n", "tolerance: K\n", 1) + "Prose follows but the header never ends.\n", "clos", "front matter never closed")
+case("fm-duplicate-key", sub("date: 2026-10-05\n", "date: 2026-10-05\n⟧title: Again\n"), "duplicate|twice|already|more than once", "a YAML key given twice")
+case("fm-deep-nesting", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\n⟧lab: " + "[" * 5000 + "]" * 5000 + "\n"), "yaml|nest|deep|recursion|limit|expected", "deeply nested YAML on one line")
+laughs = "lab: [&a [lol, lol, lol, lol, lol, lol, lol, lol, lol], " + ", ".join(
+    f"&{chr(ord('b')+i)} [" + ", ".join([f"*{chr(ord('a')+i)}"] * 9) + "]" for i in range(8)) + "]"
+case("fm-billion-laughs", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\n⟧" + laughs + "\n"), "yaml|alias|anchor|limit|expected", "YAML anchors expanding exponentially")
+# --- required keys: the error points at the opening fence (line 1, col 1)
+case("fm-missing-record", sub("---\nrecord: HX-0001\n", "⟦---\n", ), "record", "required key record missing")
+case("fm-missing-title", sub("---\nrecord: HX-0001\ntitle: Hardening base notebook\n", "⟦---\nrecord: HX-0001\n"), "title", "required key title missing")
+case("fm-missing-date", sub("---\nrecord: HX-0001\n", "⟦---\nrecord: HX-0001\n").replace("date: 2026-10-05\n", ""), "date", "required key date missing")
+case("fm-missing-operator", sub("---\nrecord: HX-0001\n", "⟦---\nrecord: HX-0001\n").replace("operator: T. Tester (synthetic)\n", ""), "operator", "required key operator missing")
+case("fm-date-impossible", sub("date: 2026-10-05", "date: ⟦2026-13-45"), "ISO 8601|YYYY-MM-DD|month|calendar|range", "a date that is not a date")
+case("fm-date-words", sub("date: 2026-10-05", "date: ⟦last tuesday"), "ISO 8601|YYYY-MM-DD", "a date in words")
+case("fm-coverage-out-of-range", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\ncoverage: ⟦1.5\n"), "between|less than 1|probability|(0, 1)|0 and 1", "coverage probability above 1")
+case("fm-coverage-inf", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\ncoverage: ⟦.inf\n"), "finite|between|probability|0 and 1", "coverage written as YAML infinity")
+case("fm-decision-unknown", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\ndecision: ⟦lenient\n"), "guarded", "unknown decision rule")
+case("fm-instrument-due-not-date", sub("    resolution: 0.1 mV\n", "    resolution: 0.1 mV\n    due: ⟦soon\n"), "ISO 8601|YYYY-MM-DD|month|calendar|range", "instrument due date not a date")
+case("fm-accuracy-garbled", sub("accuracy: 0.5% + 2", "accuracy: ⟦about half a percent"), "counts|P%|P %|% of reading", "accuracy not in P% + N form")
+case("fm-resolution-unit-unknown", sub("resolution: 0.1 mV", "resolution: 0.1 ⟦mQ"), "unit", "unknown unit in an instrument")
+case("fm-part-kind-unknown", sub("kind: capacitor", "kind: ⟦diode"), "inductor", "part kind not resistor/capacitor/inductor")
+case("fm-nominal-wrong-dimension", sub("nominal: 68 nF", "nominal: ⟧68 nH"), "farad|capacitance|in F,|in F)|(F)", "capacitor nominal in henry")
+case("fm-nominal-nan", sub("nominal: 2.2 kohm", "nominal: ⟦NaN ohm"), "finite", "NaN written out in the front matter")
+case("fm-nominal-zero-resistance", sub("nominal: 2.2 kohm", "nominal: ⟦0 ohm"), "positive|zero|greater than", "a zero resistance")
+case("fm-tolerance-code-unknown", sub("tolerance: K", "tolerance: ⟦Q"), "60062|letter|code", "IEC 60062 code that does not exist")
+case("fm-tolerance-code-E", sub("tolerance: K", "tolerance: ⟦E"), "60062|letter|code", "letter E is not in the FORMAT list")
+case("fm-tolerance-negative", sub("tolerance: 1%", "tolerance: ⟧1%"), "positive|negative|greater than", "a negative tolerance")
+case("fm-measured-by-undefined", sub("    tolerance: 1%\n", "    tolerance: 1%\n    measured: 2.19 kohm\n    by: ⟦megger\n"), "defin|unknown|no instrument", "part measured by an instrument not defined")
+# --- readings block header
+case("blk-network-unknown", sub("network: RC", "network: ⟦RCX"), "RLC", "unknown network")
+case("blk-network-missing", sub("```readings\nid: blk\nnetwork: RC\n", "⟧```readings\nid: blk\n"), "network", "no network key")
+case("blk-id-missing", sub("```readings\nid: blk\n", "⟧```readings\n"), "id", "no id key")
+case("blk-header-unknown-key", sub("meter: dmm\n", "meter: dmm\n⟦colour: blue\n"), "key", "unknown readings header key")
+case("blk-header-yaml-broken", sub("parts: [R1, C1]", "⟧parts: [R1, C1"), "yaml", "readings header YAML broken")
+case("blk-part-undefined", sub("parts: [R1, C1]", "parts: [R1, ⟦C9]"), "defin|unknown|no part", "part named but not defined")
+case("blk-meter-undefined", sub("meter: dmm", "meter: ⟦dvm"), "defin|unknown|no instrument", "instrument named but not defined")
+case("blk-source-not-volts", sub("meter: dmm\n", "meter: dmm\nsource: ⟦1.5 Hz\n"), "volt", "source level in hertz")
+case("blk-no-separator", sub("```readings\n", "⟧```readings\n").replace("meter: dmm\n---\n", "meter: dmm\n"), "`---`|separat|header", "no --- between block header and table")
+case("blk-no-rows", sub(TABLE, "⟧f/Hz    VR/V     VC/V\n"), "row", "a readings block with no rows")
+case("blk-duplicate-id", BASE + "\nA second block with the same id.\n\n" + HEAD.replace("id: blk", "id: ⟦blk") + TABLE + "```\n", "duplicate|unique|already|twice", "duplicate block ids")
+# --- columns
+case("col-missing-VC", sub(TABLE, TABLE.replace("f/Hz    VR/V     VC/V", "⟧f/Hz    VR/V").replace("   1.4040", "").replace("   1.1989", "").replace("   0.8305", "").replace("   0.4732", "")), "VC", "RC block without its VC column")
+case("col-duplicate", sub("f/Hz    VR/V     VC/V", "f/Hz    VR/V     VC/V   ⟦VR/V").replace("1.4040", "1.4040   0.5279").replace("1.1989", "1.1989   0.9015").replace("0.8305", "0.8305   1.2491").replace("0.4732", "0.4732   1.4234"), "duplicate|twice|already|more than once", "a column given twice")
+case("col-unknown-symbol", sub("f/Hz    VR/V     VC/V", "f/Hz    VR/V     VC/V   ⟦Vq/V").replace("1.4040", "1.4040   0.1").replace("1.1989", "1.1989   0.1").replace("0.8305", "0.8305   0.1").replace("0.4732", "0.4732   0.1"), "column", "a column symbol that does not exist")
+case("col-unit-unknown", sub("f/Hz    VR/V", "f/Hz    ⟧VR/Q"), "unit", "unknown unit in a heading")
+case("col-prefix-unknown", sub("f/Hz    VR/V", "f/Hz    ⟧VR/xV"), "prefix", "unknown prefix in a heading")
+case("col-wrong-dimension", sub("f/Hz    VR/V", "f/Hz    ⟧VR/A"), "volt", "VR column in amperes")
+case("col-shift-without-period", sub(TABLE, TABLE.replace("f/Hz    VR/V     VC/V", "⟧f/Hz    VR/V     VC/V     shift/div").replace("1.4040", "1.4040   1.2").replace("1.1989", "1.1989   1.0").replace("0.8305", "0.8305   0.6").replace("0.4732", "0.4732   0.3")), "period", "shift column without period")
+# --- rows and cells
+case("row-short", sub("800     0.9015   1.1989", "⟧800     0.9015"), "column|cells|values", "a row with too few cells")
+case("row-long", sub("800     0.9015   1.1989", "800     0.9015   1.1989   ⟦0.77"), "column|cells|values", "a row with too many cells")
+case("cell-not-a-number", sub("0.9015", "⟦O.9015"), "number", "letter O for zero")
+case("cell-decimal-comma", sub("0.9015", "0⟦,9015"), "decimal point", "decimal comma in a cell")
+case("cell-unit-unknown", sub("0.9015", "0.9015⟦furlong"), "unit", "unknown unit in a cell")
+case("cell-prefix-unknown", sub("0.9015", "901.5⟦xV"), "prefix", "unknown prefix in a cell")
+case("cell-unit-unknown-spaced", sub("800     0.9015", "⟧800     0.9015 furlong"), "unit", "unknown unit after a space in a whitespace table")
+case("cell-prefix-unknown-spaced", sub("800     0.9015", "⟧800     901.5 xV"), "prefix", "unknown prefix after a space in a whitespace table")
+case("cell-wrong-dimension", sub("0.9015", "901.5 ⟦mA"), "volt", "a current in a voltage column")
+case("cell-nan", sub("0.9015", "⟦NaN"), "finite", "NaN written out in a cell")
+case("cell-inf", sub("0.9015", "⟦inf"), "finite", "inf written out in a cell")
+case("cell-infinity-negative", sub("1.1989", "⟦-Infinity"), "finite", "-Infinity written out in a cell")
+case("cell-out-of-range", sub("0.9015", "⟦1e999"), "range|finite", "a number beyond f64")
+case("cell-frequency-negative", sub("800     0.9015", "⟦-800    0.9015"), "positive|greater than", "negative frequency")
+case("cell-frequency-zero", sub("800     0.9015", "⟦0       0.9015"), "positive|greater than", "zero frequency")
+# --- prose
+case("prose-cite-missing-block", sub("The block value is `=blk.C`.", "The block value is ⟦`=nope.C`."), "no readings block|no block|not found|unknown", "citation of a block that does not exist")
+case("prose-cite-missing-result", sub("The block value is `=blk.C`.", "The block value is ⟦`=blk.Zq`."), "no block result|no result|has no|not found", "citation of a result that does not exist")
+case("prose-image-parent", sub("The block value is", "⟦![scope trace](../x.png)\n\nThe block value is"), "outside", "image ../x.png outside the folder")
+case("prose-image-absolute", sub("The block value is", "⟦![password file](/etc/passwd)\n\nThe block value is"), "outside", "image /etc/passwd, an absolute path")
+case("prose-image-missing", sub("The block value is", "⟦![trace](trace-not-here.png)\n\nThe block value is"), "exist|not found|no such", "image that does not exist")
+case("fm-template-outside", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\ntemplate: ⟦../elsewhere.typ\n"), "outside", "template path outside the folder")
+
+for f in os.listdir(OUT):
+    if f.endswith(".md") and not f.startswith("ok-"):
+        os.remove(os.path.join(OUT, f))
+rows = []
+for name, text, needle, note in cases:
+    lineonly = "⟧" in text
+    i = text.index("⟧" if lineonly else "⟦")
+    clean = text.replace("⟧", "", 1) if lineonly else text.replace("⟦", "", 1)
+    before = clean[:i]
+    line = before.count("\n") + 1
+    col = len(before) - (before.rfind("\n") + 1) + 1
+    fn = name + ".md"
+    with open(os.path.join(OUT, fn), "w", encoding="utf-8", newline="") as fh:
+        fh.write(clean)
+    for alt in needle.split("|"):
+        assert alt.lower() not in clean.lower(), (name, alt)
+    rows.append(f"{fn}\t{line}\t{'-' if lineonly else col}\t{needle}\t{note}")
+# non-UTF-8 bytes in prose: 0xff at line 23 col 3
+raw = BASE.replace("A synthetic series pair", "A \x00synthetic series pair").encode()
+raw = raw.replace(b"\x00", b"\xff")
+open(os.path.join(OUT, "enc-not-utf8.md"), "wb").write(raw)
+pre = BASE[:BASE.index("A synthetic")]
+rows.append(f"enc-not-utf8.md\t{pre.count(chr(10))+1}\t3\tUTF-8\tbyte 0xff in the prose")
+with open(os.path.join(OUT, "EXPECT.tsv"), "w") as fh:
+    fh.write("# file\tline\tcol\tmessage must contain (any of, |-separated, case-insensitive)\twhat is wrong\n")
+    fh.write("\n".join(rows) + "\n")
+    fh.write("@huge-line.md\t32\t9\trange|finite\ta 10 MB cell of digits, generated by the test (huge_line_notebook)\n")
+with open(os.path.join(OUT, "ok-minimal.md"), "w") as fh:
+    fh.write(BASE)
+print(len(rows) + 1, "cases")
