@@ -78,7 +78,7 @@ fn main() {
     let t = Instant::now();
     let mc = monte_carlo(&inputs, &[], &model, 0.95, 7, None);
     println!(
-        "monte carlo, adaptive (JCGM 101 §7.9, δ/5): {} trials in {:.3} s",
+        "monte carlo, adaptive (JCGM 101 §7.9.4, 2s ≤ δ): {} trials in {:.3} s",
         mc.first().map(|m| m.trials).unwrap_or(0),
         t.elapsed().as_secs_f64()
     );

@@ -50,6 +50,9 @@ pub struct JsonCorrelation {
     pub a: String,
     pub b: String,
     pub r: f64,
+    /// The frequency of per-frequency correlations (Z blocks with an `f` column).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub f: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -124,6 +127,7 @@ pub fn to_json(rec: &Record) -> JsonRecord {
                         a: c.a.clone(),
                         b: c.b.clone(),
                         r: c.r,
+                        f: c.f,
                     })
                     .collect(),
                 verdicts: rec

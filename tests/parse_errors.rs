@@ -846,3 +846,17 @@ fn mutated_notebooks_do_not_panic() {
         }
     }
 }
+
+#[test]
+fn format_md_example_block() {
+    // The readings block shown in FORMAT.md (its `...` row left out), with parts and meter defined.
+    let src = "---\nrecord: r\ntitle: t\ndate: 2026-05-04\noperator: o\ninstruments:\n  dmm: {what: meter}\nparts:\n  R1: {kind: resistor}\n  L1: {kind: inductor}\n  C1: {kind: capacitor}\n---\n\n```readings\nid: tank-sweep\nnetwork: RLC\nparts: [R1, L1, C1]\nmeter: dmm\n---\nf/Hz    Vs/V   VR/V\n500     2.00   0.408\n```\n";
+    let n = notebook::parse(src).unwrap_or_else(|d| panic!("{}", diag::render("t.md", src, &d)));
+    let Some(Item::Readings(b)) = n.items.first() else {
+        panic!("no block")
+    };
+    assert_eq!((b.id.as_str(), b.network), ("tank-sweep", Network::RLC));
+    assert_eq!(b.rows.len(), 1);
+    assert!((b.rows[0].cells[2].value - 0.408).abs() < 1e-15);
+    assert_eq!(b.meter.as_ref().map(|m| m.name.as_str()), Some("dmm"));
+}

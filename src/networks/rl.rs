@@ -469,6 +469,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         });
     }
     // Monte Carlo (JCGM 101) of each row's three-voltmeter results, and §8 validation.
+    let mut not_validated: Vec<String> = Vec::new();
     for g in (0..ng).filter(|&g| tri_ok[g]) {
         let names: Vec<&'static str> = layout
             .iter()
@@ -524,15 +525,21 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
         if !unvalidated.is_empty() {
-            flags.push(Flag {
-                span: bi.groups.get(g).map(|gr| gr.span),
-                message: format!(
-                    "at {}: the GUM interval of {} differs from the Monte Carlo interval by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo interval",
-                    f.map(fmt_hz).unwrap_or_default(),
-                    unvalidated.join(", ")
-                ),
-            });
+            not_validated.push(format!(
+                "{} ({})",
+                f.map(fmt_hz).unwrap_or_default(),
+                unvalidated.join(", ")
+            ));
         }
+    }
+    if !not_validated.is_empty() {
+        flags.push(Flag {
+            span: Some(block.span),
+            message: format!(
+                "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: prefer the Monte Carlo intervals there",
+                not_validated.join("; ")
+            ),
+        });
     }
 
     // Row checks: relative uncertainties and the better-conditioned method.

@@ -572,6 +572,7 @@ pub(crate) mod tests {
     fn citations_and_summary_are_printed() {
         let rec = sample_record("Intro.\n", SignState::Unsigned);
         let c = compile(&rec, &Assets::default()).expect("compiles");
+        assert!(c.warnings.is_empty(), "{:?}", c.warnings);
         let text = text_of(&c).replace(' ', "");
         assert!(text.contains("DRAFT"));
         assert!(text.contains("BR-0042"));

@@ -353,7 +353,7 @@ macro_rules! panel_body {
             format!("{ysym} / {yunit}")
         };
         let mut mesh = chart.configure_mesh();
-        mesh.light_line_style(RGBColor(235, 235, 235))
+        mesh.light_line_style(RGBColor(244, 244, 244))
             .bold_line_style(RGBColor(200, 200, 200))
             .label_style(font.clone())
             .axis_desc_style(font.clone())
