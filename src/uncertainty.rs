@@ -407,7 +407,10 @@ pub fn propagate(
         let mut contribs = Vec::new();
         for (i, inp) in inputs.iter().enumerate() {
             let c = jac[k][i];
-            if c == 0.0 {
+            // Inputs that carry no uncertainty (a single reading's estimate, whose
+            // uncertainty sits in its own offset inputs) or do not enter this output are
+            // left out of the budget: they contribute nothing.
+            if c == 0.0 || inp.u == 0.0 {
                 continue;
             }
             let contribution = c.abs() * inp.u;

@@ -583,3 +583,49 @@ fn prose_citations_print_the_result_and_unknown_ones_are_errors_at_their_line() 
         stderr(&o)
     );
 }
+
+/// GUM (JCGM 100:2008) Annex H.2: five simultaneous sets of V, I and φ (Table H.2), reduced
+/// through `benchrec results`. Published (Table H.3): R = 127.732 Ω, u = 0.071 Ω;
+/// X = 219.847 Ω, u = 0.295 Ω; |Z| = 254.260 Ω, u = 0.236 Ω; r(R,X) = −0.588,
+/// r(R,Z) = −0.485, r(X,Z) = 0.993. The GUM rounds its intermediate values, so the last
+/// published digit may differ by one (u(X) computes as 0.2956 against the printed 0.295).
+#[test]
+fn gum_h2_through_the_results_verb() {
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("h2.md");
+    std::fs::write(
+        &nb,
+        "---\nrecord: GUM-H2\ntitle: GUM H.2 check\ndate: 2026-11-02\noperator: test\n---\n\n\
+```readings\nid: h2\nnetwork: Z\n---\nV/V I/mA phi/rad\n5.007 19.663 1.0456\n4.994 19.639 1.0438\n\
+5.005 19.640 1.0468\n4.990 19.685 1.0428\n4.999 19.678 1.0433\n```\n",
+    )
+    .unwrap();
+    let o = run(&["results", nb.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let json: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    let block = &json["blocks"][0];
+    let get = |name: &str| {
+        let r = block["results"].as_array().unwrap().iter().find(|r| r["name"] == name).unwrap().clone();
+        (r["value"].as_f64().unwrap(), r["u"].as_f64().unwrap())
+    };
+    // Within one unit of the last published digit.
+    let close = |x: f64, published: f64, last: f64| (x - published).abs() <= last * 1.0001;
+    for (name, v, u) in [("R", 127.732, 0.071), ("X", 219.847, 0.295), ("Z", 254.260, 0.236)] {
+        let (cv, cu) = get(name);
+        assert!(close(cv, v, 0.001), "{name} = {cv}, published {v}");
+        assert!(close(cu, u, 0.001), "u({name}) = {cu}, published {u}");
+    }
+    let corr = |a: &str, b: &str| {
+        block["correlations"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|c| (c["a"] == a && c["b"] == b) || (c["a"] == b && c["b"] == a))
+            .unwrap()["r"]
+            .as_f64()
+            .unwrap()
+    };
+    assert!(close(corr("R", "X"), -0.588, 0.001), "r(R,X) = {}", corr("R", "X"));
+    assert!(close(corr("R", "Z"), -0.485, 0.001), "r(R,Z) = {}", corr("R", "Z"));
+    assert!(close(corr("X", "Z"), 0.993, 0.001), "r(X,Z) = {}", corr("X", "Z"));
+}

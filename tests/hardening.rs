@@ -971,14 +971,17 @@ fn build_large(name: &str, text: &str) {
     }
 }
 
-/// Large input finishes (no time limit asserted; see DEVELOPERS.md "Fuzzing" for figures).
+/// Large input finishes (no time limit asserted). Slow (minutes, GBs of memory), so run on
+/// demand: `cargo test --release --test hardening -- --ignored large_`.
 #[test]
+#[ignore = "slow: 100 000 rows take minutes to typeset; run with --ignored"]
 fn large_rc_block_of_100k_rows_builds() {
     build_large("rc-large.md", &large_rc_notebook());
 }
 
-/// Gap marker: needs the RLC network (another helper).
+/// Slow too; run with `--ignored`.
 #[test]
+#[ignore = "slow: a 5 000-point sweep takes minutes; run with --ignored"]
 fn large_rlc_sweep_of_5000_points_builds() {
     build_large("rlc-large.md", &large_rlc_notebook());
 }

@@ -10,8 +10,10 @@
 //! linear propagation of the full covariance V of the |Y| values (shared gains and R
 //! included) through the estimator: cov θ = A V Aᵀ, A = (JᵀWJ)⁻¹JᵀW. With no shared inputs
 //! this is the unscaled (JᵀWJ)⁻¹; it is not scaled by the reduced χ², which is reported beside.
-//! The derived results come from `propagate` with θ as correlated inputs, and a Monte Carlo
-//! run over the same multivariate normal θ (JCGM 101 §6.4.8).
+//! The derived results come from `propagate` with the fitted (f0, Q, Rt) as correlated normal
+//! inputs (their covariance mapped from θ), and a Monte Carlo run over the same multivariate
+//! normal (JCGM 101 §6.4.8). That Monte Carlo knows only the fit covariance, not the shapes
+//! of the readings' distributions.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
 use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
@@ -48,6 +50,12 @@ pub fn derived(theta: &[f64]) -> Vec<f64> {
     );
     let w0 = 2.0 * PI * f0;
     vec![f0, q, f0 / q, q * rt / w0, 1.0 / (w0 * q * rt), rt]
+}
+
+/// [f0, Q, BW, L, C, Rt] from (f0, Q, Rt).
+pub fn derived_lin(p: &[f64]) -> Vec<f64> {
+    let logs: Vec<f64> = p.iter().map(|v| v.ln()).collect();
+    derived(&logs)
 }
 
 /// Names and units of [`derived`].
@@ -584,14 +592,16 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             message: format!("RLC fit: {e}"),
         }),
         Ok(fit) => {
-            let cov = fit.cov_with(&py.cov);
-            let names = ["ln f0 (fit)", "ln Q (fit)", "ln Rtotal (fit)"];
-            let theta_in: Vec<Input> = (0..3)
+            // Fitted (f0, Q, Rt) as correlated normal inputs: cov = D (A V Aᵀ) D, D = diag(e^θ).
+            let cov_log = fit.cov_with(&py.cov);
+            let p0 = [fit.f0(), fit.q(), fit.rt()];
+            let names = ["f0 (fit)", "Q (fit)", "Rtotal (fit)"];
+            let fit_in: Vec<Input> = (0..3)
                 .map(|k| {
                     Input::type_b(
                         names[k],
-                        fit.theta[k],
-                        cov[k][k].max(0.0).sqrt(),
+                        p0[k],
+                        p0[k] * cov_log[k][k].max(0.0).sqrt(),
                         Dist::Normal,
                     )
                 })
@@ -599,25 +609,25 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             let mut corr = Vec::new();
             for a in 0..3 {
                 for b in a + 1..3 {
-                    let d = (cov[a][a] * cov[b][b]).sqrt();
+                    let d = (cov_log[a][a] * cov_log[b][b]).sqrt();
                     if d > 0.0 {
-                        corr.push((a, b, (cov[a][b] / d).clamp(-1.0, 1.0)));
+                        corr.push((a, b, (cov_log[a][b] / d).clamp(-1.0, 1.0)));
                     }
                 }
             }
             let pd = propagate(
                 &Model {
-                    inputs: &theta_in,
+                    inputs: &fit_in,
                     corr: &corr,
                 },
-                &derived,
+                &derived_lin,
                 ctx.coverage,
             )
             .map_err(fail)?;
             let mc = monte_carlo(
-                &theta_in,
+                &fit_in,
                 &corr,
-                &(|t: &[f64]| derived(t)),
+                &derived_lin,
                 ctx.coverage,
                 super::rl::seed_of(&block.id, 0x5eed),
                 None,

@@ -153,8 +153,8 @@ pub fn markdown_to_typst(md: &str, ctx: &Context) -> String {
             }
             Event::End(end) => {
                 if matches!(end, TagEnd::TableHead | TagEnd::TableRow) {
-                    // Cells were already moved into the table; drop the row frame.
-                    pop_row(&mut stack, matches!(end, TagEnd::TableHead));
+                    // Its cells were already moved into the table; drop the row frame.
+                    stack.pop();
                     continue;
                 }
                 if stack.len() < 2 {
@@ -217,11 +217,6 @@ fn push_markup(stack: &mut [Frame], markup: &str, plain: &str) {
         top.buf.push_str(markup);
         top.plain.push_str(plain);
     }
-}
-
-fn pop_row(stack: &mut Vec<Frame>, head: bool) {
-    let Some(row) = stack.pop() else { return };
-    let _ = (row, head);
 }
 
 fn table_cell(stack: &mut [Frame], cell: String) {

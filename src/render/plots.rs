@@ -8,7 +8,6 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::networks::{BlockResult, PlotData};
 use crate::notebook::Network;
-use crate::quantity::Unit;
 use crate::render::format;
 
 /// The font typst sets plot text in (embedded by typst-kit).
@@ -588,19 +587,6 @@ fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
         e += 1;
     }
     out
-}
-
-/// Printed unit of a result for the band (kept for callers that need it).
-pub fn unit_of(name: &str) -> Unit {
-    match ykind(name).unit {
-        "Ω" => Unit::Ohm,
-        "F" => Unit::F,
-        "H" => Unit::H,
-        "A" => Unit::A,
-        "V" => Unit::V,
-        "°" => Unit::Rad,
-        _ => Unit::One,
-    }
 }
 
 #[cfg(test)]
