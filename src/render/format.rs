@@ -127,11 +127,21 @@ fn decimals_for_u(u: f64) -> Option<usize> {
 }
 
 /// Value and U (both already divided by the printing scale) with U to two significant
-/// digits and the value rounded to the same decimal place (GUM 7.2.6).
+/// digits and the value rounded to the same decimal place (GUM 7.2.6). Where that place lies
+/// left of the decimal point (U ≥ 100 on this scale) both are rounded to it: 12345 ± 234
+/// prints as 12350 ± 230.
 pub fn value_and_u(value: f64, u_exp: f64) -> (String, String) {
-    match decimals_for_u(u_exp) {
-        Some(d) => (fixed(value, d), fixed(u_exp, d)),
-        None => (sig(value, 5), fixed(u_exp.max(0.0), 0)),
+    if !u_exp.is_finite() || u_exp <= 0.0 || !value.is_finite() {
+        return (sig(value, 5), fixed(u_exp.max(0.0), 0));
+    }
+    let ur = crate::quantity::round_sig(u_exp, 2);
+    let last = ur.log10().floor() as i32 - 1;
+    if last >= 0 {
+        let p = 10f64.powi(last);
+        (fixed((value / p).round() * p, 0), fixed((ur / p).round() * p, 0))
+    } else {
+        let d = (-last).min(9) as usize;
+        (fixed(value, d), fixed(ur, d))
     }
 }
 
@@ -258,7 +268,9 @@ mod tests {
             ("4.712".into(), "0.035".into())
         );
         assert_eq!(value_and_u(468.26, 2.14), ("468.3".into(), "2.1".into()));
-        assert_eq!(value_and_u(12345.0, 230.0), ("12345".into(), "230".into()));
+        assert_eq!(value_and_u(12345.0, 230.0), ("12350".into(), "230".into()));
+        assert_eq!(value_and_u(976.2, 132.4), ("980".into(), "130".into()));
+        assert_eq!(value_and_u(1.0, 0.0996), ("1.00".into(), "0.10".into()));
     }
 
     #[test]
