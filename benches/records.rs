@@ -59,8 +59,46 @@ instruments:\n  meter:\n    accuracy: 0.5% + 3\n    resolution: 1 mV\nparts:\n  
     s
 }
 
+/// Where the time of one record goes, in process (fonts and library are loaded by the first
+/// render, so it is timed apart): analyse (parse + reduce + judge), data and plots, typst
+/// layout, PDF export.
+fn stages(demo: &Path) {
+    use benchrec::{pipeline, render};
+    let t = Instant::now();
+    let (_rec, _pdf) = pipeline::render_file(demo).expect("demo builds");
+    println!("  first render in this process (loads embedded fonts, typst library): {:.3} s", t.elapsed().as_secs_f64());
+    let src = pipeline::read_source(demo).expect("read");
+    let n = 15;
+    let (mut a, mut g, mut c, mut p) = (vec![], vec![], vec![], vec![]);
+    for _ in 0..n {
+        let t = Instant::now();
+        let rec = pipeline::analyse_text(demo, &src.text).expect("analyse");
+        a.push(t.elapsed().as_secs_f64());
+        let mut assets = pipeline::gather_assets(&src, &rec).expect("assets");
+        assets.source = src.raw.clone();
+        let t = Instant::now();
+        let _ = render::build_world(&rec, &assets).expect("world");
+        g.push(t.elapsed().as_secs_f64());
+        let t = Instant::now();
+        let _ = render::compile(&rec, &assets).expect("compile");
+        c.push(t.elapsed().as_secs_f64());
+        let t = Instant::now();
+        let _ = render::render_pdf(&rec, &assets).expect("pdf");
+        p.push(t.elapsed().as_secs_f64());
+    }
+    let (ma, mg, mc, mp) = (median(a), median(g), median(c), median(p));
+    println!("  analyse (parse, reduce incl. Monte Carlo, judge): {:.1} ms", ma * 1e3);
+    println!("  template data and plots (SVG): {:.1} ms", mg * 1e3);
+    println!("  typst compile (layout) incl. data: {:.1} ms", mc * 1e3);
+    println!("  PDF export alone (render_pdf − compile): {:.1} ms", (mp - mc).max(0.0) * 1e3);
+}
+
 fn main() {
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo/snubber-caps.md");
+    for name in ["snubber-caps.md", "crossover-coils.md", "sensor-tank.md"] {
+        println!("stages of demo/{name}, median of 15 in one process:");
+        stages(&Path::new(env!("CARGO_MANIFEST_DIR")).join("demo").join(name));
+    }
     let tmp = tempfile::tempdir().expect("tempdir");
     let out = tmp.path().join("demo.pdf");
     let (d, o) = (demo.to_str().unwrap(), out.to_str().unwrap());

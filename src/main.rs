@@ -97,6 +97,12 @@ enum Verb {
 }
 
 fn main() -> ExitCode {
+    // Output piped into `head` and closed early ends the process quietly, as other filters
+    // do, instead of a panic on a failed write.
+    #[cfg(unix)]
+    unsafe {
+        libc::signal(libc::SIGPIPE, libc::SIG_DFL);
+    }
     let cli = Cli::parse();
     match cli.verb {
         Verb::Build {

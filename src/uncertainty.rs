@@ -4,6 +4,7 @@
 
 use crate::notebook::Distribution;
 use serde::Serialize;
+use std::collections::BTreeMap;
 use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -344,18 +345,66 @@ pub fn propagate(
         }
     }
 
-    // Covariance J Σ Jᵀ with Σ = diag(u²) + off-diagonal r u u.
+    // Covariance J Σ Jᵀ with Σ = diag(u²) + off-diagonal r u u, computed sparsely: most
+    // outputs depend on a handful of inputs, so cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
+    let nz: Vec<Vec<(usize, f64)>> = jac
+        .iter()
+        .map(|row| row.iter().enumerate().filter(|(_, d)| **d != 0.0).map(|(i, d)| (i, *d)).collect())
+        .collect();
+    let mut partners: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
+    for &(i, j, r) in &pairs {
+        partners[i].push((j, r));
+        partners[j].push((i, r));
+    }
+    let mut scratch = vec![0.0; n];
+    let mut touched = vec![false; n];
+    let sigma_j: Vec<Vec<(usize, f64)>> = nz
+        .iter()
+        .map(|row| {
+            let mut idx = Vec::new();
+            let mut add = |i: usize, v: f64, idx: &mut Vec<usize>| {
+                if !touched[i] {
+                    touched[i] = true;
+                    idx.push(i);
+                }
+                scratch[i] += v;
+            };
+            for &(i, d) in row {
+                add(i, d * inputs[i].u * inputs[i].u, &mut idx);
+                for &(j, r) in &partners[i] {
+                    add(j, r * inputs[i].u * inputs[j].u * d, &mut idx);
+                }
+            }
+            idx.sort_unstable();
+            idx.iter()
+                .map(|&i| {
+                    let v = scratch[i];
+                    scratch[i] = 0.0;
+                    touched[i] = false;
+                    (i, v)
+                })
+                .collect()
+        })
+        .collect();
+    let sparse_dot = |x: &[(usize, f64)], y: &[(usize, f64)]| {
+        let (mut p, mut q, mut s) = (0, 0, 0.0);
+        while p < x.len() && q < y.len() {
+            match x[p].0.cmp(&y[q].0) {
+                std::cmp::Ordering::Less => p += 1,
+                std::cmp::Ordering::Greater => q += 1,
+                std::cmp::Ordering::Equal => {
+                    s += x[p].1 * y[q].1;
+                    p += 1;
+                    q += 1;
+                }
+            }
+        }
+        s
+    };
     let mut cov = vec![vec![0.0; m]; m];
     for a in 0..m {
         for b in a..m {
-            let mut s = 0.0;
-            for i in 0..n {
-                s += jac[a][i] * jac[b][i] * inputs[i].u * inputs[i].u;
-            }
-            for &(i, j, r) in &pairs {
-                s +=
-                    r * inputs[i].u * inputs[j].u * (jac[a][i] * jac[b][j] + jac[a][j] * jac[b][i]);
-            }
+            let s = sparse_dot(&nz[b], &sigma_j[a]);
             cov[a][b] = s;
             cov[b][a] = s;
         }
@@ -380,12 +429,17 @@ pub fn propagate(
         }
     }
     let roots: Vec<usize> = (0..n).map(|i| root(&mut parent, i)).collect();
+    // Per cluster: its size and whether all members share the first member's dof.
+    let mut cluster: std::collections::HashMap<usize, (usize, Option<f64>, bool)> = std::collections::HashMap::new();
+    for j in 0..n {
+        let e = cluster.entry(roots[j]).or_insert((0, inputs[j].dof, true));
+        e.0 += 1;
+        e.2 &= inputs[j].dof == e.1;
+    }
     let pooled: Vec<bool> = (0..n)
         .map(|i| {
-            let members: Vec<usize> = (0..n).filter(|&j| roots[j] == roots[i]).collect();
-            members.len() > 1
-                && inputs[i].dof.is_some()
-                && members.iter().all(|&j| inputs[j].dof == inputs[i].dof)
+            let (size, _, same) = cluster[&roots[i]];
+            size > 1 && inputs[i].dof.is_some() && same
         })
         .collect();
 
@@ -428,19 +482,21 @@ pub fn propagate(
                 contribs.push((contribution, inp.dof));
             }
         }
-        for r in 0..n {
-            if roots[r] != r || !pooled[r] {
+        // Each pooled cluster enters Welch–Satterthwaite as one contribution.
+        let mut pooled_var: BTreeMap<usize, f64> = BTreeMap::new();
+        for &(i, d) in &nz[k] {
+            if !pooled[i] {
                 continue;
             }
-            let mut v: f64 = (0..n)
-                .filter(|&i| roots[i] == r)
-                .map(|i| (jac[k][i] * inputs[i].u).powi(2))
-                .sum();
-            for &(i, j, rho) in &pairs {
-                if roots[i] == r && roots[j] == r {
-                    v += 2.0 * rho * jac[k][i] * jac[k][j] * inputs[i].u * inputs[j].u;
+            *pooled_var.entry(roots[i]).or_insert(0.0) += (d * inputs[i].u).powi(2);
+            for &(j, rho) in &partners[i] {
+                if j > i && roots[j] == roots[i] {
+                    *pooled_var.entry(roots[i]).or_insert(0.0) +=
+                        2.0 * rho * d * jac[k][j] * inputs[i].u * inputs[j].u;
                 }
             }
+        }
+        for (r, v) in pooled_var {
             contribs.push((v.max(0.0).sqrt(), inputs[r].dof));
         }
         let dof = welch_satterthwaite(&contribs);

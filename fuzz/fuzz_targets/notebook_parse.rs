@@ -12,7 +12,12 @@ fuzz_target!(|data: &[u8]| {
         Err(diags) => {
             let src = text.strip_prefix('\u{feff}').unwrap_or(&text);
             for d in diags {
-                assert!(d.span.start <= d.span.end && d.span.end <= src.len(), "span {:?} outside {}", d.span, src.len());
+                assert!(
+                    d.span.start <= d.span.end && d.span.end <= src.len(),
+                    "span {:?} outside {}",
+                    d.span,
+                    src.len()
+                );
                 assert!(src.is_char_boundary(d.span.start) && src.is_char_boundary(d.span.end));
                 let _ = benchrec::diag::line_col(src, d.span.start);
             }

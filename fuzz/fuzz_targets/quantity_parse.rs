@@ -4,9 +4,14 @@
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
-    let Ok(text) = std::str::from_utf8(data) else { return };
+    let Ok(text) = std::str::from_utf8(data) else {
+        return;
+    };
     match benchrec::quantity::parse_quantity(text) {
         Ok(q) => assert!(q.value.is_finite()),
-        Err(e) => assert!(e.offset <= text.len() && e.offset + e.len <= text.len(), "{e:?} for {text:?}"),
+        Err(e) => assert!(
+            e.offset <= text.len() && e.offset + e.len <= text.len(),
+            "{e:?} for {text:?}"
+        ),
     }
 });

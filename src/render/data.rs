@@ -226,9 +226,22 @@ fn result_json(r: &NamedResult) -> Value {
         }
     };
     let (v, e) = format::value_and_u(m.value / div, m.expanded / div);
-    let lines: Vec<Value> = m
-        .budget
+    // A long budget prints its largest contributions (in budget order) and sums the rest.
+    let mut keep: Vec<usize> = (0..m.budget.len()).collect();
+    let mut omitted = Value::Null;
+    if m.budget.len() > BUDGET_LINES {
+        keep.sort_by(|&a, &b| m.budget[b].contribution.total_cmp(&m.budget[a].contribution));
+        let rest: f64 = keep[BUDGET_LINES..].iter().map(|&i| m.budget[i].contribution.powi(2)).sum();
+        omitted = json!({
+            "count": keep.len() - BUDGET_LINES,
+            "u": with_unit(sci(rest.sqrt() / div, 2)),
+        });
+        keep.truncate(BUDGET_LINES);
+        keep.sort_unstable();
+    }
+    let lines: Vec<Value> = keep
         .iter()
+        .map(|&i| &m.budget[i])
         .map(|b| {
             json!({
                 "input": b.input,
@@ -263,6 +276,7 @@ fn result_json(r: &NamedResult) -> Value {
         "u": with_unit(sig(m.u / div, 2)),
         "dof": dof_text(m.dof),
         "budget": lines,
+        "budget_omitted": omitted,
         "mc": mc,
     })
 }
@@ -272,6 +286,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
     let long: Vec<Value> = block
         .rows
         .iter()
+        .take(PRINT_ROWS * 8)
         .map(|r| {
             json!({
                 "name": r.name,
@@ -319,18 +334,27 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         );
         scales.push((div, common_k.is_none()));
     }
-    let rows: Vec<Value> = freqs
+    // Results by (name, frequency), so a long sweep is not searched row by row.
+    let mut index: std::collections::HashMap<(&str, u64), &NamedResult> = std::collections::HashMap::new();
+    for r in &block.rows {
+        if let Some(f) = r.f {
+            index.entry((r.name.as_str(), f.to_bits())).or_insert(r);
+        }
+    }
+    let (shown, omitted) = head_and_tail(freqs.len());
+    let rows: Vec<Value> = shown
         .iter()
-        .map(|&f| {
+        .map(|&i| match i {
+            None => json!({ "f": "⋮", "cells": names.iter().map(|_| json!({"text": "⋮", "k": null})).collect::<Vec<_>>() }),
+            Some(i) => {
+            let f = freqs[i];
             let cells: Vec<Value> = names
                 .iter()
                 .zip(&scales)
                 .map(|(name, (div, show_k))| {
-                    match block
-                        .rows
-                        .iter()
-                        .find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f)))
-                    {
+                    match index.get(&(*name, f.to_bits())).copied().or_else(|| {
+                        block.rows.iter().find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f)))
+                    }) {
                         Some(r) => {
                             let (v, e) = format::value_and_u(r.m.value / div, r.m.expanded / div);
                             let k = if *show_k { Some(k_text(r.m.k)) } else { None };
@@ -341,10 +365,71 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
                 })
                 .collect();
             json!({ "f": trim_sig(f / fdiv, 5), "cells": cells })
+            }
         })
         .collect();
-    let grid = json!({ "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows });
+    let grid = json!({ "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows, "omitted": omitted });
     (Value::Array(long), grid)
+}
+
+/// Longest table printed whole; a longer one prints its first and last halves of this.
+pub const PRINT_ROWS: usize = 60;
+/// Budget lines printed; the rest are summed into one line.
+pub const BUDGET_LINES: usize = 30;
+/// Flags printed per block; all of them stay in the results export.
+pub const PRINT_FLAGS: usize = 40;
+/// Points per plotted series; longer series are thinned evenly (the fit uses every point).
+pub const PLOT_POINTS: usize = 1500;
+
+/// Indices to print for `n` rows: all of them, or head, a gap (`None`), tail; and how many
+/// were left out.
+fn head_and_tail(n: usize) -> (Vec<Option<usize>>, usize) {
+    if n <= PRINT_ROWS {
+        return ((0..n).map(Some).collect(), 0);
+    }
+    let h = PRINT_ROWS / 2;
+    let mut v: Vec<Option<usize>> = (0..h).map(Some).collect();
+    v.push(None);
+    v.extend((n - h..n).map(Some));
+    (v, n - 2 * h)
+}
+
+/// A copy of the block with every plot series thinned to at most `PLOT_POINTS`, or None when
+/// nothing needs thinning.
+fn thin_for_plotting(block: &BlockResult) -> Option<BlockResult> {
+    let long = |n: usize| n > PLOT_POINTS;
+    if !block.plot.series.iter().any(|(_, s)| long(s.len())) && !block.plot.curves.iter().any(|(_, c)| long(c.len())) {
+        return None;
+    }
+    fn thin<T: Clone>(v: &[T]) -> Vec<T> {
+        if v.len() <= PLOT_POINTS {
+            return v.to_vec();
+        }
+        let step = v.len().div_ceil(PLOT_POINTS);
+        let mut out: Vec<T> = v.iter().step_by(step).cloned().collect();
+        if (v.len() - 1) % step != 0 {
+            if let Some(last) = v.last() {
+                out.push(last.clone());
+            }
+        }
+        out
+    }
+    let mut b = BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows: Vec::new(),
+        results: block.results.clone(),
+        correlations: Vec::new(),
+        flags: Vec::new(),
+        plot: block.plot.clone(),
+    };
+    for (_, s) in &mut b.plot.series {
+        *s = thin(s);
+    }
+    for (_, c) in &mut b.plot.curves {
+        *c = thin(c);
+    }
+    Some(b)
 }
 
 fn same_f(a: f64, b: f64) -> bool {
@@ -585,13 +670,16 @@ fn readings_json(
             json!({ "base": base, "sub": sub, "italic": italic, "unit": heading_unit(c), "heading": c.heading })
         })
         .collect();
-    let rows: Vec<Vec<String>> = rb
-        .rows
+    let (shown, table_omitted) = head_and_tail(rb.rows.len());
+    let rows: Vec<Vec<String>> = shown
         .iter()
-        .map(|r| {
-            let mut cells: Vec<String> = r.cells.iter().map(|c| c.text.clone()).collect();
-            cells.resize(rb.columns.len().max(cells.len()), String::new());
-            cells
+        .map(|i| match i.and_then(|i| rb.rows.get(i)) {
+            Some(r) => {
+                let mut cells: Vec<String> = r.cells.iter().map(|c| c.text.clone()).collect();
+                cells.resize(rb.columns.len().max(cells.len()), String::new());
+                cells
+            }
+            None => vec!["⋮".to_string(); rb.columns.len()],
         })
         .collect();
     let block = record.reduction.blocks.iter().find(|b| b.id == rb.id);
@@ -605,13 +693,15 @@ fn readings_json(
         "phase": rb.phase.as_ref().map(|m| m.name.clone()),
         "counter": rb.counter.as_ref().map(|m| m.name.clone()),
         "source": rb.source.map(|v| format::quantity(v, Unit::V)),
-        "table": { "columns": columns, "rows": rows },
+        "table": { "columns": columns, "rows": rows, "omitted": table_omitted },
         "reduced": block.is_some(),
     });
     let Some(block) = block else { return Ok(out) };
     let (long, grid) = frequency_json(block);
     let mut plots_json = Vec::new();
-    for (n, p) in plots::block_plots(block, band_for(record, rb, block))?
+    let thinned = thin_for_plotting(block);
+    let block_for_plot = thinned.as_ref().unwrap_or(block);
+    for (n, p) in plots::block_plots(block_for_plot, band_for(record, rb, block))?
         .into_iter()
         .enumerate()
     {
@@ -657,11 +747,21 @@ fn readings_json(
         map.insert(
             "flags".into(),
             Value::Array(
-                block
-                    .flags
-                    .iter()
-                    .map(|f| Value::from(f.message.clone()))
-                    .collect(),
+                {
+                    let mut v: Vec<Value> = block
+                        .flags
+                        .iter()
+                        .take(PRINT_FLAGS)
+                        .map(|f| Value::from(f.message.clone()))
+                        .collect();
+                    if block.flags.len() > PRINT_FLAGS {
+                        v.push(Value::from(format!(
+                            "… and {} more flags, not printed here; `benchrec results` lists every one",
+                            block.flags.len() - PRINT_FLAGS
+                        )));
+                    }
+                    v
+                },
             ),
         );
         map.insert("verdicts".into(), Value::Array(verdicts));

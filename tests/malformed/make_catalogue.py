@@ -62,7 +62,7 @@ case("fm-yaml-bad-indent", sub("    what: bench meter\n", "    what: bench meter
 case("fm-yaml-tab-indent", sub("  dmm:\n    what", "  dmm:\n⟧\twhat"), "yaml|tab", "tab used as YAML indentation")
 case("fm-not-a-mapping", "⟦---\n- just some words\n- in a list\n---\n" + PROSE + HEAD + TABLE + TAIL, "mapping|key", "front matter is a list, not a mapping")
 case("fm-missing-open", "⟦# A notebook that starts with prose\n" + PROSE + HEAD + TABLE + TAIL, "front matter", "no --- fence on line 1")
-case("fm-unclosed", (FM + PROSE).replace("---\n", "⟧--\n", 1).replace("tolerance: K\n---\n", "tolerance: K\n", 1) + "Prose follows but the header never ends.\n", "clos", "front matter never closed")
+case("fm-unclosed", (FM + PROSE).replace("---\n", "⟧---\n", 1).replace("tolerance: K\n---\n", "tolerance: K\n", 1) + "Prose follows but the header never ends.\n", "clos", "front matter never closed")
 case("fm-duplicate-key", sub("date: 2026-10-05\n", "date: 2026-10-05\n⟧title: Again\n"), "duplicate|twice|already|more than once", "a YAML key given twice")
 case("fm-deep-nesting", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\n⟧lab: " + "[" * 5000 + "]" * 5000 + "\n"), "yaml|nest|deep|recursion|limit|expected", "deeply nested YAML on one line")
 laughs = "lab: [&a [lol, lol, lol, lol, lol, lol, lol, lol, lol], " + ", ".join(
