@@ -40,10 +40,14 @@ fn median(mut v: Vec<f64>) -> f64 {
 /// A notebook of three RC blocks with invented readings, varied by `i`.
 fn notebook(i: usize) -> String {
     let mut s = format!(
-        "---\nrecord: BENCH-{i:04}\ntitle: Generated benchmark notebook {i}\ndate: 2026-11-02\noperator: bench\n\
-instruments:\n  meter:\n    accuracy: 0.5% + 3\n    resolution: 1 mV\nparts:\n  R:\n    kind: resistor\n    nominal: 2.2 kohm\n    tolerance: 1%\n\
-  C:\n    kind: capacitor\n    nominal: 68 nF\n    tolerance: 10%\n---\n\n# Generated {i}\n\nInvented readings for the benchmark.\n\n"
+        "---\nrecord: BENCH-{i:04}\ntitle: Generated benchmark notebook {i}\ndate: 2026-11-02\noperator: bench\n"
     );
+    s.push_str("instruments:\n  meter:\n    accuracy: 0.5% + 3\n    resolution: 1 mV\n");
+    s.push_str("parts:\n  R:\n    kind: resistor\n    nominal: 2.2 kohm\n    tolerance: 1%\n");
+    s.push_str("  C:\n    kind: capacitor\n    nominal: 68 nF\n    tolerance: 10%\n---\n\n");
+    s.push_str(&format!(
+        "# Generated {i}\n\nInvented readings for the benchmark.\n\n"
+    ));
     for b in 0..3 {
         s.push_str(&format!("```readings\nid: blk{b}\nnetwork: RC\nparts: [R, C]\nmeter: meter\n---\nf/Hz Vs/V VR/V VC/V\n"));
         for (f, vr, vc) in [
@@ -59,51 +63,60 @@ instruments:\n  meter:\n    accuracy: 0.5% + 3\n    resolution: 1 mV\nparts:\n  
     s
 }
 
-/// Where the time of one record goes, in process (fonts and library are loaded by the first
-/// render, so it is timed apart): analyse (parse + reduce + judge), data and plots, typst
-/// layout, PDF export.
+/// Where the time of one record goes, in process: analyse (parse + reduce + judge), template
+/// data and plots, typst layout, PDF export. Typst memoises compilation, so each stage is
+/// timed once on a record it has not seen; fonts and the library are loaded by a warm-up.
 fn stages(demo: &Path) {
     use benchrec::{pipeline, render};
-    let t = Instant::now();
-    let (_rec, _pdf) = pipeline::render_file(demo).expect("demo builds");
-    println!("  first render in this process (loads embedded fonts, typst library): {:.3} s", t.elapsed().as_secs_f64());
     let src = pipeline::read_source(demo).expect("read");
-    let n = 15;
-    let (mut a, mut g, mut c, mut p) = (vec![], vec![], vec![], vec![]);
-    for _ in 0..n {
-        let t = Instant::now();
-        let rec = pipeline::analyse_text(demo, &src.text).expect("analyse");
-        a.push(t.elapsed().as_secs_f64());
-        let mut assets = pipeline::gather_assets(&src, &rec).expect("assets");
-        assets.source = src.raw.clone();
-        let t = Instant::now();
-        let _ = render::build_world(&rec, &assets).expect("world");
-        g.push(t.elapsed().as_secs_f64());
-        let t = Instant::now();
-        let _ = render::compile(&rec, &assets).expect("compile");
-        c.push(t.elapsed().as_secs_f64());
-        let t = Instant::now();
-        let _ = render::render_pdf(&rec, &assets).expect("pdf");
-        p.push(t.elapsed().as_secs_f64());
-    }
-    let (ma, mg, mc, mp) = (median(a), median(g), median(c), median(p));
-    println!("  analyse (parse, reduce incl. Monte Carlo, judge): {:.1} ms", ma * 1e3);
-    println!("  template data and plots (SVG): {:.1} ms", mg * 1e3);
-    println!("  typst compile (layout) incl. data: {:.1} ms", mc * 1e3);
-    println!("  PDF export alone (render_pdf − compile): {:.1} ms", (mp - mc).max(0.0) * 1e3);
+    let t = Instant::now();
+    let rec = pipeline::analyse_text(demo, &src.text).expect("analyse");
+    let ta = t.elapsed().as_secs_f64();
+    let mut assets = pipeline::gather_assets(&src, &rec).expect("assets");
+    assets.source = src.raw.clone();
+    let t = Instant::now();
+    let _ = render::build_world(&rec, &assets).expect("world");
+    let tw = t.elapsed().as_secs_f64();
+    let t = Instant::now();
+    let _ = render::compile(&rec, &assets).expect("compile");
+    let tc = t.elapsed().as_secs_f64();
+    let t = Instant::now();
+    let _ = render::render_pdf(&rec, &assets).expect("pdf");
+    let tp = t.elapsed().as_secs_f64();
+    println!(
+        "  analyse {:.1} ms | data + plots {:.1} ms | typst layout (incl. data) {:.1} ms | PDF export {:.1} ms",
+        ta * 1e3, tw * 1e3, tc * 1e3, tp * 1e3
+    );
 }
 
 fn main() {
     let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo/snubber-caps.md");
+    {
+        let warm = tempfile::tempdir().expect("tempdir");
+        let nb = warm.path().join("warm.md");
+        std::fs::write(&nb, benchrec::starter::starter("WARM", "2026-11-02")).unwrap();
+        let t = Instant::now();
+        benchrec::pipeline::render_file(&nb).expect("warm-up builds");
+        println!(
+            "first render in a process (loads embedded fonts and the typst library): {:.3} s",
+            t.elapsed().as_secs_f64()
+        );
+    }
     for name in ["snubber-caps.md", "crossover-coils.md", "sensor-tank.md"] {
-        println!("stages of demo/{name}, median of 15 in one process:");
-        stages(&Path::new(env!("CARGO_MANIFEST_DIR")).join("demo").join(name));
+        println!("stages of demo/{name}:");
+        stages(
+            &Path::new(env!("CARGO_MANIFEST_DIR"))
+                .join("demo")
+                .join(name),
+        );
     }
     let tmp = tempfile::tempdir().expect("tempdir");
     let out = tmp.path().join("demo.pdf");
     let (d, o) = (demo.to_str().unwrap(), out.to_str().unwrap());
-    run(&["build", d, "-o", o]); // warm the page cache
-    let times: Vec<f64> = (0..7).map(|_| run(&["build", d, "-o", o])).collect();
+    run(&["build", d, "-o", o, "--force"]); // warm the page cache
+    let times: Vec<f64> = (0..7)
+        .map(|_| run(&["build", d, "-o", o, "--force"]))
+        .collect();
     println!(
         "demo record, cold process: median {:.3} s wall over 7 runs; peak RSS {:.0} MiB",
         median(times),

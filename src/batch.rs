@@ -216,11 +216,25 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
 
 /// Runs every job on the rayon pool; `tick` is called after each one (for a progress bar).
 pub fn run_all(jobs: &[Job], force: bool, tick: &(dyn Fn(&Job, &Outcome) + Sync)) -> Vec<Outcome> {
-    jobs.par_iter()
-        .map(|j| {
-            let o = run_job(j, force);
-            tick(j, &o);
-            o
-        })
-        .collect()
+    let work = || -> Vec<Outcome> {
+        jobs.par_iter()
+            .map(|j| {
+                let o = run_job(j, force);
+                tick(j, &o);
+                o
+            })
+            .collect()
+    };
+    // Typesetting recurses deeply: give the workers the main thread's stack size, not
+    // rayon's 2 MiB default.
+    match rayon::ThreadPoolBuilder::new()
+        .stack_size(WORKER_STACK)
+        .build()
+    {
+        Ok(pool) => pool.install(work),
+        Err(_) => work(),
+    }
 }
+
+/// Stack of each build worker thread.
+pub const WORKER_STACK: usize = 16 * 1024 * 1024;

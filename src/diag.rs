@@ -107,7 +107,18 @@ pub fn render(file_name: &str, src: &str, diags: &[Diagnostic]) -> String {
     };
     let mut out = String::new();
     for d in diags {
+        let d = &shorten(d);
         let s = clamp_span(src, d.span);
+        // A line too long to show (a pasted 10 MB cell) gets the one-line form.
+        let (ls, le) = (
+            src[..s.start].rfind('\n').map_or(0, |i| i + 1),
+            src[s.end..].find('\n').map_or(src.len(), |i| s.end + i),
+        );
+        if le - ls > MAX_SNIPPET {
+            out.push_str(&one_line(file_name, src, d));
+            out.push('\n');
+            continue;
+        }
         let cs = CsDiag::error()
             .with_message(d.message.clone())
             .with_labels(vec![Label::primary((), s.start..s.end)])
@@ -124,8 +135,35 @@ pub fn render(file_name: &str, src: &str, diags: &[Diagnostic]) -> String {
     out
 }
 
+/// Longest source line shown as a snippet, and longest text quoted in a message.
+const MAX_SNIPPET: usize = 2000;
+const MAX_QUOTE: usize = 200;
+
+fn clip(t: &str) -> String {
+    if t.len() <= MAX_QUOTE {
+        return t.to_string();
+    }
+    let mut end = MAX_QUOTE;
+    while !t.is_char_boundary(end) {
+        end -= 1;
+    }
+    format!("{}… ({} bytes in all)", &t[..end], t.len())
+}
+
+/// The diagnostic with long quoted texts cut short.
+fn shorten(d: &Diagnostic) -> Diagnostic {
+    Diagnostic {
+        span: d.span,
+        message: clip(&d.message),
+        expected: d.expected.as_deref().map(clip),
+        found: d.found.as_deref().map(clip),
+        help: d.help.as_deref().map(clip),
+    }
+}
+
 /// `file:line:col: message (expected …, found …)`.
 pub fn one_line(file_name: &str, src: &str, d: &Diagnostic) -> String {
+    let d = &shorten(d);
     let (line, col) = line_col(src, d.span.start);
     let mut extra = Vec::new();
     if let Some(e) = &d.expected {

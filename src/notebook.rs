@@ -1779,7 +1779,7 @@ fn tolerance(
             } else {
                 ex.err(
                     Diagnostic::new(span, "tolerance out of range")
-                        .expected("a percentage above 0 % and below 100 %")
+                        .expected("a positive percentage, above 0 % and below 100 %")
                         .found(format!("`{}`", raw.trim())),
                 );
                 None

@@ -222,14 +222,28 @@ pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
         }
     }
     if let Some((tpl, span)) = &rec.notebook.front.template {
+        // A template is typeset into the record, so it obeys the same rule as images: a
+        // relative path inside the notebook's folder, not leaving it through a link.
+        let refuse = |why: String| {
+            Diagnostic::new(*span, format!("template `{tpl}` {why}"))
+                .expected("a Typst template file, relative to the notebook, inside its folder")
+                .found(tpl.clone())
+                .help("copy the lab's template next to the notebook (or into a subfolder)")
+        };
         let full = dir.join(tpl);
-        match std::fs::read_to_string(&full) {
-            Ok(t) => assets.template = Some(t),
-            Err(e) => diags.push(
-                Diagnostic::new(*span, format!("template `{tpl}` could not be read: {e}"))
-                    .expected("a Typst template file, relative to the notebook")
-                    .found(full.display().to_string()),
-            ),
+        if !is_inside(tpl) {
+            diags.push(refuse("points outside the notebook's folder".into()));
+        } else {
+            match full.canonicalize() {
+                Ok(c) if c.starts_with(&canon_dir) => match std::fs::read_to_string(&c) {
+                    Ok(t) => assets.template = Some(t),
+                    Err(e) => diags.push(refuse(format!("could not be read: {e}"))),
+                },
+                Ok(_) => diags.push(refuse(
+                    "resolves (through a link) outside the notebook's folder".into(),
+                )),
+                Err(_) => diags.push(refuse("does not exist".into())),
+            }
         }
     }
     if diags.is_empty() {
@@ -260,6 +274,17 @@ pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
         .suffix(".tmp")
         .tempfile_in(&dir)?;
     tmp.write_all(bytes)?;
+    // The temporary file is private (0600); give the result the mode of the file it replaces,
+    // or the usual 0644 for a new one.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let mode = std::fs::metadata(out)
+            .map(|m| m.permissions().mode() & 0o7777)
+            .unwrap_or(0o644);
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(mode))?;
+    }
     tmp.as_file().sync_all()?;
     tmp.persist(out).map_err(|e| e.error)?;
     Ok(())
@@ -274,8 +299,15 @@ pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     let pdf = render::render_pdf(&rec, &assets).map_err(|e| Failure::Render {
         path: path.to_path_buf(),
         message: e.to_string(),
-    })?;
-    Ok((rec, pdf))
+    });
+    // Typst memoises layout across compilations; a batch or a watch session would otherwise
+    // keep every record's intermediate results in memory. Now and then, drop what the last
+    // builds did not use (evicting after every build doubled a batch's time).
+    static BUILDS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+    if BUILDS.fetch_add(1, std::sync::atomic::Ordering::Relaxed) % 16 == 15 {
+        typst::comemo::evict(2);
+    }
+    Ok((rec, pdf?))
 }
 
 /// Builds one notebook into `out` (default beside it). Returns the path written.

@@ -4,8 +4,8 @@
 
 use crate::notebook::Distribution;
 use serde::Serialize;
-use std::collections::BTreeMap;
 use statrs::distribution::{ContinuousCDF, Normal, StudentsT};
+use std::collections::BTreeMap;
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 pub enum EvalType {
@@ -349,7 +349,13 @@ pub fn propagate(
     // outputs depend on a handful of inputs, so cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
     let nz: Vec<Vec<(usize, f64)>> = jac
         .iter()
-        .map(|row| row.iter().enumerate().filter(|(_, d)| **d != 0.0).map(|(i, d)| (i, *d)).collect())
+        .map(|row| {
+            row.iter()
+                .enumerate()
+                .filter(|(_, d)| **d != 0.0)
+                .map(|(i, d)| (i, *d))
+                .collect()
+        })
         .collect();
     let mut partners: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
     for &(i, j, r) in &pairs {
@@ -430,7 +436,8 @@ pub fn propagate(
     }
     let roots: Vec<usize> = (0..n).map(|i| root(&mut parent, i)).collect();
     // Per cluster: its size and whether all members share the first member's dof.
-    let mut cluster: std::collections::HashMap<usize, (usize, Option<f64>, bool)> = std::collections::HashMap::new();
+    let mut cluster: std::collections::HashMap<usize, (usize, Option<f64>, bool)> =
+        std::collections::HashMap::new();
     for j in 0..n {
         let e = cluster.entry(roots[j]).or_insert((0, inputs[j].dof, true));
         e.0 += 1;

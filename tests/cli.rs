@@ -605,12 +605,22 @@ fn gum_h2_through_the_results_verb() {
     let json: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
     let block = &json["blocks"][0];
     let get = |name: &str| {
-        let r = block["results"].as_array().unwrap().iter().find(|r| r["name"] == name).unwrap().clone();
+        let r = block["results"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|r| r["name"] == name)
+            .unwrap()
+            .clone();
         (r["value"].as_f64().unwrap(), r["u"].as_f64().unwrap())
     };
     // Within one unit of the last published digit.
     let close = |x: f64, published: f64, last: f64| (x - published).abs() <= last * 1.0001;
-    for (name, v, u) in [("R", 127.732, 0.071), ("X", 219.847, 0.295), ("Z", 254.260, 0.236)] {
+    for (name, v, u) in [
+        ("R", 127.732, 0.071),
+        ("X", 219.847, 0.295),
+        ("Z", 254.260, 0.236),
+    ] {
         let (cv, cu) = get(name);
         assert!(close(cv, v, 0.001), "{name} = {cv}, published {v}");
         assert!(close(cu, u, 0.001), "u({name}) = {cu}, published {u}");
@@ -625,7 +635,19 @@ fn gum_h2_through_the_results_verb() {
             .as_f64()
             .unwrap()
     };
-    assert!(close(corr("R", "X"), -0.588, 0.001), "r(R,X) = {}", corr("R", "X"));
-    assert!(close(corr("R", "Z"), -0.485, 0.001), "r(R,Z) = {}", corr("R", "Z"));
-    assert!(close(corr("X", "Z"), 0.993, 0.001), "r(X,Z) = {}", corr("X", "Z"));
+    assert!(
+        close(corr("R", "X"), -0.588, 0.001),
+        "r(R,X) = {}",
+        corr("R", "X")
+    );
+    assert!(
+        close(corr("R", "Z"), -0.485, 0.001),
+        "r(R,Z) = {}",
+        corr("R", "Z")
+    );
+    assert!(
+        close(corr("X", "Z"), 0.993, 0.001),
+        "r(X,Z) = {}",
+        corr("X", "Z")
+    );
 }

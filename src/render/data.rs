@@ -230,8 +230,15 @@ fn result_json(r: &NamedResult) -> Value {
     let mut keep: Vec<usize> = (0..m.budget.len()).collect();
     let mut omitted = Value::Null;
     if m.budget.len() > BUDGET_LINES {
-        keep.sort_by(|&a, &b| m.budget[b].contribution.total_cmp(&m.budget[a].contribution));
-        let rest: f64 = keep[BUDGET_LINES..].iter().map(|&i| m.budget[i].contribution.powi(2)).sum();
+        keep.sort_by(|&a, &b| {
+            m.budget[b]
+                .contribution
+                .total_cmp(&m.budget[a].contribution)
+        });
+        let rest: f64 = keep[BUDGET_LINES..]
+            .iter()
+            .map(|&i| m.budget[i].contribution.powi(2))
+            .sum();
         omitted = json!({
             "count": keep.len() - BUDGET_LINES,
             "u": with_unit(sci(rest.sqrt() / div, 2)),
@@ -335,7 +342,8 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         scales.push((div, common_k.is_none()));
     }
     // Results by (name, frequency), so a long sweep is not searched row by row.
-    let mut index: std::collections::HashMap<(&str, u64), &NamedResult> = std::collections::HashMap::new();
+    let mut index: std::collections::HashMap<(&str, u64), &NamedResult> =
+        std::collections::HashMap::new();
     for r in &block.rows {
         if let Some(f) = r.f {
             index.entry((r.name.as_str(), f.to_bits())).or_insert(r);
@@ -398,7 +406,9 @@ fn head_and_tail(n: usize) -> (Vec<Option<usize>>, usize) {
 /// nothing needs thinning.
 fn thin_for_plotting(block: &BlockResult) -> Option<BlockResult> {
     let long = |n: usize| n > PLOT_POINTS;
-    if !block.plot.series.iter().any(|(_, s)| long(s.len())) && !block.plot.curves.iter().any(|(_, c)| long(c.len())) {
+    if !block.plot.series.iter().any(|(_, s)| long(s.len()))
+        && !block.plot.curves.iter().any(|(_, c)| long(c.len()))
+    {
         return None;
     }
     fn thin<T: Clone>(v: &[T]) -> Vec<T> {
@@ -746,23 +756,21 @@ fn readings_json(
         );
         map.insert(
             "flags".into(),
-            Value::Array(
-                {
-                    let mut v: Vec<Value> = block
-                        .flags
-                        .iter()
-                        .take(PRINT_FLAGS)
-                        .map(|f| Value::from(f.message.clone()))
-                        .collect();
-                    if block.flags.len() > PRINT_FLAGS {
-                        v.push(Value::from(format!(
-                            "… and {} more flags, not printed here; `benchrec results` lists every one",
-                            block.flags.len() - PRINT_FLAGS
-                        )));
-                    }
-                    v
-                },
-            ),
+            Value::Array({
+                let mut v: Vec<Value> = block
+                    .flags
+                    .iter()
+                    .take(PRINT_FLAGS)
+                    .map(|f| Value::from(f.message.clone()))
+                    .collect();
+                if block.flags.len() > PRINT_FLAGS {
+                    v.push(Value::from(format!(
+                        "… and {} more flags, not printed here; `benchrec results` lists every one",
+                        block.flags.len() - PRINT_FLAGS
+                    )));
+                }
+                v
+            }),
         );
         map.insert("verdicts".into(), Value::Array(verdicts));
         map.insert("plots".into(), Value::Array(plots_json));

@@ -138,7 +138,10 @@ pub fn value_and_u(value: f64, u_exp: f64) -> (String, String) {
     let last = ur.log10().floor() as i32 - 1;
     if last >= 0 {
         let p = 10f64.powi(last);
-        (fixed((value / p).round() * p, 0), fixed((ur / p).round() * p, 0))
+        (
+            fixed((value / p).round() * p, 0),
+            fixed((ur / p).round() * p, 0),
+        )
     } else {
         let d = (-last).min(9) as usize;
         (fixed(value, d), fixed(ur, d))

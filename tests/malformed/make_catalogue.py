@@ -87,7 +87,7 @@ case("fm-nominal-nan", sub("nominal: 2.2 kohm", "nominal: ⟦NaN ohm"), "finite"
 case("fm-nominal-zero-resistance", sub("nominal: 2.2 kohm", "nominal: ⟦0 ohm"), "positive|zero|greater than", "a zero resistance")
 case("fm-tolerance-code-unknown", sub("tolerance: K", "tolerance: ⟦Q"), "60062|letter|code", "IEC 60062 code that does not exist")
 case("fm-tolerance-code-E", sub("tolerance: K", "tolerance: ⟦E"), "60062|letter|code", "letter E is not in the FORMAT list")
-case("fm-tolerance-negative", sub("tolerance: 1%", "tolerance: ⟧1%"), "positive|negative|greater than", "a negative tolerance")
+case("fm-tolerance-negative", sub("tolerance: 1%", "tolerance: ⟧-1%"), "positive|negative|greater than", "a negative tolerance")
 case("fm-measured-by-undefined", sub("    tolerance: 1%\n", "    tolerance: 1%\n    measured: 2.19 kohm\n    by: ⟦megger\n"), "defin|unknown|no instrument", "part measured by an instrument not defined")
 # --- readings block header
 case("blk-network-unknown", sub("network: RC", "network: ⟦RCX"), "RLC", "unknown network")
