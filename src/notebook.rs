@@ -2310,10 +2310,37 @@ fn parse_block(
         }
         let rs = trim_tok(src, l.start, cend);
         let row_span = Span::new(rs.start, rs.end);
+        if cells_tok.len() > ncols && !pipe {
+            // A word right after a number in a whitespace table is most likely a unit that
+            // is not known, not an extra column: say so at the word.
+            let found = (1..cells_tok.len()).find(|&j| {
+                let w = &src[cells_tok[j].start..cells_tok[j].end];
+                let p = &src[cells_tok[j - 1].start..cells_tok[j - 1].end];
+                w.starts_with(|c: char| c.is_alphabetic()) && p.parse::<f64>().is_ok()
+            });
+            if let Some(j) = found {
+                let (prev, extra) = (cells_tok[j - 1], cells_tok[j]);
+                let word = &src[extra.start..extra.end];
+                let joined = format!("{} {word}", &src[prev.start..prev.end]);
+                if let Err(e) = parse_quantity(&joined) {
+                    d.push(
+                        Diagnostic::new(Span::new(extra.start, extra.end), e.message)
+                            .expected(e.expected)
+                            .found(format!("`{word}`")),
+                    );
+                    continue;
+                }
+            }
+        }
         if cells_tok.len() != ncols {
+            // Too many cells: point at the first one the table has no column for.
+            let at = match cells_tok.get(ncols) {
+                Some(t) if cells_tok.len() > ncols => Span::new(t.start, t.end),
+                _ => row_span,
+            };
             d.push(
                 Diagnostic::new(
-                    row_span,
+                    at,
                     format!(
                         "row has {} cells but the table has {} columns",
                         cells_tok.len(),

@@ -172,9 +172,6 @@ const KNOWN_GAPS: &[&str] = &[
     "fm-billion-laughs.md",
     "fm-accuracy-garbled.md",
     "col-prefix-unknown.md",
-    "row-long.md",
-    "cell-unit-unknown-spaced.md",
-    "cell-prefix-unknown-spaced.md",
 ];
 
 #[test]
