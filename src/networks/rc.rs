@@ -289,20 +289,19 @@ mod tests {
     // The 3-4-5 series RC of the textbooks (from memory, common in electrical-technology
     // texts): R = 30 Ω, XC = 40 Ω on 100 V: Z = 50 Ω, I = 2 A, VR = 60 V, VC = 80 V,
     // current leads by atan(40/30) = 53.13°. At 50 Hz, C = 1/(2π·50·40) = 79.577 µF.
+    /// Columns of an RC block with the source read too.
+    const FULL_RC: [(&str, Unit); 4] = [
+        ("f", Unit::Hz),
+        ("Vs", Unit::V),
+        ("VR", Unit::V),
+        ("VC", Unit::V),
+    ];
+
     #[test]
     fn textbook_345_triangle() {
         let mut env = Env::new();
         env.parts.insert("R1".into(), resistor("R1", 30.0, None));
-        let mut b = block(
-            Network::RC,
-            &[
-                ("f", Unit::Hz),
-                ("Vs", Unit::V),
-                ("VR", Unit::V),
-                ("VC", Unit::V),
-            ],
-            &[vec![50.0, 100.0, 60.0, 80.0]],
-        );
+        let mut b = block(Network::RC, &FULL_RC, &[vec![50.0, 100.0, 60.0, 80.0]]);
         b.parts = vec![named("R1")];
         let out = reduce(&env.ctx(), &b).unwrap();
         assert!((find(&out, "I", 50.0).m.value - 2.0).abs() < 1e-12);
@@ -383,29 +382,11 @@ mod tests {
     fn impossible_readings_are_diagnostics_or_flags() {
         let mut env = Env::new();
         env.parts.insert("R1".into(), resistor("R1", 100.0, None));
-        let mut b = block(
-            Network::RC,
-            &[
-                ("f", Unit::Hz),
-                ("Vs", Unit::V),
-                ("VR", Unit::V),
-                ("VC", Unit::V),
-            ],
-            &[vec![50.0, 1.0, 0.0, 0.5]],
-        );
+        let mut b = block(Network::RC, &FULL_RC, &[vec![50.0, 1.0, 0.0, 0.5]]);
         b.parts = vec![named("R1")];
         let e = reduce(&env.ctx(), &b).unwrap_err();
         assert!(e[0].message.starts_with("VR must be positive"));
-        let mut b2 = block(
-            Network::RC,
-            &[
-                ("f", Unit::Hz),
-                ("Vs", Unit::V),
-                ("VR", Unit::V),
-                ("VC", Unit::V),
-            ],
-            &[vec![50.0, 1.0, 1.2, 0.5]],
-        );
+        let mut b2 = block(Network::RC, &FULL_RC, &[vec![50.0, 1.0, 1.2, 0.5]]);
         b2.parts = vec![named("R1")];
         let out = reduce(&env.ctx(), &b2).unwrap();
         assert!(out
@@ -452,16 +433,7 @@ mod tests {
             resistor("R1", 1000.0, Some(Tolerance::Relative(0.01))),
         );
         let (vr, vc, _) = ideal(1000.0, 100e-9, 1.9, 1000.0);
-        let mut b = block(
-            Network::RC,
-            &[
-                ("f", Unit::Hz),
-                ("Vs", Unit::V),
-                ("VR", Unit::V),
-                ("VC", Unit::V),
-            ],
-            &[vec![1000.0, 1.9, vr, vc]],
-        );
+        let mut b = block(Network::RC, &FULL_RC, &[vec![1000.0, 1.9, vr, vc]]);
         b.parts = vec![named("R1")];
         b.meter = Some(named("dmm"));
         b.source = Some(2.0);
