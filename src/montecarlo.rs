@@ -117,22 +117,6 @@ pub fn monte_carlo(
     monte_carlo_with(inputs, corr, f, p, seed, trials, McOptions::default())
 }
 
-/// Inputs on which some of the given outputs depend (a non-zero sensitivity in `jacobian`
-/// rows `outputs`, as from `Propagated::jacobian`).
-pub fn relevant_inputs(jacobian: &[Vec<f64>], outputs: &[usize]) -> Vec<usize> {
-    let n = jacobian.first().map_or(0, |r| r.len());
-    (0..n)
-        .filter(|&i| {
-            outputs.iter().any(|&k| {
-                jacobian
-                    .get(k)
-                    .and_then(|r| r.get(i))
-                    .is_some_and(|c| *c != 0.0)
-            })
-        })
-        .collect()
-}
-
 /// [`monte_carlo`] drawing only the inputs `used` (the others stay at their estimates);
 /// correlations with an input not drawn are dropped, which leaves the joint law of the drawn
 /// ones unchanged. `f` still receives the full input vector.

@@ -454,6 +454,22 @@ fn clean_yaml_message(msg: &str) -> String {
     out
 }
 
+/// From a raw serde_yaml message, the bracket and (line, column) of a flow collection that
+/// was never closed: "... while parsing a flow sequence at line L column C".
+fn unclosed_flow(raw: &str) -> Option<(char, usize, usize)> {
+    for (phrase, open) in [
+        ("while parsing a flow sequence at line ", '['),
+        ("while parsing a flow mapping at line ", '{'),
+    ] {
+        let Some(i) = raw.find(phrase) else { continue };
+        let tail = &raw[i + phrase.len()..];
+        let (line, rest) = tail.split_once(" column ")?;
+        let col: String = rest.chars().take_while(|c| c.is_ascii_digit()).collect();
+        return Some((open, line.parse().ok()?, col.parse().ok()?));
+    }
+    None
+}
+
 /// Deepest nesting of flow brackets outside quotes and comments; returns (depth, offset).
 fn flow_depth(text: &str) -> (usize, usize) {
     let mut depth = 0usize;
@@ -562,7 +578,9 @@ impl<'a> Yaml<'a> {
                 })
                 .collect();
             let span = hits.get(1).copied().unwrap_or(self.anchor);
-            let mut d = Diagnostic::new(span, format!("key `{key}` appears twice in the {what}"));
+            let mut d = Diagnostic::new(span, format!("key `{key}` appears twice in the {what}"))
+                .expected(format!("each key once in the {what}"))
+                .found(format!("a second `{key}`"));
             if let Some(first) = hits.first() {
                 let (l, c) = line_col(self.src, first.start);
                 d = d.help(format!("first given at line {l}, column {c}"));
@@ -583,11 +601,29 @@ impl<'a> Yaml<'a> {
             }
             None => (self.anchor, false),
         };
-        let mut d = Diagnostic::new(span, format!("the {what} is not valid YAML: {msg}"));
+        let mut d = Diagnostic::new(span, format!("the {what} is not valid YAML: {msg}"))
+            .expected("YAML `key: value` lines, nested keys indented with spaces");
+        if let Some((open, line, col)) = unclosed_flow(&raw) {
+            // libyaml notices a missing `]` or `}` only where the next line begins; the
+            // opening bracket is what the writer has to fix.
+            let at = self.char_span(self.offset_of(line, col));
+            let close = if open == '[' { ']' } else { '}' };
+            return Diagnostic::new(
+                at,
+                format!("the YAML `{open}` opened here in the {what} is never closed"),
+            )
+            .expected(format!("`{close}` before the end of the line"))
+            .help(format!(
+                "close the list with `{close}`, or quote the text if the `{open}` belongs to it"
+            ));
+        }
         if msg.contains("recursion limit") {
-            d = Diagnostic::new(span, format!("the {what} nests too deeply"));
+            d = Diagnostic::new(span, format!("the {what} nests too deeply"))
+                .expected("a few levels of nested keys and lists");
         } else if msg.contains("repetition limit") {
-            d = Diagnostic::new(span, format!("the {what} expands aliases too often"))
+            let at = self.first_alias().unwrap_or(span);
+            d = Diagnostic::new(at, format!("the {what} expands aliases too often"))
+                .expected("at most a few thousand values after `*alias` references expand")
                 .help("write the values out instead of repeating `*alias` references");
         }
         if line_has_tab || msg.contains("tab") {
@@ -596,6 +632,32 @@ impl<'a> Yaml<'a> {
             d = d.help("quote text that contains `: `, e.g. title: \"Run 2: sweep\"");
         }
         d
+    }
+
+    /// The first `*alias` reference in the text, outside quotes and comments.
+    fn first_alias(&self) -> Option<Span> {
+        for l in &self.lines {
+            let t = line_text(self.src, l);
+            let mut quote: Option<char> = None;
+            let mut prev = ' ';
+            for (i, c) in t.char_indices() {
+                match quote {
+                    Some(q) if c == q => quote = None,
+                    Some(_) => {}
+                    None if c == '#' && prev.is_whitespace() => break,
+                    None if (c == '"' || c == '\'') && !prev.is_alphanumeric() => quote = Some(c),
+                    None if c == '*'
+                        && matches!(prev, ' ' | '\t' | '[' | '{' | ',' | ':' | '-')
+                        && t[i + 1..].starts_with(|n: char| n.is_alphanumeric() || n == '_') =>
+                    {
+                        return Some(self.char_span(l.start + i));
+                    }
+                    None => {}
+                }
+                prev = c;
+            }
+        }
+        None
     }
 
     fn root(&self) -> Scope {
@@ -1077,11 +1139,12 @@ impl Ex<'_, '_> {
         &mut self,
         path: &[&str],
         v: &Value,
-        known: &BTreeSet<String>,
+        known: Option<&BTreeSet<String>>,
     ) -> Option<Named> {
         let name = self.nonempty_text(path, v)?;
         let span = self.y.value_span(path);
-        if !known.contains(&name) {
+        // None: the front matter could not be read, so the name is not checked.
+        if let Some(known) = known.filter(|k| !k.contains(&name)) {
             self.err(undefined("instrument", &name, span, known, "instruments"));
         }
         Some(Named { name, span })
@@ -1147,22 +1210,24 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
             break;
         }
     }
-    let err = |o: usize, l: usize, m: &str, f: &str| {
-        QuantityError {
+    const FORMS: &str =
+        "`P% + N` (percent of reading plus N counts), `P%`, or a value with a unit such as `5 mV`";
+    let err = |o: usize, l: usize, m: &str, f: &str| QuantityError {
         offset: o,
         len: l,
         message: m.to_string(),
-        expected: "`P% + N` (percent of reading plus N counts), `P%`, or a value with a unit such as `5 mV`"
-            .to_string(),
+        expected: FORMS.to_string(),
         found: f.to_string(),
-    }
+    };
+    // A quantity error inside an accuracy still names the accuracy forms.
+    let inner = |o: usize, e: QuantityError| QuantityError {
+        offset: o + e.offset,
+        expected: FORMS.to_string(),
+        ..e
     };
     if let Some(pct) = t.find('%') {
         let head = &t[..pct + 1];
-        let q = parse_quantity(head).map_err(|e| QuantityError {
-            offset: off + e.offset,
-            ..e
-        })?;
+        let q = parse_quantity(head).map_err(|e| inner(off, e))?;
         if q.value < 0.0 {
             return Err(err(off, head.len(), "accuracy cannot be negative", head));
         }
@@ -1212,10 +1277,7 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
             counts,
         });
     }
-    let q = parse_quantity(t).map_err(|e| QuantityError {
-        offset: off + e.offset,
-        ..e
-    })?;
+    let q = parse_quantity(t).map_err(|e| inner(off, e))?;
     if q.unit == Unit::One {
         return Err(err(off, t.len(), "accuracy needs `%` or a unit", t));
     }
@@ -1231,6 +1293,15 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
 struct Defined {
     instruments: BTreeSet<String>,
     parts: BTreeSet<String>,
+    /// False when the front matter could not be read: names are then not checked, so one
+    /// YAML slip does not bring an "is not defined" for every block.
+    known: bool,
+}
+
+impl Defined {
+    fn checked(&self) -> Option<&BTreeSet<String>> {
+        self.known.then_some(&self.instruments)
+    }
 }
 
 fn names_under(v: Option<&Value>) -> BTreeSet<String> {
@@ -1273,6 +1344,7 @@ fn front_matter(y: &Yaml, d: &mut Vec<Diagnostic>) -> (FrontMatter, Defined) {
                 Defined {
                     instruments: BTreeSet::new(),
                     parts: BTreeSet::new(),
+                    known: false,
                 },
             );
         }
@@ -1287,6 +1359,7 @@ fn front_matter(y: &Yaml, d: &mut Vec<Diagnostic>) -> (FrontMatter, Defined) {
     let defined = Defined {
         instruments: names_under(get("instruments")),
         parts: names_under(get("parts")),
+        known: true,
     };
     let mut seen = BTreeSet::new();
     for (key, v) in &entries {
@@ -1657,7 +1730,7 @@ fn part(ex: &mut Ex, name: &str, v: &Value, instruments: &BTreeSet<String>) -> O
                             if k2 == "value" {
                                 let qq = ex.quantity(&p2, v2, &[want], None);
                                 q = ex.positive(&p2, qq, what);
-                            } else if let Some(n) = ex.instrument_name(&p2, v2, instruments) {
+                            } else if let Some(n) = ex.instrument_name(&p2, v2, Some(instruments)) {
                                 b = Some(n.name);
                             }
                         }
@@ -1680,11 +1753,21 @@ fn part(ex: &mut Ex, name: &str, v: &Value, instruments: &BTreeSet<String>) -> O
                     }
                 }
             }
-            "by" => by = ex.instrument_name(&path, val, instruments).map(|n| n.name),
-            "measured_by" => {
-                p.measured_by = ex.instrument_name(&path, val, instruments).map(|n| n.name)
+            "by" => {
+                by = ex
+                    .instrument_name(&path, val, Some(instruments))
+                    .map(|n| n.name)
             }
-            "dcr_by" => p.dcr_by = ex.instrument_name(&path, val, instruments).map(|n| n.name),
+            "measured_by" => {
+                p.measured_by = ex
+                    .instrument_name(&path, val, Some(instruments))
+                    .map(|n| n.name)
+            }
+            "dcr_by" => {
+                p.dcr_by = ex
+                    .instrument_name(&path, val, Some(instruments))
+                    .map(|n| n.name)
+            }
             "rating" => {
                 let units: &[Unit] = match kind {
                     PartKind::Resistor => &[Unit::W],
@@ -2001,7 +2084,12 @@ fn parse_heading(
             if utext.is_empty() {
                 format!("column heading `{text}` has no unit")
             } else {
-                format!("unknown unit `{utext}`")
+                let p = quantity::unit_problem(utext);
+                if p.contains("prefix") {
+                    format!("{p} in `{utext}`")
+                } else {
+                    p
+                }
             },
         )
         .expected("a unit such as Hz, V, mV, mA, deg or div")
@@ -2181,17 +2269,15 @@ fn parse_block(
                             };
                             for n in names {
                                 let sp = y.item_span(&path, &n);
-                                if !cx.defined.parts.contains(&n) {
+                                if cx.defined.known && !cx.defined.parts.contains(&n) {
                                     ex.err(undefined("part", &n, sp, &cx.defined.parts, "parts"));
                                 }
                                 parts.push(Named { name: n, span: sp });
                             }
                         }
-                        "meter" => meter = ex.instrument_name(&path, val, &cx.defined.instruments),
-                        "phase" => phase = ex.instrument_name(&path, val, &cx.defined.instruments),
-                        "counter" => {
-                            counter = ex.instrument_name(&path, val, &cx.defined.instruments)
-                        }
+                        "meter" => meter = ex.instrument_name(&path, val, cx.defined.checked()),
+                        "phase" => phase = ex.instrument_name(&path, val, cx.defined.checked()),
+                        "counter" => counter = ex.instrument_name(&path, val, cx.defined.checked()),
                         "note" => note = ex.text(&path, val),
                         "source" => {
                             let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));

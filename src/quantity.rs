@@ -359,6 +359,11 @@ pub fn unit_help(unit_text: &str) -> Option<String> {
     explain_unit(unit_text.trim()).1
 }
 
+/// Why `unit_text` is not a unit, e.g. "unknown SI prefix `x`" or "unknown unit `furlong`".
+pub fn unit_problem(unit_text: &str) -> String {
+    explain_unit(unit_text.trim()).0
+}
+
 /// Parses a cell of a column whose heading has unit `column_unit` with prefix factor
 /// `column_factor` (e.g. `VR/mV` is `Unit::V`, 1e-3). A bare number takes the column's unit;
 /// a number with its own unit must have the column's dimension.

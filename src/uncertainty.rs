@@ -235,12 +235,180 @@ pub struct Model<'a> {
 pub struct Propagated {
     /// Output estimates y = f(x).
     pub values: Vec<f64>,
-    /// Output covariance J Σ Jᵀ.
-    pub cov: Vec<Vec<f64>>,
     /// One `Measured` per output.
     pub results: Vec<Measured>,
-    /// Sensitivities J[output][input].
-    pub jacobian: Vec<Vec<f64>>,
+    /// Nonzero sensitivities per output, (input, ∂y_k/∂x_i) in input order.
+    jac: Vec<Vec<(usize, f64)>>,
+    /// Σ J_kᵀ per output, sparse as `jac`.
+    sigma_j: Vec<Vec<(usize, f64)>>,
+    /// Input standard uncertainties and correlation partners, for combinations of outputs.
+    u: Vec<f64>,
+    partners: Vec<Vec<(usize, f64)>>,
+    pooled: Vec<bool>,
+    roots: Vec<usize>,
+}
+
+fn sparse_dot(x: &[(usize, f64)], y: &[(usize, f64)]) -> f64 {
+    let (mut p, mut q, mut s) = (0, 0, 0.0);
+    while p < x.len() && q < y.len() {
+        match x[p].0.cmp(&y[q].0) {
+            std::cmp::Ordering::Less => p += 1,
+            std::cmp::Ordering::Greater => q += 1,
+            std::cmp::Ordering::Equal => {
+                s += x[p].1 * y[q].1;
+                p += 1;
+                q += 1;
+            }
+        }
+    }
+    s
+}
+
+/// Σ r for a sparse row r (sorted by input): diag(u²) plus r_ij u_i u_j off the diagonal.
+fn sigma_times(
+    row: &[(usize, f64)],
+    u: &[f64],
+    partners: &[Vec<(usize, f64)>],
+    scratch: &mut [f64],
+    touched: &mut [bool],
+) -> Vec<(usize, f64)> {
+    let mut idx = Vec::new();
+    let mut add = |i: usize, v: f64, idx: &mut Vec<usize>| {
+        if !touched[i] {
+            touched[i] = true;
+            idx.push(i);
+        }
+        scratch[i] += v;
+    };
+    for &(i, d) in row {
+        add(i, d * u[i] * u[i], &mut idx);
+        for &(j, r) in &partners[i] {
+            add(j, r * u[i] * u[j] * d, &mut idx);
+        }
+    }
+    idx.sort_unstable();
+    idx.iter()
+        .map(|&i| {
+            let v = scratch[i];
+            scratch[i] = 0.0;
+            touched[i] = false;
+            (i, v)
+        })
+        .collect()
+}
+
+impl Propagated {
+    /// Output covariance cov(y_a, y_b) = J_a Σ J_bᵀ (0 out of range).
+    pub fn cov(&self, a: usize, b: usize) -> f64 {
+        match (self.jac.get(b), self.sigma_j.get(a)) {
+            (Some(jb), Some(sa)) => sparse_dot(jb, sa),
+            _ => 0.0,
+        }
+    }
+
+    /// ∂y_k/∂x_i (0 when y_k does not depend on x_i).
+    pub fn sensitivity(&self, k: usize, i: usize) -> f64 {
+        self.jac.get(k).map_or(0.0, |r| {
+            r.binary_search_by_key(&i, |e| e.0).map_or(0.0, |p| r[p].1)
+        })
+    }
+
+    /// Nonzero sensitivities of output k, (input, ∂y_k/∂x_i) in input order.
+    pub fn sensitivities(&self, k: usize) -> &[(usize, f64)] {
+        self.jac.get(k).map_or(&[], |r| r.as_slice())
+    }
+
+    /// Inputs on which some of `outputs` depend, in input order.
+    pub fn inputs_of(&self, outputs: &[usize]) -> Vec<usize> {
+        let mut v: Vec<usize> = outputs
+            .iter()
+            .flat_map(|&k| self.sensitivities(k).iter().map(|e| e.0))
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+
+    /// The result z = Σ w_k y_k for weights `(output k, w_k)` (a mean over outputs, say), with
+    /// its budget and ν_eff as [`propagate`] would give it: its sensitivities are Σ w_k J_k
+    /// exactly (chain rule), so the model need not be evaluated again. `model` must be the one
+    /// this came from.
+    pub fn linear(
+        &self,
+        model: &Model,
+        w: &[(usize, f64)],
+        coverage: f64,
+    ) -> Result<Measured, String> {
+        let n = self.u.len();
+        if model.inputs.len() != n {
+            return Err("the model is not the one propagated".into());
+        }
+        let mut dense = vec![0.0; n];
+        let mut value = 0.0;
+        for &(k, c) in w {
+            value += c * self.values.get(k).copied().unwrap_or(f64::NAN);
+            for &(i, d) in self.sensitivities(k) {
+                dense[i] += c * d;
+            }
+        }
+        let row: Vec<(usize, f64)> = dense
+            .iter()
+            .enumerate()
+            .filter(|(_, v)| **v != 0.0)
+            .map(|(i, v)| (i, *v))
+            .collect();
+        let mut scratch = vec![0.0; n];
+        let mut touched = vec![false; n];
+        let sig = sigma_times(&row, &self.u, &self.partners, &mut scratch, &mut touched);
+        let var = sparse_dot(&row, &sig);
+        let cl = Clusters {
+            pooled: &self.pooled,
+            roots: &self.roots,
+            partners: &self.partners,
+        };
+        if !value.is_finite() {
+            return Err("the combined output is not finite".into());
+        }
+        measure(0, value, &row, var, model.inputs, &cl, coverage)
+    }
+
+    /// Covariance matrix of linear combinations z_l = Σ_k w[l][k] y_k (GUM eq. 13 applied to
+    /// z = W J x): W J Σ Jᵀ Wᵀ, computed without forming the output covariance.
+    pub fn combined_cov(&self, w: &[Vec<f64>]) -> Vec<Vec<f64>> {
+        let n = self.u.len();
+        let mut dense = vec![0.0; n];
+        let rows: Vec<Vec<(usize, f64)>> = w
+            .iter()
+            .map(|wl| {
+                for (k, &c) in wl.iter().enumerate() {
+                    if c != 0.0 {
+                        for &(i, d) in self.sensitivities(k) {
+                            dense[i] += c * d;
+                        }
+                    }
+                }
+                dense
+                    .iter_mut()
+                    .enumerate()
+                    .filter(|(_, v)| **v != 0.0)
+                    .map(|(i, v)| (i, std::mem::take(v)))
+                    .collect()
+            })
+            .collect();
+        let mut scratch = vec![0.0; n];
+        let mut touched = vec![false; n];
+        let sig: Vec<Vec<(usize, f64)>> = rows
+            .iter()
+            .map(|r| sigma_times(r, &self.u, &self.partners, &mut scratch, &mut touched))
+            .collect();
+        (0..rows.len())
+            .map(|a| {
+                (0..rows.len())
+                    .map(|b| sparse_dot(&rows[b], &sig[a]))
+                    .collect()
+            })
+            .collect()
+    }
 }
 
 /// Relative step of the central derivative: h_i = REL_STEP · max(|x_i|, u_i) (or REL_STEP
@@ -260,6 +428,59 @@ pub const REL_STEP: f64 = 1e-6;
 pub fn propagate(
     model: &Model,
     f: &dyn Fn(&[f64]) -> Vec<f64>,
+    coverage: f64,
+) -> Result<Propagated, String> {
+    propagate_sparse(model, f, None, coverage)
+}
+
+/// Inputs in groups ("colours") such that no two inputs of a group enter one output, given
+/// `pattern[k]`, the inputs output k may depend on (greedy colouring of the column
+/// intersection graph, the Curtis–Powell–Reid idea). One pair of model evaluations then
+/// gives the derivatives of every input of a group.
+fn colour_inputs(n: usize, pattern: &[Vec<usize>]) -> Vec<Vec<usize>> {
+    let mut touches: Vec<Vec<usize>> = vec![Vec::new(); n];
+    for (k, row) in pattern.iter().enumerate() {
+        for &i in row {
+            if i < n && touches[i].last() != Some(&k) {
+                touches[i].push(k);
+            }
+        }
+    }
+    let mut colour: Vec<Option<usize>> = vec![None; n];
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    let mut stamp: Vec<usize> = Vec::new();
+    for i in 0..n {
+        if touches[i].is_empty() {
+            continue;
+        }
+        for &k in &touches[i] {
+            for &j in &pattern[k] {
+                if let Some(c) = colour.get(j).copied().flatten() {
+                    stamp[c] = i + 1;
+                }
+            }
+        }
+        let c = (0..groups.len())
+            .find(|&c| stamp[c] != i + 1)
+            .unwrap_or_else(|| {
+                groups.push(Vec::new());
+                stamp.push(0);
+                groups.len() - 1
+            });
+        colour[i] = Some(c);
+        groups[c].push(i);
+    }
+    groups
+}
+
+/// [`propagate`] for a model whose output k depends only on the inputs `pattern[k]` (a
+/// superset is fine; a missing input gives wrong sensitivities). Inputs that share no output
+/// are perturbed together, so a block of N independent points costs a few model evaluations
+/// instead of one pair per input. `None` treats every output as depending on every input.
+pub fn propagate_sparse(
+    model: &Model,
+    f: &dyn Fn(&[f64]) -> Vec<f64>,
+    pattern: Option<&[Vec<usize>]>,
     coverage: f64,
 ) -> Result<Propagated, String> {
     let inputs = model.inputs;
@@ -285,12 +506,17 @@ pub fn propagate(
             ));
         }
         let (a, b) = if i < j { (i, j) } else { (j, i) };
-        if pairs.iter().any(|p| p.0 == a && p.1 == b) {
-            return Err(format!(
-                "correlation between inputs {a} and {b} given twice"
-            ));
-        }
         pairs.push((a, b, r.clamp(-1.0, 1.0)));
+    }
+    pairs.sort_by(|p, q| (p.0, p.1).cmp(&(q.0, q.1)));
+    if let Some(w) = pairs
+        .windows(2)
+        .find(|w| w[0].0 == w[1].0 && w[0].1 == w[1].1)
+    {
+        return Err(format!(
+            "correlation between inputs {} and {} given twice",
+            w[0].0, w[0].1
+        ));
     }
 
     let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
@@ -301,27 +527,61 @@ pub fn propagate(
             "output {k} of the model is not finite at the estimates"
         ));
     }
-
-    // jac[k][i] = ∂y_k/∂x_i
-    let mut jac = vec![vec![0.0; n]; m];
-    let mut x = x0.clone();
-    for i in 0..n {
-        let xi = x0[i];
-        let scale = xi.abs().max(inputs[i].u);
-        let h = if scale > 0.0 {
+    if let Some(p) = pattern {
+        if p.len() != m {
+            return Err(format!(
+                "the dependency pattern names {} outputs but the model gives {m}",
+                p.len()
+            ));
+        }
+    }
+    // Which input of colour group `c` output k depends on, through `owner[i] == c`.
+    let groups: Vec<Vec<usize>> = match pattern {
+        Some(p) => colour_inputs(n, p),
+        None => (0..n).map(|i| vec![i]).collect(),
+    };
+    let mut owner = vec![usize::MAX; n];
+    for (c, g) in groups.iter().enumerate() {
+        for &i in g {
+            owner[i] = c;
+        }
+    }
+    // For each colour, output k's input in it (at most one, by construction).
+    let dep_in = |k: usize, c: usize| -> Option<usize> {
+        match pattern {
+            Some(p) => p[k].iter().copied().find(|&i| i < n && owner[i] == c),
+            None => Some(groups[c][0]),
+        }
+    };
+    let step = |i: usize| {
+        let scale = x0[i].abs().max(inputs[i].u);
+        if scale > 0.0 {
             REL_STEP * scale
         } else {
             REL_STEP
-        };
-        x[i] = xi + h;
+        }
+    };
+
+    let mut jac: Vec<Vec<(usize, f64)>> = vec![Vec::new(); m];
+    let mut x = x0.clone();
+    for (c, g) in groups.iter().enumerate() {
+        for &i in g {
+            x[i] = x0[i] + step(i);
+        }
         let yp = f(&x);
-        x[i] = xi - h;
+        for &i in g {
+            x[i] = x0[i] - step(i);
+        }
         let ym = f(&x);
-        x[i] = xi;
+        for &i in g {
+            x[i] = x0[i];
+        }
         if yp.len() != m || ym.len() != m {
             return Err("the model returned a varying number of outputs".into());
         }
         for k in 0..m {
+            let Some(i) = dep_in(k, c) else { continue };
+            let h = step(i);
             let (p, q) = (yp[k], ym[k]);
             let d = if p.is_finite() && q.is_finite() {
                 (p - q) / (2.0 * h)
@@ -341,80 +601,31 @@ pub fn propagate(
                     inputs[i].name
                 ));
             }
-            jac[k][i] = d;
+            if d != 0.0 {
+                jac[k].push((i, d));
+            }
         }
     }
+    for row in &mut jac {
+        row.sort_unstable_by_key(|e| e.0);
+    }
 
-    // Covariance J Σ Jᵀ with Σ = diag(u²) + off-diagonal r u u, computed sparsely: most
-    // outputs depend on a handful of inputs, so cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
-    let nz: Vec<Vec<(usize, f64)>> = jac
-        .iter()
-        .map(|row| {
-            row.iter()
-                .enumerate()
-                .filter(|(_, d)| **d != 0.0)
-                .map(|(i, d)| (i, *d))
-                .collect()
-        })
-        .collect();
+    // Σ J_kᵀ per output, sparse: most outputs depend on a handful of inputs, so
+    // cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
+    let nz = &jac;
     let mut partners: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
     for &(i, j, r) in &pairs {
         partners[i].push((j, r));
         partners[j].push((i, r));
     }
+    let u_in: Vec<f64> = inputs.iter().map(|i| i.u).collect();
     let mut scratch = vec![0.0; n];
     let mut touched = vec![false; n];
     let sigma_j: Vec<Vec<(usize, f64)>> = nz
         .iter()
-        .map(|row| {
-            let mut idx = Vec::new();
-            let mut add = |i: usize, v: f64, idx: &mut Vec<usize>| {
-                if !touched[i] {
-                    touched[i] = true;
-                    idx.push(i);
-                }
-                scratch[i] += v;
-            };
-            for &(i, d) in row {
-                add(i, d * inputs[i].u * inputs[i].u, &mut idx);
-                for &(j, r) in &partners[i] {
-                    add(j, r * inputs[i].u * inputs[j].u * d, &mut idx);
-                }
-            }
-            idx.sort_unstable();
-            idx.iter()
-                .map(|&i| {
-                    let v = scratch[i];
-                    scratch[i] = 0.0;
-                    touched[i] = false;
-                    (i, v)
-                })
-                .collect()
-        })
+        .map(|row| sigma_times(row, &u_in, &partners, &mut scratch, &mut touched))
         .collect();
-    let sparse_dot = |x: &[(usize, f64)], y: &[(usize, f64)]| {
-        let (mut p, mut q, mut s) = (0, 0, 0.0);
-        while p < x.len() && q < y.len() {
-            match x[p].0.cmp(&y[q].0) {
-                std::cmp::Ordering::Less => p += 1,
-                std::cmp::Ordering::Greater => q += 1,
-                std::cmp::Ordering::Equal => {
-                    s += x[p].1 * y[q].1;
-                    p += 1;
-                    q += 1;
-                }
-            }
-        }
-        s
-    };
-    let mut cov = vec![vec![0.0; m]; m];
-    for a in 0..m {
-        for b in a..m {
-            let s = sparse_dot(&nz[b], &sigma_j[a]);
-            cov[a][b] = s;
-            cov[b][a] = s;
-        }
-    }
+    let var_of: Vec<f64> = (0..m).map(|k| sparse_dot(&nz[k], &sigma_j[k])).collect();
 
     // Clusters of inputs linked by nonzero correlations (union–find); a cluster is pooled in
     // Welch–Satterthwaite when all its members share one finite dof.
@@ -452,89 +663,122 @@ pub fn propagate(
 
     let mut results = Vec::with_capacity(m);
     for k in 0..m {
-        let diag: f64 = (0..n).map(|i| (jac[k][i] * inputs[i].u).powi(2)).sum();
-        let mut var = cov[k][k];
-        if var < 0.0 {
-            if var < -1e-9 * diag {
-                return Err(format!(
-                    "output {k} has a negative variance: the input correlations are inconsistent"
-                ));
-            }
-            var = 0.0;
-            cov[k][k] = 0.0;
-        }
-        let u = var.sqrt();
-        let mut budget = Vec::new();
-        let mut contribs = Vec::new();
-        for (i, inp) in inputs.iter().enumerate() {
-            let c = jac[k][i];
-            // Inputs that carry no uncertainty (a single reading's estimate, whose
-            // uncertainty sits in its own offset inputs) or do not enter this output are
-            // left out of the budget: they contribute nothing.
-            if c == 0.0 || inp.u == 0.0 {
-                continue;
-            }
-            let contribution = c.abs() * inp.u;
-            budget.push(BudgetLine {
-                input: inp.name.clone(),
-                estimate: inp.value,
-                u: inp.u,
-                kind: inp.kind,
-                dist: inp.dist,
-                sensitivity: c,
-                contribution,
-                dof: inp.dof,
-            });
-            if !pooled[i] {
-                contribs.push((contribution, inp.dof));
-            }
-        }
-        // Each pooled cluster enters Welch–Satterthwaite as one contribution.
-        let mut pooled_var: BTreeMap<usize, f64> = BTreeMap::new();
-        for &(i, d) in &nz[k] {
-            if !pooled[i] {
-                continue;
-            }
-            *pooled_var.entry(roots[i]).or_insert(0.0) += (d * inputs[i].u).powi(2);
-            for &(j, rho) in &partners[i] {
-                if j > i && roots[j] == roots[i] {
-                    *pooled_var.entry(roots[i]).or_insert(0.0) +=
-                        2.0 * rho * d * jac[k][j] * inputs[i].u * inputs[j].u;
-                }
-            }
-        }
-        for (r, v) in pooled_var {
-            contribs.push((v.max(0.0).sqrt(), inputs[r].dof));
-        }
-        let dof = welch_satterthwaite(&contribs);
-        let kf = coverage_factor(coverage, dof);
-        let expanded = kf * u;
-        if !u.is_finite() || !kf.is_finite() || !expanded.is_finite() {
-            return Err(format!("output {k} has a non-finite uncertainty"));
-        }
-        results.push(Measured {
-            value: y0[k],
-            u,
-            dof,
-            k: kf,
-            expanded,
-            budget,
-            mc: None,
-        });
+        let cl = Clusters {
+            pooled: &pooled,
+            roots: &roots,
+            partners: &partners,
+        };
+        results.push(measure(k, y0[k], &nz[k], var_of[k], inputs, &cl, coverage)?);
     }
-
+    drop(var_of);
     Ok(Propagated {
         values: y0,
-        cov,
         results,
-        jacobian: jac,
+        jac,
+        sigma_j,
+        u: u_in,
+        partners,
+        pooled,
+        roots,
+    })
+}
+
+/// How inputs are pooled for Welch–Satterthwaite (see [`propagate`]).
+struct Clusters<'a> {
+    pooled: &'a [bool],
+    roots: &'a [usize],
+    partners: &'a [Vec<(usize, f64)>],
+}
+
+/// The `Measured` of one output from its sparse sensitivity row and variance.
+fn measure(
+    k: usize,
+    value: f64,
+    row: &[(usize, f64)],
+    var: f64,
+    inputs: &[Input],
+    cl: &Clusters,
+    coverage: f64,
+) -> Result<Measured, String> {
+    let sens = |j: usize| {
+        row.binary_search_by_key(&j, |e| e.0)
+            .map_or(0.0, |p| row[p].1)
+    };
+    let diag: f64 = row.iter().map(|&(i, d)| (d * inputs[i].u).powi(2)).sum();
+    let mut var = var;
+    if var < 0.0 {
+        if var < -1e-9 * diag {
+            return Err(format!(
+                "output {k} has a negative variance: the input correlations are inconsistent"
+            ));
+        }
+        var = 0.0;
+    }
+    let u = var.sqrt();
+    let mut budget = Vec::new();
+    let mut contribs = Vec::new();
+    for &(i, c) in row {
+        let inp = &inputs[i];
+        // Inputs that carry no uncertainty (a single reading's estimate, whose uncertainty
+        // sits in its own offset inputs) or do not enter this output are left out of the
+        // budget: they contribute nothing.
+        if c == 0.0 || inp.u == 0.0 {
+            continue;
+        }
+        let contribution = c.abs() * inp.u;
+        budget.push(BudgetLine {
+            input: inp.name.clone(),
+            estimate: inp.value,
+            u: inp.u,
+            kind: inp.kind,
+            dist: inp.dist,
+            sensitivity: c,
+            contribution,
+            dof: inp.dof,
+        });
+        if !cl.pooled[i] {
+            contribs.push((contribution, inp.dof));
+        }
+    }
+    // Each pooled cluster enters Welch–Satterthwaite as one contribution.
+    let mut pooled_var: BTreeMap<usize, f64> = BTreeMap::new();
+    for &(i, d) in row {
+        if !cl.pooled[i] {
+            continue;
+        }
+        *pooled_var.entry(cl.roots[i]).or_insert(0.0) += (d * inputs[i].u).powi(2);
+        for &(j, rho) in &cl.partners[i] {
+            if j > i && cl.roots[j] == cl.roots[i] {
+                *pooled_var.entry(cl.roots[i]).or_insert(0.0) +=
+                    2.0 * rho * d * sens(j) * inputs[i].u * inputs[j].u;
+            }
+        }
+    }
+    for (r, v) in pooled_var {
+        contribs.push((v.max(0.0).sqrt(), inputs[r].dof));
+    }
+    let dof = welch_satterthwaite(&contribs);
+    let kf = coverage_factor(coverage, dof);
+    let expanded = kf * u;
+    if !u.is_finite() || !kf.is_finite() || !expanded.is_finite() {
+        return Err(format!("output {k} has a non-finite uncertainty"));
+    }
+    Ok(Measured {
+        value,
+        u,
+        dof,
+        k: kf,
+        expanded,
+        budget,
+        mc: None,
     })
 }
 
 /// Correlation coefficient r(y_i, y_j) = cov_ij / (u_i u_j) (GUM 5.2.2 / H.2); 0 when an index
 /// is out of range or a variance is zero.
 pub fn correlation(p: &Propagated, i: usize, j: usize) -> f64 {
-    let get = |a: usize, b: usize| p.cov.get(a).and_then(|r| r.get(b)).copied();
+    let m = p.values.len();
+    let get = |a: usize, b: usize| (a < m && b < m).then(|| p.cov(a, b));
     match (get(i, j), get(i, i), get(j, j)) {
         (Some(c), Some(a), Some(b)) if a > 0.0 && b > 0.0 => {
             let r = c / (a.sqrt() * b.sqrt());
@@ -688,8 +932,13 @@ mod tests {
             -a * a * b.sin() / (c * c),
         ];
         for i in 0..3 {
-            let rel = (p.jacobian[0][i] - exact[i]).abs() / exact[i].abs();
-            assert!(rel < 1e-8, "∂y/∂x{i}: {} vs {}", p.jacobian[0][i], exact[i]);
+            let rel = (p.sensitivity(0, i) - exact[i]).abs() / exact[i].abs();
+            assert!(
+                rel < 1e-8,
+                "∂y/∂x{i}: {} vs {}",
+                p.sensitivity(0, i),
+                exact[i]
+            );
         }
         let u = [0.01, 0.002, 1e-6];
         let var = (exact[0] * u[0]).powi(2)
@@ -699,7 +948,7 @@ mod tests {
         assert!((p.results[0].u - var.sqrt()).abs() / var.sqrt() < 1e-8);
         // Second output: covariance with the first, cov = Σ J0 Σ J1.
         let cov01 = exact[0] * u[0] * u[0] + exact[1] * u[1] * u[1] + 0.4 * exact[2] * u[0] * u[2];
-        assert!((p.cov[0][1] - cov01).abs() / cov01.abs() < 1e-7);
+        assert!((p.cov(0, 1) - cov01).abs() / cov01.abs() < 1e-7);
         assert!((p.results[1].u - (u[0] * u[0] + u[1] * u[1]).sqrt()).abs() < 1e-12);
         assert_eq!(p.results[1].dof, None);
         // Budget of output 1 names only a and b (c has zero sensitivity).
@@ -731,5 +980,99 @@ mod tests {
             0.95
         )
         .is_err());
+    }
+
+    // The coloured (sparse) Jacobian must agree with the one-input-at-a-time central
+    // difference: it is the same GUM eq. 13, only evaluated with fewer model calls.
+    #[test]
+    fn sparse_pattern_matches_the_dense_jacobian() {
+        let n_pts = 40;
+        // Inputs: shared gain g (0) and resistance r (1), then per point a reading and offset.
+        let mut inputs = vec![
+            Input::type_b("g", 1.0, 2e-3, Dist::Rectangular),
+            Input::type_b("r", 100.0, 0.05, Dist::Normal),
+        ];
+        for k in 0..n_pts {
+            inputs.push(Input::type_a(
+                format!("a{k}"),
+                1.0 + 0.01 * k as f64,
+                1e-3,
+                9.0,
+            ));
+            inputs.push(Input::type_b(format!("o{k}"), 0.0, 5e-4, Dist::Rectangular));
+        }
+        // Correlated Type A readings of neighbouring points.
+        let corr: Vec<(usize, usize, f64)> = (0..n_pts - 1)
+            .map(|k| (2 + 2 * k, 4 + 2 * k, 0.3))
+            .collect();
+        let f = |x: &[f64]| -> Vec<f64> {
+            (0..n_pts)
+                .map(|k| (x[2 + 2 * k] + x[3 + 2 * k]) * x[0] / x[1])
+                .collect()
+        };
+        let pattern: Vec<Vec<usize>> = (0..n_pts)
+            .map(|k| vec![0, 1, 2 + 2 * k, 3 + 2 * k])
+            .collect();
+        let model = Model {
+            inputs: &inputs,
+            corr: &corr,
+        };
+        let dense = propagate(&model, &f, 0.95).unwrap();
+        let sparse = propagate_sparse(&model, &f, Some(&pattern), 0.95).unwrap();
+        assert_eq!(dense.results, sparse.results);
+        for a in 0..n_pts {
+            assert_eq!(dense.sensitivities(a), sparse.sensitivities(a));
+            for b in 0..n_pts {
+                assert_eq!(dense.cov(a, b), sparse.cov(a, b));
+            }
+        }
+        // Two shared inputs get a colour each, the per-point pairs fill two more.
+        assert_eq!(colour_inputs(inputs.len(), &pattern).len(), 4);
+        // The mean of the outputs: W J Σ Jᵀ Wᵀ equals the sum of the output covariances / n².
+        let w = vec![vec![1.0 / n_pts as f64; n_pts]];
+        let mut by_hand = 0.0;
+        for a in 0..n_pts {
+            for b in 0..n_pts {
+                by_hand += dense.cov(a, b);
+            }
+        }
+        by_hand /= (n_pts * n_pts) as f64;
+        let c = sparse.combined_cov(&w);
+        assert!(
+            (c[0][0] - by_hand).abs() <= 1e-12 * by_hand,
+            "{} vs {by_hand}",
+            c[0][0]
+        );
+        // The same mean as a result of its own: `linear` against a dense propagation of the
+        // mean model (value, u, ν_eff and budget).
+        let mean = |x: &[f64]| vec![f(x).iter().sum::<f64>() / n_pts as f64];
+        let direct = propagate(&model, &mean, 0.95).unwrap().results.remove(0);
+        let wk: Vec<(usize, f64)> = (0..n_pts).map(|k| (k, 1.0 / n_pts as f64)).collect();
+        let lin = sparse.linear(&model, &wk, 0.95).unwrap();
+        assert!((lin.value - direct.value).abs() <= 1e-15 * direct.value.abs());
+        assert!(
+            (lin.u - direct.u).abs() <= 1e-8 * direct.u,
+            "{} vs {}",
+            lin.u,
+            direct.u
+        );
+        let (dl, dd) = (lin.dof.unwrap(), direct.dof.unwrap());
+        assert!((dl - dd).abs() <= 1e-6 * dd, "{dl} vs {dd}");
+        assert_eq!(lin.budget.len(), direct.budget.len());
+        for (a, b) in lin.budget.iter().zip(&direct.budget) {
+            assert_eq!(a.input, b.input);
+            // The direct central difference of the mean carries round-off ε·ȳ/h, about 2e-5
+            // relative for the offsets here (h = 1e-6·u, small sensitivity); `linear` sums
+            // the per-point derivatives, which are the more accurate.
+            assert!(
+                (a.sensitivity - b.sensitivity).abs() <= 1e-4 * b.sensitivity.abs(),
+                "{}: {} vs {}",
+                a.input,
+                a.sensitivity,
+                b.sensitivity
+            );
+        }
+        // A pattern of the wrong length is refused.
+        assert!(propagate_sparse(&model, &f, Some(&pattern[1..]), 0.95).is_err());
     }
 }

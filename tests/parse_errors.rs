@@ -377,7 +377,7 @@ fn heading_without_unit() {
 #[test]
 fn unknown_prefix_in_heading() {
     let src = nb("id: b1\nnetwork: RC\n---\nf/KHz VR/V VC/V\n1 1 1\n");
-    let d = expect_at(&src, "unknown unit `KHz`", 18, 3);
+    let d = expect_at(&src, "unknown SI prefix `K` in `KHz`", 18, 3);
     assert_eq!(d.help.as_deref(), Some("kilo is a lower-case `k`"));
 }
 
@@ -859,4 +859,28 @@ fn format_md_example_block() {
     assert_eq!(b.rows.len(), 1);
     assert!((b.rows[0].cells[2].value - 0.408).abs() < 1e-15);
     assert_eq!(b.meter.as_ref().map(|m| m.name.as_str()), Some("dmm"));
+}
+
+// A front matter that cannot be read gives its own error only: the blocks' part and instrument
+// names are not then reported as undefined (one slip, one message).
+#[test]
+fn front_matter_failure_brings_no_follow_on_errors() {
+    let broken = FRONT.replace("title: Synthetic checks", "title: [Synthetic checks");
+    let src = format!("{broken}\n```readings\n{RC_OK}```\n");
+    let ds = errors(&src);
+    let text = diag::render("t.md", &src, &ds);
+    assert_eq!(ds.len(), 1, "one diagnostic expected, got:\n{text}");
+    assert!(ds[0].message.contains("never closed"), "{text}");
+    assert_eq!(line_col(&src, ds[0].span.start), (3, 8), "{text}");
+}
+
+// The same slip in a block header points at the `[` that is never closed.
+#[test]
+fn unclosed_flow_in_block_header_points_at_the_bracket() {
+    let src = nb("id: b1\nnetwork: RC\nparts: [R1, C1\nmeter: dmm\n---\nf/Hz VR/V VC/V\n100 1 1\n");
+    let d = expect_at(&src, "never closed", 17, 8);
+    assert_eq!(
+        d.expected.as_deref(),
+        Some("`]` before the end of the line")
+    );
 }

@@ -667,6 +667,29 @@ impl BlockInputs {
             .unwrap_or(f64::NAN)
     }
 
+    /// Every input that a quantity of group `g` (or the series resistor) reads, sorted: the
+    /// dependency pattern of an output computed from that group alone.
+    pub fn group_inputs(&self, g: usize) -> Vec<usize> {
+        let mut v: Vec<usize> = Vec::new();
+        let mut add = |val: &Value| {
+            v.extend(val.mean);
+            v.extend(val.gain);
+            v.extend(val.offsets.iter().copied());
+        };
+        for col in self.values.values() {
+            if let Some(val) = col.get(g) {
+                add(val);
+            }
+        }
+        if let Some(Some(val)) = self.freq.get(g) {
+            add(val);
+        }
+        v.extend(self.resistor.as_ref().map(|r| r.0));
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+
     /// Values at the estimates.
     pub fn estimates(&self) -> Vec<f64> {
         self.inputs.iter().map(|i| i.value).collect()

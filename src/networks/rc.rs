@@ -11,7 +11,7 @@ use super::{BlockResult, Context, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::propagate;
+use crate::uncertainty::propagate_sparse;
 use std::f64::consts::PI;
 
 pub const SPEC: Spec<'static> = Spec {
@@ -86,20 +86,21 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
     }
 
-    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)], then block C.
+    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
+    // (mean over groups) is a second model of one output.
     let per = 4 + usize::from(has_phase) + usize::from(has_vs);
     let ng = bi.groups.len();
+    let c_of = |x: &[f64], g: usize| -> (f64, f64, f64, f64) {
+        let vr = bi.voltage("VR", g, x);
+        let vc = bi.voltage("VC", g, x);
+        let w = 2.0 * PI * bi.f(g, x);
+        let i = vr / bi.r(x);
+        (vr, vc, i, i / (w * vc))
+    };
     let model = |x: &[f64]| -> Vec<f64> {
-        let mut y = Vec::with_capacity(ng * per + 1);
-        let r = bi.r(x);
-        let mut sum_c = 0.0;
+        let mut y = Vec::with_capacity(ng * per);
         for g in 0..ng {
-            let vr = bi.voltage("VR", g, x);
-            let vc = bi.voltage("VC", g, x);
-            let w = 2.0 * PI * bi.f(g, x);
-            let i = vr / r;
-            let c = i / (w * vc);
-            sum_c += c;
+            let (vr, vc, i, c) = c_of(x, g);
             y.push(i);
             y.push(vc / i);
             y.push(c);
@@ -111,15 +112,22 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 y.push(bi.voltage("Vs", g, x) - vr.hypot(vc));
             }
         }
-        y.push(sum_c / ng as f64);
         y
     };
-    let p = propagate(&bi.model(), &model, ctx.coverage).map_err(|e| {
+    // Each group's outputs read that group's inputs and the shared ones only.
+    let pattern: Vec<Vec<usize>> = (0..ng)
+        .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), per))
+        .collect();
+    let fail = |e: String| {
         vec![Diagnostic::new(
             block.span,
             format!("block {} could not be reduced: {e}", block.id),
         )]
-    })?;
+    };
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(fail)?;
+    // Block C = mean of the groups' C, a linear combination of outputs.
+    let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
+    let block_c = p.linear(&bi.model(), &w, ctx.coverage).map_err(fail)?;
 
     let x0 = bi.estimates();
     let mut rows = Vec::new();
@@ -196,14 +204,12 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         plot.series.push(("phase_measured".into(), s_pm));
     }
     let mut results = Vec::new();
-    if let Some(m) = p.results.last() {
-        results.push(NamedResult {
-            name: "C".into(),
-            f: None,
-            unit: Unit::F,
-            m: m.clone(),
-        });
-    }
+    results.push(NamedResult {
+        name: "C".into(),
+        f: None,
+        unit: Unit::F,
+        m: block_c,
+    });
     Ok(BlockResult {
         id: block.id.clone(),
         network: Network::RC,

@@ -15,7 +15,7 @@
 use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Spec};
 use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
-use crate::montecarlo::{attach_validation, monte_carlo_on, relevant_inputs};
+use crate::montecarlo::{attach_validation, monte_carlo_on};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{correlation, dist_of, propagate, type_b, Dist, Input, Measured, Model};
@@ -502,7 +502,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .filter(|(_, o)| matches!(o, Out::Row(gg, _) if *gg == g))
             .map(|(k, _)| k)
             .collect();
-        let used = relevant_inputs(&p.jacobian, &outs);
+        let used = p.inputs_of(&outs);
         let mc = monte_carlo_on(
             &inputs,
             &bi.corr,
@@ -655,7 +655,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
         let cov: Vec<Vec<f64>> = idx
             .iter()
-            .map(|&i| idx.iter().map(|&j| p.cov[i][j]).collect())
+            .map(|&i| idx.iter().map(|&j| p.cov(i, j)).collect())
             .collect();
         if let Some(c) = consistency(&xs, &cov) {
             let basis = if c.generalised {

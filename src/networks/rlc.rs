@@ -21,7 +21,9 @@ use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::{correlation, propagate, Dist, Input, Model};
+use crate::uncertainty::{
+    correlation, propagate, propagate_sparse, Dist, Input, Model, Propagated,
+};
 use levenberg_marquardt::{LeastSquaresProblem, LevenbergMarquardt};
 use nalgebra::{Dyn, Matrix3, OMatrix, OVector, Owned, Vector3, U3};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
@@ -202,23 +204,20 @@ impl ResonanceFit {
             f64::NAN
         }
     }
-    /// cov θ = A V Aᵀ for a data covariance V (n × n).
-    pub fn cov_with(&self, v: &[Vec<f64>]) -> [[f64; 3]; 3] {
-        let mut c = [[0.0; 3]; 3];
-        for (i, gi) in self.gain.iter().enumerate() {
-            for (j, gj) in self.gain.iter().enumerate() {
-                let vij = v.get(i).and_then(|r| r.get(j)).copied().unwrap_or(0.0);
-                if vij == 0.0 {
-                    continue;
-                }
-                for a in 0..3 {
-                    for b in 0..3 {
-                        c[a][b] += gi[a] * vij * gj[b];
-                    }
-                }
+    /// cov θ = A V Aᵀ, V the covariance of the fitted data as propagated in `p` (output k is
+    /// point k), without forming V.
+    pub fn cov_from(&self, p: &Propagated) -> [[f64; 3]; 3] {
+        let w: Vec<Vec<f64>> = (0..3)
+            .map(|a| self.gain.iter().map(|g| g[a]).collect())
+            .collect();
+        let c = p.combined_cov(&w);
+        let mut out = [[0.0; 3]; 3];
+        for a in 0..3 {
+            for b in 0..3 {
+                out[a][b] = c[a][b];
             }
         }
-        c
+        out
     }
 }
 
@@ -478,7 +477,20 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     };
     let ys_model = |x: &[f64]| -> Vec<f64> { order.iter().map(|&g| y_of(x, g)).collect() };
     let model = bi.model();
-    let py = propagate(&model, &ys_model, ctx.coverage).map_err(fail)?;
+    // Each point reads its own group's inputs and the shared ones (resistor, gains).
+    let own: Vec<Vec<usize>> = order.iter().map(|&g| bi.group_inputs(g)).collect();
+    let union_of = |pts: &[usize]| -> Vec<usize> {
+        let mut v: Vec<usize> = pts
+            .iter()
+            .filter_map(|&k| own.get(k))
+            .flatten()
+            .copied()
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    };
+    let py = propagate_sparse(&model, &ys_model, Some(&own), ctx.coverage).map_err(fail)?;
     let ys = py.values.clone();
     let u_tot: Vec<f64> = py.results.iter().map(|m| m.u).collect();
 
@@ -490,7 +502,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .map(|&g| bi.voltage("VR", g, x) / bi.r(x))
             .collect()
     };
-    let pi = propagate(&model, &i_model, ctx.coverage).map_err(fail)?;
+    let pi = propagate_sparse(&model, &i_model, Some(&own), ctx.coverage).map_err(fail)?;
     for (k, m) in pi.results.iter().enumerate() {
         rows.push(NamedResult {
             name: "I".into(),
@@ -503,10 +515,17 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     // Weights from each point's own inputs (those no other point depends on).
     let n_in = bi.inputs.len();
     let mut u_w = vec![0.0; ng];
-    for i in 0..n_in {
-        let users: Vec<usize> = (0..ng).filter(|&k| py.jacobian[k][i] != 0.0).collect();
-        if let [k] = users[..] {
-            u_w[k] += (py.jacobian[k][i] * bi.inputs[i].u).powi(2);
+    let mut users = vec![0usize; n_in];
+    for k in 0..ng {
+        for &(i, _) in py.sensitivities(k) {
+            users[i] += 1;
+        }
+    }
+    for k in 0..ng {
+        for &(i, c) in py.sensitivities(k) {
+            if users[i] == 1 {
+                u_w[k] += (c * bi.inputs[i].u).powi(2);
+            }
         }
     }
     let mut weights_note = "each point's own (unshared) uncertainty";
@@ -557,7 +576,13 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .chain(ro.low.map(|_| "f_low"))
             .chain(ro.high.map(|_| "f_high"))
             .collect();
-        match propagate(&model, &ro_model, ctx.coverage) {
+        let mut pts = vec![ro.imax.saturating_sub(1), ro.imax, ro.imax + 1];
+        for side in [ro.low, ro.high].iter().flatten() {
+            pts.extend([side.1, side.1 + 1]);
+        }
+        let near = union_of(&pts);
+        let ro_pattern = vec![near; names.len()];
+        match propagate_sparse(&model, &ro_model, Some(&ro_pattern), ctx.coverage) {
             Ok(p) => {
                 for (name, m) in names.iter().zip(p.results) {
                     plot.markers
@@ -593,7 +618,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }),
         Ok(fit) => {
             // Fitted (f0, Q, Rt) as correlated normal inputs: cov = D (A V Aᵀ) D, D = diag(e^θ).
-            let cov_log = fit.cov_with(&py.cov);
+            let cov_log = fit.cov_from(&py);
             let p0 = [fit.f0(), fit.q(), fit.rt()];
             let names = ["f0 (fit)", "Q (fit)", "Rtotal (fit)"];
             let fit_in: Vec<Input> = (0..3)
@@ -735,7 +760,8 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                     let (a, b) = (ph(x, order[i]), ph(x, order[i + 1]));
                     vec![fs[i] + (fs[i + 1] - fs[i]) * a / (a - b)]
                 };
-                match propagate(&model, &zc, ctx.coverage) {
+                let zc_pattern = vec![union_of(&[i, i + 1])];
+                match propagate_sparse(&model, &zc, Some(&zc_pattern), ctx.coverage) {
                     Ok(p) => {
                         if let Some(m) = p.results.into_iter().next() {
                             results.push(NamedResult {

@@ -9,7 +9,7 @@ use super::{BlockResult, Context, Correlation, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::{correlation, propagate};
+use crate::uncertainty::{correlation, propagate_sparse};
 
 pub const SPEC: Spec<'static> = Spec {
     network: "Z",
@@ -53,7 +53,10 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
         y
     };
-    let p = propagate(&bi.model(), &model, ctx.coverage).map_err(|e| {
+    let pattern: Vec<Vec<usize>> = (0..ng)
+        .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), 3))
+        .collect();
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(|e| {
         vec![Diagnostic::new(
             block.span,
             format!("block {} could not be reduced: {e}", block.id),
