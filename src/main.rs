@@ -9,6 +9,11 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::Mutex;
 
+// Typesetting allocates many small short-lived objects from both build threads; mimalloc
+// keeps per-thread heaps and returns freed memory, where the system allocator fragmented.
+#[global_allocator]
+static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 #[derive(Parser)]
 #[command(
     name = "benchrec",
