@@ -343,20 +343,11 @@ impl Propagated {
         if model.inputs.len() != n {
             return Err("the model is not the one propagated".into());
         }
-        let mut dense = vec![0.0; n];
-        let mut value = 0.0;
-        for &(k, c) in w {
-            value += c * self.values.get(k).copied().unwrap_or(f64::NAN);
-            for &(i, d) in self.sensitivities(k) {
-                dense[i] += c * d;
-            }
-        }
-        let row: Vec<(usize, f64)> = dense
+        let value: f64 = w
             .iter()
-            .enumerate()
-            .filter(|(_, v)| **v != 0.0)
-            .map(|(i, v)| (i, *v))
-            .collect();
+            .map(|&(k, c)| c * self.values.get(k).copied().unwrap_or(f64::NAN))
+            .sum();
+        let row = self.combined_row(w.iter().copied(), &mut vec![0.0; n]);
         let mut scratch = vec![0.0; n];
         let mut touched = vec![false; n];
         let sig = sigma_times(&row, &self.u, &self.partners, &mut scratch, &mut touched);
@@ -372,6 +363,26 @@ impl Propagated {
         measure(0, value, &row, var, model.inputs, &cl, coverage)
     }
 
+    /// Sparse sensitivities Σ_k w_k J_k of a combination of outputs; `dense` is zeroed
+    /// scratch of one slot per input and is left zeroed.
+    fn combined_row(
+        &self,
+        w: impl Iterator<Item = (usize, f64)>,
+        dense: &mut [f64],
+    ) -> Vec<(usize, f64)> {
+        for (k, c) in w.filter(|e| e.1 != 0.0) {
+            for &(i, d) in self.sensitivities(k) {
+                dense[i] += c * d;
+            }
+        }
+        dense
+            .iter_mut()
+            .enumerate()
+            .filter(|(_, v)| **v != 0.0)
+            .map(|(i, v)| (i, std::mem::take(v)))
+            .collect()
+    }
+
     /// Covariance matrix of linear combinations z_l = Σ_k w[l][k] y_k (GUM eq. 13 applied to
     /// z = W J x): W J Σ Jᵀ Wᵀ, computed without forming the output covariance.
     pub fn combined_cov(&self, w: &[Vec<f64>]) -> Vec<Vec<f64>> {
@@ -379,21 +390,7 @@ impl Propagated {
         let mut dense = vec![0.0; n];
         let rows: Vec<Vec<(usize, f64)>> = w
             .iter()
-            .map(|wl| {
-                for (k, &c) in wl.iter().enumerate() {
-                    if c != 0.0 {
-                        for &(i, d) in self.sensitivities(k) {
-                            dense[i] += c * d;
-                        }
-                    }
-                }
-                dense
-                    .iter_mut()
-                    .enumerate()
-                    .filter(|(_, v)| **v != 0.0)
-                    .map(|(i, v)| (i, std::mem::take(v)))
-                    .collect()
-            })
+            .map(|wl| self.combined_row(wl.iter().copied().enumerate(), &mut dense))
             .collect();
         let mut scratch = vec![0.0; n];
         let mut touched = vec![false; n];
