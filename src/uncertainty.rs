@@ -667,7 +667,6 @@ pub fn propagate_sparse(
         };
         results.push(measure(k, y0[k], &nz[k], var_of[k], inputs, &cl, coverage)?);
     }
-    drop(var_of);
     Ok(Propagated {
         values: y0,
         results,

@@ -87,20 +87,18 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     }
 
     // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
-    // (mean over groups) is a second model of one output.
+    // (mean over groups) is then a linear combination of the groups' C.
     let per = 4 + usize::from(has_phase) + usize::from(has_vs);
     let ng = bi.groups.len();
-    let c_of = |x: &[f64], g: usize| -> (f64, f64, f64, f64) {
-        let vr = bi.voltage("VR", g, x);
-        let vc = bi.voltage("VC", g, x);
-        let w = 2.0 * PI * bi.f(g, x);
-        let i = vr / bi.r(x);
-        (vr, vc, i, i / (w * vc))
-    };
     let model = |x: &[f64]| -> Vec<f64> {
         let mut y = Vec::with_capacity(ng * per);
+        let r = bi.r(x);
         for g in 0..ng {
-            let (vr, vc, i, c) = c_of(x, g);
+            let vr = bi.voltage("VR", g, x);
+            let vc = bi.voltage("VC", g, x);
+            let w = 2.0 * PI * bi.f(g, x);
+            let i = vr / r;
+            let c = i / (w * vc);
             y.push(i);
             y.push(vc / i);
             y.push(c);
@@ -125,7 +123,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         )]
     };
     let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(fail)?;
-    // Block C = mean of the groups' C, a linear combination of outputs.
+    // Block C = mean of the groups' C.
     let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
     let block_c = p.linear(&bi.model(), &w, ctx.coverage).map_err(fail)?;
 
