@@ -75,6 +75,11 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
         text.contains(&squash(&printed)),
         "computed C `{printed}` not in the PDF text"
     );
+    // Plot labels are set as text over the drawing, so they are in the text layer too.
+    assert!(
+        text.contains("φ/°") && text.contains("φmeasured"),
+        "plot labels missing"
+    );
 }
 
 #[test]

@@ -13,6 +13,7 @@ use crate::notebook::{Accuracy, Column, Decision, Item, Part, PartKind, Readings
 use crate::quantity::{Quantity, Unit};
 use crate::render::format::{self, dof_text, k_text, sci, sig};
 use crate::render::markup::{self, Context};
+use crate::render::metrics;
 use crate::render::plots;
 use crate::render::Assets;
 use crate::uncertainty::{Dist, EvalType};
@@ -262,6 +263,26 @@ fn result_json(r: &NamedResult) -> Value {
             })
         })
         .collect();
+    let field = |k: &str| {
+        metrics::widest(
+            lines
+                .iter()
+                .map(|l| l.get(k).and_then(Value::as_str).unwrap_or("")),
+        )
+    };
+    let budget_widths: Vec<f64> = [
+        "input",
+        "estimate",
+        "u",
+        "type",
+        "distribution",
+        "sensitivity",
+        "contribution",
+        "dof",
+    ]
+    .iter()
+    .map(|k| field(k))
+    .collect();
     let mc = m.mc.as_ref().map(|mc| {
         let (lo, hi) = (mc.low / div, mc.high / div);
         json!({
@@ -283,6 +304,7 @@ fn result_json(r: &NamedResult) -> Value {
         "u": with_unit(sig(m.u / div, 2)),
         "dof": dof_text(m.dof),
         "budget": lines,
+        "budget_widths": budget_widths,
         "budget_omitted": omitted,
         "mc": mc,
     })
@@ -376,7 +398,28 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
             }
         })
         .collect();
-    let grid = json!({ "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows, "omitted": omitted });
+    let mut widths = vec![metrics::widest(
+        rows.iter().map(|r| r["f"].as_str().unwrap_or("")),
+    )];
+    for c in 0..names.len() {
+        let w = rows
+            .iter()
+            .map(|r| {
+                let cell = &r["cells"][c];
+                let text = metrics::em_width(cell["text"].as_str().unwrap_or(""));
+                // The template sets k as a 0.6 em superscript after a 1.5 pt space.
+                let k = cell["k"]
+                    .as_str()
+                    .map_or(0.0, |k| 0.2 + 0.6 * metrics::em_width(&format!("k={k}")));
+                text + k
+            })
+            .fold(0.0, f64::max);
+        widths.push((w * 1000.0).ceil() / 1000.0);
+    }
+    let grid = json!({
+        "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows, "omitted": omitted,
+        "widths": widths,
+    });
     (Value::Array(long), grid)
 }
 
@@ -692,6 +735,9 @@ fn readings_json(
             None => vec!["⋮".to_string(); rb.columns.len()],
         })
         .collect();
+    let widths: Vec<f64> = (0..rb.columns.len())
+        .map(|c| metrics::widest(rows.iter().map(|r| r.get(c).map_or("", String::as_str))))
+        .collect();
     let block = record.reduction.blocks.iter().find(|b| b.id == rb.id);
     let mut out = json!({
         "kind": "readings",
@@ -703,7 +749,7 @@ fn readings_json(
         "phase": rb.phase.as_ref().map(|m| m.name.clone()),
         "counter": rb.counter.as_ref().map(|m| m.name.clone()),
         "source": rb.source.map(|v| format::quantity(v, Unit::V)),
-        "table": { "columns": columns, "rows": rows, "omitted": table_omitted },
+        "table": { "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths },
         "reduced": block.is_some(),
     });
     let Some(block) = block else { return Ok(out) };
@@ -717,7 +763,10 @@ fn readings_json(
     {
         let path = format!("/plots/{index}-{n}.svg");
         files.insert(path.clone(), p.svg.into_bytes());
-        plots_json.push(json!({ "file": path, "caption": p.caption }));
+        plots_json.push(json!({
+            "file": path, "caption": p.caption, "width": p.width, "height": p.height,
+            "labels": p.labels,
+        }));
     }
     let verdicts: Vec<Value> = record
         .verdicts

@@ -3,7 +3,9 @@
 
 pub mod data;
 pub mod format;
+pub mod labels;
 pub mod markup;
+pub mod metrics;
 pub mod plots;
 pub mod world;
 

@@ -1,5 +1,5 @@
-//! Plots of a block as SVG (plotters' SVG backend). The SVG's text is set by typst with the
-//! world's fonts, so the family named here is one typst embeds. Series differ by marker
+//! Plots of a block as SVG (plotters' SVG backend). The labels are taken out of the SVG and
+//! set by the template over the image (see `labels`), in the family named here. Series differ by marker
 //! shape and dash, not by colour, so a black-and-white print still reads.
 
 use plotters::coord::Shift;
@@ -9,6 +9,7 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 use crate::networks::{BlockResult, PlotData};
 use crate::notebook::Network;
 use crate::render::format;
+use crate::render::labels::{self, Label};
 
 /// The font typst sets plot text in (embedded by typst-kit).
 pub const PLOT_FONT: &str = "Libertinus Serif";
@@ -17,11 +18,15 @@ const W: u32 = 720;
 const H_MAIN: u32 = 300;
 const H_LOWER: u32 = 190;
 
-/// One generated figure.
+/// One generated figure: the drawing without its text, and the labels to set over it.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Plot {
     pub caption: String,
     pub svg: String,
+    /// Size of the drawing in SVG user units.
+    pub width: u32,
+    pub height: u32,
+    pub labels: Vec<Label>,
 }
 
 /// How a series' y is printed.
@@ -209,8 +214,15 @@ pub fn block_plots(
         ),
         Network::Z => format!("Block {}: results.", block.id),
     };
-    let svg = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
-    Ok(vec![Plot { caption, svg }])
+    let (svg, height) = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
+    let (svg, labels) = labels::split(&svg);
+    Ok(vec![Plot {
+        caption,
+        svg,
+        width: W,
+        height,
+        labels,
+    }])
 }
 
 /// Range of finite values with padding; never empty.
@@ -236,7 +248,8 @@ fn padded(vals: impl Iterator<Item = f64>, log: bool) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
-fn draw(panels: &[Panel]) -> Result<String, String> {
+/// The SVG and its height.
+fn draw(panels: &[Panel]) -> Result<(String, u32), String> {
     let heights: Vec<u32> = panels
         .iter()
         .enumerate()
@@ -280,7 +293,7 @@ fn draw(panels: &[Panel]) -> Result<String, String> {
         }
         root.present().map_err(|e| e.to_string())?;
     }
-    Ok(svg)
+    Ok((svg, total))
 }
 
 fn y_scale(panel: &Panel) -> (f64, String, String) {
@@ -352,7 +365,8 @@ macro_rules! panel_body {
             format!("{ysym} / {yunit}")
         };
         let mut mesh = chart.configure_mesh();
-        mesh.light_line_style(RGBColor(244, 244, 244))
+        // No minor grid: each light line is an SVG element to parse and convert.
+        mesh.max_light_lines(0)
             .bold_line_style(RGBColor(200, 200, 200))
             .label_style(font.clone())
             .axis_desc_style(font.clone())
@@ -629,12 +643,17 @@ mod tests {
             block_plots(&block(Network::RC, plot), Some(("C", 313.5e-9, 346.5e-9))).unwrap();
         assert_eq!(plots.len(), 1);
         let svg = &plots[0].svg;
+        let text: Vec<&str> = plots[0].labels.iter().map(|l| l.text.as_str()).collect();
         assert!(svg.starts_with("<svg"));
-        assert!(svg.contains("C / nF"), "axis label quantity/unit");
-        assert!(svg.contains("f / kHz"));
-        assert!(svg.contains("φ / °"));
-        assert!(svg.contains(PLOT_FONT));
-        assert!(svg.contains("tolerance of C"));
+        assert!(!svg.contains("<text"), "labels are set by the template");
+        assert!(text.contains(&"C / nF"), "axis label quantity/unit");
+        assert!(text.contains(&"f / kHz"));
+        assert!(text.contains(&"φ / °"));
+        assert!(text.contains(&"tolerance of C"));
+        assert!(
+            plots[0].labels.iter().any(|l| l.rotate == 270.0),
+            "y label turned"
+        );
         // 1-2-5 ticks on the log axis: 0.2, 0.5, 1, 2, 5 kHz.
         assert_eq!(log_ticks(0.15, 6.5), vec![0.2, 0.5, 1.0, 2.0, 5.0]);
         assert!(!svg.contains("NaN"));
@@ -664,9 +683,13 @@ mod tests {
         };
         let plots = block_plots(&block(Network::RLC, plot), None).unwrap();
         let svg = &plots[0].svg;
-        assert!(svg.contains("|Y| − fit"), "residual panel");
-        assert!(svg.contains("f₀"));
-        assert!(svg.contains("|Y| / mS"));
+        let text: Vec<&str> = plots[0].labels.iter().map(|l| l.text.as_str()).collect();
+        assert!(
+            text.iter().any(|t| t.starts_with("|Y| − fit")),
+            "residual panel"
+        );
+        assert!(text.contains(&"f₀"));
+        assert!(text.contains(&"|Y| / mS"));
         assert!(!svg.contains("NaN"));
     }
 

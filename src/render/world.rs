@@ -23,6 +23,14 @@ static FONTS: LazyLock<FontStore> = LazyLock::new(|| {
     store
 });
 
+/// An embedded font by family name (regular, upright), for metrics outside typst.
+pub fn embedded_font(family: &str) -> Option<Font> {
+    let index = FONTS
+        .book()
+        .select(&family.to_lowercase(), typst::text::FontVariant::default())?;
+    FONTS.font(index)
+}
+
 static LIBRARY: LazyLock<LazyHash<Library>> = LazyLock::new(|| LazyHash::new(Library::default()));
 
 /// The id of a project-rooted virtual path such as `/data.json`.
