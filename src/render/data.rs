@@ -700,7 +700,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
         "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
     });
-    let text = serde_json::to_vec_pretty(&data).map_err(|e| format!("template data: {e}"))?;
+    let text = serde_json::to_vec(&data).map_err(|e| format!("template data: {e}"))?;
     files.insert("/data.json".into(), text);
     Ok(Generated {
         files,
