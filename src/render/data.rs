@@ -762,10 +762,12 @@ fn readings_json(
         .enumerate()
     {
         let path = format!("/plots/{index}-{n}.svg");
+        let drawing = format!("/plots/{index}-{n}-drawing.svg");
         files.insert(path.clone(), p.svg.into_bytes());
+        files.insert(drawing.clone(), p.drawing.into_bytes());
         plots_json.push(json!({
-            "file": path, "caption": p.caption, "width": p.width, "height": p.height,
-            "labels": p.labels,
+            "file": path, "caption": p.caption, "drawing": drawing, "width": p.width,
+            "height": p.height, "labels": p.labels,
         }));
     }
     let verdicts: Vec<Value> = record

@@ -18,11 +18,13 @@ const W: u32 = 720;
 const H_MAIN: u32 = 300;
 const H_LOWER: u32 = 190;
 
-/// One generated figure: the drawing without its text, and the labels to set over it.
+/// One generated figure: the whole SVG, and the same drawing without its text plus the labels
+/// to set over it (what the built-in template uses).
 #[derive(Debug, Clone, PartialEq)]
 pub struct Plot {
     pub caption: String,
     pub svg: String,
+    pub drawing: String,
     /// Size of the drawing in SVG user units.
     pub width: u32,
     pub height: u32,
@@ -215,10 +217,11 @@ pub fn block_plots(
         Network::Z => format!("Block {}: results.", block.id),
     };
     let (svg, height) = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
-    let (svg, labels) = labels::split(&svg);
+    let (drawing, labels) = labels::split(&svg);
     Ok(vec![Plot {
         caption,
         svg,
+        drawing,
         width: W,
         height,
         labels,
@@ -644,8 +647,12 @@ mod tests {
         assert_eq!(plots.len(), 1);
         let svg = &plots[0].svg;
         let text: Vec<&str> = plots[0].labels.iter().map(|l| l.text.as_str()).collect();
-        assert!(svg.starts_with("<svg"));
-        assert!(!svg.contains("<text"), "labels are set by the template");
+        assert!(svg.starts_with("<svg") && plots[0].drawing.starts_with("<svg"));
+        assert!(svg.contains("C / nF"), "the whole SVG keeps its text");
+        assert!(
+            !plots[0].drawing.contains("<text"),
+            "labels are set by the template"
+        );
         assert!(text.contains(&"C / nF"), "axis label quantity/unit");
         assert!(text.contains(&"f / kHz"));
         assert!(text.contains(&"φ / °"));
