@@ -213,6 +213,22 @@ fn dist_text(d: Dist) -> &'static str {
     }
 }
 
+/// A long input name with zero-width break points after `,` `_` `(` `@`, so a table that
+/// must wrap it can (typst finds no break in `counts(bench_meter_2,VR@1 kHz)` otherwise).
+fn break_points(name: &str) -> String {
+    if name.chars().count() <= 30 {
+        return name.to_string();
+    }
+    let mut out = String::with_capacity(name.len() + 16);
+    for c in name.chars() {
+        out.push(c);
+        if matches!(c, ',' | '_' | '(' | '@') {
+            out.push('\u{200B}');
+        }
+    }
+    out
+}
+
 /// A block result with its budget.
 fn result_json(r: &NamedResult) -> Value {
     let m = &r.m;
@@ -252,7 +268,7 @@ fn result_json(r: &NamedResult) -> Value {
         .map(|&i| &m.budget[i])
         .map(|b| {
             json!({
-                "input": b.input,
+                "input": break_points(&b.input),
                 "estimate": sci(b.estimate, 5),
                 "u": sci(b.u, 2),
                 "type": match b.kind { EvalType::A => "A", EvalType::B => "B" },
@@ -846,6 +862,17 @@ mod tests {
         assert_eq!(symbol_parts("f_low"), ("f".into(), "low".into(), true));
         assert_eq!(trim_sig(1500.0, 5), "1500");
         assert_eq!(trim_sig(0.25, 5), "0.25");
+    }
+
+    #[test]
+    fn long_input_names_get_break_points_and_short_ones_do_not() {
+        assert_eq!(break_points("counts(dmm,VR@1 kHz)"), "counts(dmm,VR@1 kHz)");
+        let long = break_points("counts(bench_meter_number_2,VR@1.6 kHz)");
+        assert_eq!(
+            long.replace('\u{200B}', ""),
+            "counts(bench_meter_number_2,VR@1.6 kHz)"
+        );
+        assert_eq!(long.matches('\u{200B}').count(), 6);
     }
 
     #[test]

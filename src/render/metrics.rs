@@ -3,8 +3,9 @@
 //! its row, to place it); with fixed tracks it lays it out once.
 //!
 //! The width of a string is the sum of its glyphs' advances in em, without kerning or
-//! ligatures; a character the font lacks counts as 1 em. Kerning in the body font is small
-//! and mostly negative, so this is close to, and usually a little over, the set width.
+//! ligatures; a character the font lacks counts as 1 em, a zero-width space as nothing.
+//! Kerning in the body font is small and mostly negative, so this is close to, and usually a
+//! little over, the set width.
 
 use std::sync::LazyLock;
 
@@ -27,6 +28,7 @@ pub fn em_width(s: &str) -> f64 {
     };
     let upem = f64::from(face.units_per_em());
     s.chars()
+        .filter(|&c| c != '\u{200B}')
         .map(|c| {
             face.glyph_index(c)
                 .and_then(|g| face.glyph_hor_advance(g))
@@ -53,6 +55,7 @@ mod tests {
         assert!((0.4..0.65).contains(&w), "figure width {w} em");
         assert!(em_width("W") > em_width("i"));
         assert_eq!(em_width(""), 0.0);
+        assert_eq!(em_width("a\u{200B}b"), em_width("ab"));
         assert_eq!(widest(["1", "22", "3"]), widest(["22"]));
     }
 
