@@ -132,7 +132,7 @@ fn round(v: f64) -> f64 {
 fn label(element: &str) -> Option<Label> {
     let open_end = element.find('>')?;
     let tag = &element[..open_end];
-    let body = &element[open_end + 1..element.len() - "</text>".len()];
+    let body = element.get(open_end + 1..element.len() - "</text>".len())?;
     if body.contains('<') {
         return None;
     }
@@ -223,6 +223,7 @@ mod tests {
             "<text x=\"1\" y=\"1\" font-size=\"10\" transform=\"scale(2)\">A</text>",
             "<text x=\"1\" y=\"1\" font-size=\"10\" opacity=\"0.5\">A</text>",
             "<text x=\"1\" y=\"1\" font-size=\"10\"><tspan>A</tspan></text>",
+            "<text x=\"1\" y=\"1\"</text>",
         ] {
             let (rest, labels) = split(odd);
             assert_eq!(rest, odd);
