@@ -418,19 +418,16 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         rows.iter().map(|r| r["f"].as_str().unwrap_or("")),
     )];
     for c in 0..names.len() {
-        let w = rows
-            .iter()
-            .map(|r| {
-                let cell = &r["cells"][c];
-                let text = metrics::em_width(cell["text"].as_str().unwrap_or(""));
-                // The template sets k as a 0.6 em superscript after a 1.5 pt space.
-                let k = cell["k"]
-                    .as_str()
-                    .map_or(0.0, |k| 0.2 + 0.6 * metrics::em_width(&format!("k={k}")));
-                text + k
-            })
-            .fold(0.0, f64::max);
-        widths.push((w * 1000.0).ceil() / 1000.0);
+        let w = metrics::widest_of(rows.iter().map(|r| {
+            let cell = &r["cells"][c];
+            let text = metrics::em_width(cell["text"].as_str().unwrap_or(""));
+            // The template sets k as a 0.6 em superscript after a 1.5 pt space.
+            let k = cell["k"]
+                .as_str()
+                .map_or(0.0, |k| 0.2 + 0.6 * metrics::em_width(&format!("k={k}")));
+            text + k
+        }));
+        widths.push(w);
     }
     let grid = json!({
         "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows, "omitted": omitted,

@@ -39,7 +39,12 @@ pub fn em_width(s: &str) -> f64 {
 
 /// Widest of `cells` in em, rounded up to a thousandth (the rounding keeps data.json stable).
 pub fn widest<'a>(cells: impl IntoIterator<Item = &'a str>) -> f64 {
-    let w = cells.into_iter().map(em_width).fold(0.0, f64::max);
+    widest_of(cells.into_iter().map(em_width))
+}
+
+/// Largest of some em widths, rounded up to a thousandth.
+pub fn widest_of(widths: impl IntoIterator<Item = f64>) -> f64 {
+    let w = widths.into_iter().fold(0.0, f64::max);
     (w * 1000.0).ceil() / 1000.0
 }
 
