@@ -14,6 +14,34 @@ use std::sync::Mutex;
 #[global_allocator]
 static ALLOC: mimalloc::MiMalloc = mimalloc::MiMalloc;
 
+/// Writes a line to standard output. A write error (a full disk, a closed file) is one line on
+/// standard error and exit status 1; a closed pipe ends the process quietly (SIGPIPE).
+macro_rules! say {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let mut out = std::io::stdout().lock();
+        if let Err(e) = writeln!(out, $($arg)*).and_then(|()| out.flush()) {
+            write_failed(&e);
+        }
+    }};
+}
+
+/// As [`say!`], without the line end.
+macro_rules! say_raw {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let mut out = std::io::stdout().lock();
+        if let Err(e) = write!(out, $($arg)*).and_then(|()| out.flush()) {
+            write_failed(&e);
+        }
+    }};
+}
+
+fn write_failed(e: &std::io::Error) -> ! {
+    eprintln!("error: cannot write to standard output: {e}");
+    std::process::exit(1)
+}
+
 #[derive(Parser)]
 #[command(
     name = "benchrec",
@@ -130,13 +158,19 @@ fn main() -> ExitCode {
                 Shell::Elvish => S::Elvish,
                 Shell::Powershell => S::PowerShell,
             };
-            clap_complete::generate(sh, &mut Cli::command(), "benchrec", &mut std::io::stdout());
+            let mut buf = Vec::new();
+            clap_complete::generate(sh, &mut Cli::command(), "benchrec", &mut buf);
+            say_raw!("{}", String::from_utf8_lossy(&buf));
             ExitCode::SUCCESS
         }
         Verb::Man => {
             let man = clap_mangen::Man::new(Cli::command());
-            match man.render(&mut std::io::stdout()) {
-                Ok(()) => ExitCode::SUCCESS,
+            let mut buf = Vec::new();
+            match man.render(&mut buf) {
+                Ok(()) => {
+                    say_raw!("{}", String::from_utf8_lossy(&buf));
+                    ExitCode::SUCCESS
+                }
                 Err(e) => {
                     eprintln!("error: {e}");
                     ExitCode::from(1)
@@ -199,23 +233,23 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
         match o {
             Outcome::Built { output, seconds } => {
                 built += 1;
-                println!("built       {}  ({seconds:.2} s)", output.display());
+                say!("built       {}  ({seconds:.2} s)", output.display());
             }
             Outcome::UpToDate { output } => {
                 fresh += 1;
-                println!("up to date  {}", output.display());
+                say!("up to date  {}", output.display());
             }
             Outcome::Failed(f) => {
                 failed += 1;
-                println!("FAILED      {}  {}", job.notebook.display(), f.summary());
+                say!("FAILED      {}  {}", job.notebook.display(), f.summary());
             }
         }
     }
     if many {
         for s in &found.skipped {
-            println!("skipped     {}  (no `record` in front matter)", s.display());
+            say!("skipped     {}  (no `record` in front matter)", s.display());
         }
-        println!(
+        say!(
             "{built} built, {fresh} up to date, {} skipped, {failed} failed",
             found.skipped.len()
         );
@@ -243,7 +277,7 @@ fn check(paths: &[PathBuf]) -> ExitCode {
         match analyse(&nb) {
             Ok(rec) => {
                 let flags: usize = rec.reduction.blocks.iter().map(|b| b.flags.len()).sum();
-                println!(
+                say!(
                     "ok {} ({} blocks, {flags} flags)",
                     nb.display(),
                     rec.reduction.blocks.len()
@@ -276,10 +310,10 @@ fn results(path: &Path, format: Format) -> ExitCode {
             }
         }
         match format {
-            Format::Csv => print!("{}", export::csv_string(&recs.iter().collect::<Vec<_>>())),
+            Format::Csv => say_raw!("{}", export::csv_string(&recs.iter().collect::<Vec<_>>())),
             Format::Json => {
                 let all: Vec<export::JsonRecord> = recs.iter().map(export::to_json).collect();
-                println!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
+                say!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
             }
         }
         return if failed {
@@ -291,8 +325,8 @@ fn results(path: &Path, format: Format) -> ExitCode {
     match analyse(path) {
         Ok(rec) => {
             match format {
-                Format::Json => println!("{}", export::json_string(&rec)),
-                Format::Csv => print!("{}", export::csv_string(&[&rec])),
+                Format::Json => say!("{}", export::json_string(&rec)),
+                Format::Csv => say_raw!("{}", export::csv_string(&[&rec])),
             }
             ExitCode::SUCCESS
         }
@@ -321,7 +355,7 @@ fn sign(path: &Path, by: &str, on: Option<String>) -> ExitCode {
         eprintln!("error: {}: {e}", path.display());
         return ExitCode::from(1);
     }
-    println!("signed {} by {by} on {on} ({})", path.display(), rec.digest);
+    say!("signed {} by {by} on {on} ({})", path.display(), rec.digest);
     ExitCode::SUCCESS
 }
 
@@ -337,7 +371,7 @@ fn verify(path: &Path) -> ExitCode {
         match signoff::verify_pdf_source(&bytes) {
             Ok(t) => (t, format!("the notebook embedded in {}", path.display())),
             Err(e) => {
-                println!("NOT VERIFIED: {}: {e}", path.display());
+                say!("NOT VERIFIED: {}: {e}", path.display());
                 return ExitCode::from(1);
             }
         }
@@ -353,20 +387,25 @@ fn verify(path: &Path) -> ExitCode {
     };
     match &rec.notebook.front.signoff {
         None => {
-            println!("NOT SIGNED: {origin} carries no sign-off");
+            say!("NOT SIGNED: {origin} carries no sign-off");
             ExitCode::from(1)
         }
         Some(s) if s.digest == rec.digest => {
-            println!(
+            say!(
                 "verified: {origin} matches the sign-off by {} on {} ({})",
-                s.by, s.on, s.digest
+                s.by,
+                s.on,
+                s.digest
             );
             ExitCode::SUCCESS
         }
         Some(s) => {
-            println!(
+            say!(
                 "VOID: {origin} was signed by {} on {} as {}, but its readings now give {}",
-                s.by, s.on, s.digest, rec.digest
+                s.by,
+                s.on,
+                s.digest,
+                rec.digest
             );
             ExitCode::from(1)
         }
@@ -410,21 +449,21 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     } else {
         None
     };
-    println!("watching {} (Ctrl-C to stop)", path.display());
+    say!("watching {} (Ctrl-C to stop)", path.display());
     let mut builds = 0usize;
     // Content last built per notebook: a save that changes nothing is not rebuilt.
     let mut last: std::collections::HashMap<PathBuf, Vec<u8>> = std::collections::HashMap::new();
     let build_one = |nb: &Path, builds: &mut usize| {
         let t0 = std::time::Instant::now();
         match pipeline::build_file(nb, None) {
-            Ok(out) => println!(
+            Ok(out) => say!(
                 "built {} in {:.2} s",
                 out.display(),
                 t0.elapsed().as_secs_f64()
             ),
             Err(f) => {
                 eprint!("{}", f.report());
-                println!(
+                say!(
                     "not built {} ({:.2} s): the last good PDF is kept",
                     nb.display(),
                     t0.elapsed().as_secs_f64()
@@ -504,7 +543,7 @@ fn new_notebook(path: &Path, record: Option<String>) -> ExitCode {
     }
     match pipeline::write_atomic(path, text.as_bytes()) {
         Ok(()) => {
-            println!(
+            say!(
                 "wrote {}: edit it, then `benchrec build {}`",
                 path.display(),
                 path.display()
