@@ -73,10 +73,14 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
                 {
                     continue;
                 }
-                let is_nb = std::fs::read(path)
-                    .map(|b| {
-                        looks_like_notebook(&String::from_utf8_lossy(&b[..b.len().min(64 * 1024)]))
+                // The walk does not follow links and keeps regular files only; read the head.
+                let is_nb = std::fs::File::open(path)
+                    .and_then(|f| {
+                        use std::io::Read;
+                        let mut head = Vec::new();
+                        f.take(64 * 1024).read_to_end(&mut head).map(|_| head)
                     })
+                    .map(|b| looks_like_notebook(&String::from_utf8_lossy(&b)))
                     .unwrap_or(false);
                 if !is_nb {
                     found.skipped.push(path.to_path_buf());
@@ -120,44 +124,74 @@ pub fn key_path(output: &Path) -> PathBuf {
 }
 
 /// The content key of a build: tool version, built-in template, the notebook bytes, and the
-/// bytes of every file it names (a user template, images). Missing files hash as absent, so
-/// the build itself reports them.
+/// bytes of every file it names (a user template, images). Named files are read only through
+/// [`pipeline::read_named`], so nothing outside the folder, no special file and nothing over
+/// its cap is opened; a file refused or missing hashes as absent and the build reports it.
 pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
     let mut h = Sha256::new();
-    h.update(b"benchrec build key 1\0");
+    h.update(b"benchrec build key 2\0");
     h.update(env!("CARGO_PKG_VERSION").as_bytes());
     h.update(b"\0");
     h.update(render::BUILTIN_TEMPLATE.as_bytes());
     h.update(b"\0");
     h.update(raw);
-    let dir = notebook_path.parent().unwrap_or(Path::new(""));
-    if let Ok(text) = std::str::from_utf8(raw) {
+    let folder = pipeline::notebook_folder(notebook_path);
+    if let (Ok(text), Ok(folder)) = (std::str::from_utf8(raw), folder) {
         if let Ok(nb) = notebook::parse(text) {
-            let mut named: Vec<String> = Vec::new();
+            let mut named: Vec<(String, u64)> = Vec::new();
             if let Some((t, _)) = &nb.front.template {
-                named.push(t.clone());
+                named.push((t.clone(), pipeline::TEMPLATE_MAX_BYTES));
             }
-            for item in &nb.items {
-                if let notebook::Item::Prose { text, .. } = item {
-                    use pulldown_cmark::{Event, Parser, Tag};
-                    for ev in Parser::new(&text) {
-                        if let Event::Start(Tag::Image { dest_url, .. }) = ev {
-                            named.push(dest_url.to_string());
-                        }
-                    }
-                }
+            for (rel, _) in pipeline::image_refs_in(&nb.items) {
+                let cap = pipeline::image_cap(&rel);
+                named.push((rel, cap));
             }
-            for n in named {
+            for (n, cap) in named {
                 h.update(b"\0file\0");
                 h.update(n.as_bytes());
                 h.update(b"\0");
-                if let Ok(bytes) = std::fs::read(dir.join(&n)) {
+                if let Ok(bytes) = pipeline::read_named(&folder, &n, cap) {
                     h.update(Sha256::digest(&bytes));
                 }
             }
         }
     }
-    h.finalize().iter().map(|b| format!("{b:02x}")).collect()
+    hex(&h.finalize())
+}
+
+fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// What the key file holds: the build key, then the size and SHA-256 of the PDF written.
+fn key_text(key: &str, pdf: &[u8]) -> String {
+    format!("{key}\npdf {} {}\n", pdf.len(), hex(&Sha256::digest(pdf)))
+}
+
+/// Is `output` the PDF that a build with `key` wrote? The key must match and the file on
+/// disk must have the recorded size (from metadata) and SHA-256 (read only when the size
+/// agrees), so a truncated or altered PDF is rebuilt.
+fn up_to_date(output: &Path, kp: &Path, key: &str) -> bool {
+    let Ok(text) = std::fs::read_to_string(kp) else {
+        return false;
+    };
+    let mut lines = text.lines();
+    if lines.next().map(str::trim) != Some(key) {
+        return false;
+    }
+    let Some(rest) = lines.next().and_then(|l| l.strip_prefix("pdf ")) else {
+        return false;
+    };
+    let Some((size, sum)) = rest.trim().split_once(' ') else {
+        return false;
+    };
+    let Ok(meta) = std::fs::metadata(output) else {
+        return false;
+    };
+    if !meta.is_file() || size.parse::<u64>().ok() != Some(meta.len()) {
+        return false;
+    }
+    pipeline::read_regular(output, meta.len()).is_ok_and(|b| hex(&Sha256::digest(&b)) == sum)
 }
 
 #[derive(Debug)]
@@ -170,19 +204,13 @@ pub enum Outcome {
 /// Builds one job unless its output is up to date (and `force` is off).
 pub fn run_job(job: &Job, force: bool) -> Outcome {
     let t0 = std::time::Instant::now();
-    let raw = match std::fs::read(&job.notebook) {
+    let raw = match pipeline::read_notebook_bytes(&job.notebook) {
         Ok(r) => r,
-        Err(e) => {
-            return Outcome::Failed(Failure::Io {
-                path: job.notebook.clone(),
-                message: e.to_string(),
-            })
-        }
+        Err(f) => return Outcome::Failed(f),
     };
     let key = build_key(&job.notebook, &raw);
     let kp = key_path(&job.output);
-    if !force && job.output.is_file() && std::fs::read_to_string(&kp).is_ok_and(|k| k.trim() == key)
-    {
+    if !force && up_to_date(&job.output, &kp, &key) {
         return Outcome::UpToDate {
             output: job.output.clone(),
         };
@@ -197,19 +225,101 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
             }
         }
     }
-    match pipeline::build_file(&job.notebook, Some(&job.output)) {
-        Ok(output) => {
-            // The key is written after the PDF: a crash between the two only costs a rebuild.
-            if let Some(d) = kp.parent() {
-                let _ = std::fs::create_dir_all(d);
+    if let Err(f) = pipeline::check_output(&job.output, &[&job.notebook]) {
+        return Outcome::Failed(f);
+    }
+    let pdf = match pipeline::render_file(&job.notebook) {
+        Ok((_, pdf)) => pdf,
+        Err(f) => return Outcome::Failed(f),
+    };
+    if let Err(e) = pipeline::write_atomic(&job.output, &pdf) {
+        return Outcome::Failed(Failure::Io {
+            path: job.output.clone(),
+            message: e.to_string(),
+        });
+    }
+    // The key is written after the PDF: a crash between the two only costs a rebuild.
+    if let Some(d) = kp.parent() {
+        let _ = std::fs::create_dir_all(d);
+    }
+    let _ = pipeline::write_atomic(&kp, key_text(&key, &pdf).as_bytes());
+    Outcome::Built {
+        output: job.output.clone(),
+        seconds: t0.elapsed().as_secs_f64(),
+    }
+}
+
+/// Where an output will be, comparable across spellings: its nearest existing ancestor made
+/// canonical, then the rest of the path.
+fn output_place(out: &Path) -> PathBuf {
+    let abs = std::path::absolute(out).unwrap_or_else(|_| out.to_path_buf());
+    let mut rest = Vec::new();
+    let mut cur = abs.as_path();
+    loop {
+        if let Ok(c) = cur.canonicalize() {
+            let mut p = c;
+            for r in rest.iter().rev() {
+                p.push(r);
             }
-            let _ = pipeline::write_atomic(&kp, key.as_bytes());
-            Outcome::Built {
-                output,
-                seconds: t0.elapsed().as_secs_f64(),
+            return p;
+        }
+        match (cur.parent(), cur.file_name()) {
+            (Some(parent), Some(name)) => {
+                rest.push(name.to_os_string());
+                cur = parent;
+            }
+            _ => return abs,
+        }
+    }
+}
+
+/// Checks a plan before anything is written: every output may be written
+/// ([`pipeline::check_output`] against all inputs) and no two notebooks write one PDF.
+pub fn check_plan(jobs: &[Job]) -> Vec<Failure> {
+    let inputs: Vec<&Path> = jobs.iter().map(|j| j.notebook.as_path()).collect();
+    let mut errors = Vec::new();
+    let mut seen: std::collections::HashMap<PathBuf, &Path> = std::collections::HashMap::new();
+    for j in jobs {
+        if let Err(f) = pipeline::check_output(&j.output, &inputs) {
+            errors.push(f);
+            continue;
+        }
+        match seen.entry(output_place(&j.output)) {
+            std::collections::hash_map::Entry::Occupied(first) => errors.push(Failure::Io {
+                path: j.output.clone(),
+                message: format!(
+                    "both {} and {} would be built into this PDF; nothing was written \
+                     (build them into different folders, or rename one)",
+                    first.get().display(),
+                    j.notebook.display()
+                ),
+            }),
+            std::collections::hash_map::Entry::Vacant(v) => {
+                v.insert(&j.notebook);
             }
         }
-        Err(f) => Outcome::Failed(f),
+    }
+    errors
+}
+
+/// Removes what killed builds left in the output folders of `jobs` (and their key folders).
+pub fn sweep_output_folders(jobs: &[Job]) {
+    let mut dirs: Vec<PathBuf> = jobs
+        .iter()
+        .filter_map(|j| j.output.parent().map(Path::to_path_buf))
+        .map(|d| {
+            if d.as_os_str().is_empty() {
+                PathBuf::from(".")
+            } else {
+                d
+            }
+        })
+        .collect();
+    dirs.sort();
+    dirs.dedup();
+    for d in dirs {
+        pipeline::sweep_temps(&d);
+        pipeline::sweep_temps(&d.join(".benchrec"));
     }
 }
 
@@ -220,6 +330,34 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
 /// and per-record times that counted other records). The rayon pool keeps typst's and the
 /// Monte Carlo's own parallel work.
 pub fn run_all(jobs: &[Job], force: bool, tick: &(dyn Fn(&Job, &Outcome) + Sync)) -> Vec<Outcome> {
+    sweep_output_folders(jobs);
+    run_all_with(jobs, force, tick, &run_job)
+}
+
+/// A panic inside one job, as that notebook's failure.
+fn panicked(job: &Job, payload: &(dyn std::any::Any + Send)) -> Outcome {
+    let what = payload
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| payload.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "no message".into());
+    Outcome::Failed(Failure::Io {
+        path: job.notebook.clone(),
+        message: format!(
+            "benchrec stopped on an internal error while building this record ({what}); \
+             the other records went on. Please report it with this notebook"
+        ),
+    })
+}
+
+/// [`run_all`] with the job runner given: a panic in one job becomes that job's failure and
+/// the workers go on with the rest.
+pub fn run_all_with(
+    jobs: &[Job],
+    force: bool,
+    tick: &(dyn Fn(&Job, &Outcome) + Sync),
+    runner: &(dyn Fn(&Job, bool) -> Outcome + Sync),
+) -> Vec<Outcome> {
     // Typesetting recurses deeply: give every thread that may run it the main thread's stack
     // size, not the 2 MiB default. Fails harmlessly when the pool already exists.
     let _ = rayon::ThreadPoolBuilder::new()
@@ -232,7 +370,8 @@ pub fn run_all(jobs: &[Job], force: bool, tick: &(dyn Fn(&Job, &Outcome) + Sync)
     let work = || loop {
         let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
         let Some(j) = jobs.get(i) else { break };
-        let o = run_job(j, force);
+        let o = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| runner(j, force)))
+            .unwrap_or_else(|p| panicked(j, p.as_ref()));
         tick(j, &o);
         if let Ok(mut slot) = done[i].lock() {
             *slot = Some(o);
@@ -265,3 +404,40 @@ pub fn run_all(jobs: &[Job], force: bool, tick: &(dyn Fn(&Job, &Outcome) + Sync)
 
 /// Stack of each build worker thread.
 pub const WORKER_STACK: usize = 16 * 1024 * 1024;
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A panic in one job is that job's failure; the other jobs still run (common practice:
+    /// one bad input must not stop a batch).
+    #[test]
+    fn a_panicking_job_fails_alone() {
+        let jobs: Vec<Job> = ["a.md", "b.md", "c.md"]
+            .iter()
+            .map(|n| Job {
+                notebook: PathBuf::from(n),
+                output: PathBuf::from(n).with_extension("pdf"),
+            })
+            .collect();
+        let runner = |j: &Job, _force: bool| {
+            if j.notebook == Path::new("a.md") {
+                panic!("invented failure");
+            }
+            Outcome::UpToDate {
+                output: j.output.clone(),
+            }
+        };
+        let out = run_all_with(&jobs, false, &|_, _| {}, &runner);
+        assert_eq!(out.len(), 3);
+        match &out[0] {
+            Outcome::Failed(f) => {
+                assert!(f.report().contains("invented failure"), "{}", f.report())
+            }
+            other => panic!("a.md: {other:?}"),
+        }
+        assert!(out[1..]
+            .iter()
+            .all(|o| matches!(o, Outcome::UpToDate { .. })));
+    }
+}

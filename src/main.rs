@@ -193,6 +193,13 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
         }
     }
     let (found, walk_errors) = batch::discover(paths, output);
+    let refused = batch::check_plan(&found.jobs);
+    if !refused.is_empty() {
+        for f in &refused {
+            eprint!("{}", f.report());
+        }
+        return ExitCode::from(1);
+    }
     let n = found.jobs.len();
     let tty = std::io::stderr().is_terminal();
     let bar = if tty && n > 1 {
@@ -267,8 +274,10 @@ fn notebooks_of(paths: &[PathBuf]) -> Vec<PathBuf> {
     found.jobs.into_iter().map(|j| j.notebook).collect()
 }
 
+/// The validation `build` does, typesetting included (the PDF is made in memory and
+/// dropped), so `check` and `results` accept exactly the notebooks `build` accepts.
 fn analyse(nb: &Path) -> Result<benchrec::judge::Record, Failure> {
-    pipeline::read_source(nb).and_then(|s| pipeline::analyse_text(nb, &s.text))
+    pipeline::render_file(nb).map(|(rec, _pdf)| rec)
 }
 
 fn check(paths: &[PathBuf]) -> ExitCode {
@@ -455,6 +464,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     let mut last: std::collections::HashMap<PathBuf, Vec<u8>> = std::collections::HashMap::new();
     let build_one = |nb: &Path, builds: &mut usize| {
         let t0 = std::time::Instant::now();
+        if let Some(dir) = nb.parent() {
+            pipeline::sweep_temps(dir);
+        }
         match pipeline::build_file(nb, None) {
             Ok(out) => say!(
                 "built {} in {:.2} s",
@@ -496,9 +508,8 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
                 let p = canon(&p);
                 let wanted = match &single {
                     Some(s) => &p == s,
-                    None => {
-                        std::fs::read_to_string(&p).is_ok_and(|t| batch::looks_like_notebook(&t))
-                    }
+                    None => pipeline::read_notebook_bytes(&p)
+                        .is_ok_and(|b| batch::looks_like_notebook(&String::from_utf8_lossy(&b))),
                 };
                 if wanted && !changed.contains(&p) {
                     changed.push(p);
@@ -506,7 +517,7 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
             }
         }
         for nb in changed {
-            let Ok(bytes) = std::fs::read(&nb) else {
+            let Ok(bytes) = pipeline::read_notebook_bytes(&nb) else {
                 continue;
             };
             if last.get(&nb) == Some(&bytes) {

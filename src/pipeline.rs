@@ -5,7 +5,7 @@ use crate::diag::{self, Diagnostic, Span};
 use crate::judge::{self, Record};
 use crate::networks;
 use crate::notebook::{self, Item};
-use crate::render::{self, Assets};
+use crate::render::{self, Assets, RenderError};
 use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
@@ -87,6 +87,186 @@ fn io_fail(path: &Path, e: impl std::fmt::Display) -> Failure {
     }
 }
 
+/// The largest notebook read, in bytes (from the file's metadata, then bounded while reading).
+/// A 100 000-row readings block is about 2.5 MB.
+pub const NOTEBOOK_MAX_BYTES: u64 = 16 * 1024 * 1024;
+/// The largest raster image (PNG, JPEG, GIF, WebP) a notebook may name, in bytes.
+pub const IMAGE_MAX_BYTES: u64 = 32 * 1024 * 1024;
+/// The largest SVG image, in bytes (typst parses SVG text into a tree).
+pub const SVG_MAX_BYTES: u64 = 4 * 1024 * 1024;
+/// The largest user template, in bytes.
+pub const TEMPLATE_MAX_BYTES: u64 = 1024 * 1024;
+/// The most pixels (width × height, from the image header) of one raster image: a decoded
+/// pixel takes 4 bytes or more, so this bounds one image at about 200 MB of memory.
+pub const IMAGE_MAX_PIXELS: u64 = 50_000_000;
+
+/// Why a file may not be opened or was not read.
+#[derive(Debug)]
+pub enum Refusal {
+    /// The path as written leaves the folder (root, `..`, a drive or a scheme).
+    Outside,
+    /// The path resolves outside the folder through a symbolic link.
+    OutsideByLink,
+    Missing,
+    /// Not a regular file: what it is instead.
+    NotRegular(&'static str),
+    TooLarge {
+        size: u64,
+        cap: u64,
+    },
+    Unreadable(std::io::Error),
+}
+
+impl std::fmt::Display for Refusal {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Refusal::Outside => write!(f, "points outside the notebook's folder"),
+            Refusal::OutsideByLink => {
+                write!(f, "resolves (through a link) outside the notebook's folder")
+            }
+            Refusal::Missing => write!(f, "does not exist"),
+            Refusal::NotRegular(what) => write!(f, "is {what}, not a regular file"),
+            Refusal::TooLarge { size, cap } => {
+                write!(f, "is {size} bytes, over the limit of {cap} bytes")
+            }
+            Refusal::Unreadable(e) => write!(f, "could not be read: {e}"),
+        }
+    }
+}
+
+fn kind_of(ft: std::fs::FileType) -> Option<&'static str> {
+    if ft.is_file() {
+        return None;
+    }
+    if ft.is_dir() {
+        return Some("a folder");
+    }
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::FileTypeExt;
+        if ft.is_fifo() {
+            return Some("a named pipe (FIFO)");
+        }
+        if ft.is_char_device() || ft.is_block_device() {
+            return Some("a device");
+        }
+        if ft.is_socket() {
+            return Some("a socket");
+        }
+    }
+    Some("a special file")
+}
+
+/// Reads a regular file of at most `cap` bytes: the type and size come from its metadata
+/// before it is opened (so a FIFO or a device is never opened), are checked again on the open
+/// file, and the read stops after `cap + 1` bytes in case the file grows meanwhile.
+pub fn read_regular(path: &Path, cap: u64) -> Result<Vec<u8>, Refusal> {
+    use std::io::Read;
+    let meta = std::fs::metadata(path).map_err(|e| match e.kind() {
+        std::io::ErrorKind::NotFound => Refusal::Missing,
+        _ => Refusal::Unreadable(e),
+    })?;
+    let check = |m: &std::fs::Metadata| match kind_of(m.file_type()) {
+        Some(what) => Err(Refusal::NotRegular(what)),
+        None if m.len() > cap => Err(Refusal::TooLarge { size: m.len(), cap }),
+        None => Ok(()),
+    };
+    check(&meta)?;
+    let mut opts = std::fs::OpenOptions::new();
+    opts.read(true);
+    #[cfg(unix)]
+    {
+        // Should the path be swapped for a FIFO after the check, opening it does not wait.
+        use std::os::unix::fs::OpenOptionsExt;
+        opts.custom_flags(libc::O_NONBLOCK);
+    }
+    let file = opts.open(path).map_err(Refusal::Unreadable)?;
+    check(&file.metadata().map_err(Refusal::Unreadable)?)?;
+    let mut bytes = Vec::with_capacity(usize::try_from(meta.len()).unwrap_or(0));
+    file.take(cap + 1)
+        .read_to_end(&mut bytes)
+        .map_err(Refusal::Unreadable)?;
+    if bytes.len() as u64 > cap {
+        return Err(Refusal::TooLarge {
+            size: bytes.len() as u64,
+            cap,
+        });
+    }
+    Ok(bytes)
+}
+
+/// The one gate for a file a notebook names: `rel` must be a plain relative path inside
+/// `folder` (already canonical), stay inside it after links are resolved, and be a regular
+/// file of at most `cap` bytes. Nothing is opened before all of that holds.
+pub fn read_named(folder: &Path, rel: &str, cap: u64) -> Result<Vec<u8>, Refusal> {
+    if !is_inside(rel) {
+        return Err(Refusal::Outside);
+    }
+    let canon = folder
+        .join(rel)
+        .canonicalize()
+        .map_err(|e| match e.kind() {
+            std::io::ErrorKind::NotFound => Refusal::Missing,
+            _ => Refusal::Unreadable(e),
+        })?;
+    if !canon.starts_with(folder) {
+        return Err(Refusal::OutsideByLink);
+    }
+    read_regular(&canon, cap)
+}
+
+/// The folder of a notebook, canonical: named files are resolved against it.
+pub fn notebook_folder(path: &Path) -> std::io::Result<PathBuf> {
+    match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.canonicalize(),
+        _ => Path::new(".").canonicalize(),
+    }
+}
+
+/// The byte cap of an image by the name it is given: SVG is text, the rest raster.
+pub fn image_cap(rel: &str) -> u64 {
+    if rel.to_ascii_lowercase().ends_with(".svg") {
+        SVG_MAX_BYTES
+    } else {
+        IMAGE_MAX_BYTES
+    }
+}
+
+/// Is this image one typst will decode within the limits? Raster formats are recognised by
+/// their header (width and height read from it, never decoded); SVG by its name.
+pub fn check_image(rel: &str, bytes: &[u8]) -> Result<(), String> {
+    use imagesize::ImageType;
+    match imagesize::image_type(bytes) {
+        Ok(ImageType::Png | ImageType::Jpeg | ImageType::Gif | ImageType::Webp) => {
+            let size = imagesize::blob_size(bytes)
+                .map_err(|e| format!("has a header that could not be read ({e})"))?;
+            let pixels = (size.width as u64).saturating_mul(size.height as u64);
+            if pixels > IMAGE_MAX_PIXELS {
+                return Err(format!(
+                    "is {} × {} pixels ({:.1} megapixels), over the limit of {} megapixels",
+                    size.width,
+                    size.height,
+                    pixels as f64 / 1e6,
+                    IMAGE_MAX_PIXELS / 1_000_000
+                ));
+            }
+            Ok(())
+        }
+        Ok(other) => Err(format!(
+            "is in a format the report cannot show ({other:?}); use PNG, JPEG, GIF, WebP or SVG"
+        )),
+        Err(_) if image_cap(rel) == SVG_MAX_BYTES => {
+            if std::str::from_utf8(bytes).is_err() {
+                return Err("is named .svg but is not UTF-8 text".into());
+            }
+            Ok(())
+        }
+        Err(_) => Err(
+            "is not in an image format the report can show (PNG, JPEG, GIF, WebP or SVG)".into(),
+        ),
+    }
+}
+
 /// A notebook read from disk: its bytes as read and its text.
 pub struct Source {
     pub path: PathBuf,
@@ -94,9 +274,25 @@ pub struct Source {
     pub text: String,
 }
 
+/// Reads a notebook's bytes through [`read_regular`] (a regular file under
+/// [`NOTEBOOK_MAX_BYTES`]).
+pub fn read_notebook_bytes(path: &Path) -> Result<Vec<u8>, Failure> {
+    read_regular(path, NOTEBOOK_MAX_BYTES).map_err(|r| {
+        let msg = match r {
+            Refusal::Missing => "no such file".to_string(),
+            Refusal::TooLarge { size, cap } => format!(
+                "the notebook is {size} bytes, over the limit of {cap} bytes ({} MiB)",
+                cap / (1024 * 1024)
+            ),
+            other => format!("the notebook {other}"),
+        };
+        io_fail(path, msg)
+    })
+}
+
 /// Reads a notebook; bytes that are not UTF-8 are reported at their line and column.
 pub fn read_source(path: &Path) -> Result<Source, Failure> {
-    let raw = std::fs::read(path).map_err(|e| io_fail(path, e))?;
+    let raw = read_notebook_bytes(path)?;
     match String::from_utf8(raw.clone()) {
         Ok(text) => Ok(Source {
             path: path.to_path_buf(),
@@ -142,6 +338,113 @@ pub fn analyse_text(path: &Path, text: &str) -> Result<Record, Failure> {
     judge::judge(nb, red).map_err(|d| fail(&src, d))
 }
 
+/// The most prose (Markdown outside readings blocks) a notebook may hold, in bytes. Typesetting
+/// prose costs about 1.7 s and 300 MB per MB, so this bounds it near 1 s and 150 MB.
+pub const PROSE_MAX_BYTES: usize = 512 * 1024;
+/// The longest run of text in one paragraph, heading, list item or table cell, in bytes
+/// (about 5 000 words: some ten pages).
+pub const PARAGRAPH_MAX_BYTES: usize = 32 * 1024;
+
+/// Prose over [`PROSE_MAX_BYTES`] in all or a paragraph over [`PARAGRAPH_MAX_BYTES`], each
+/// reported where it starts. Readings blocks are not prose and have no such limit.
+pub fn prose_limits(items: &[Item]) -> Vec<Diagnostic> {
+    use pulldown_cmark::{Event, Options, Parser, Tag, TagEnd};
+    let mut diags = Vec::new();
+    let mut total = 0usize;
+    for item in items {
+        let Item::Prose { text, span } = item else {
+            continue;
+        };
+        let inline = |t: &Tag| {
+            matches!(
+                t,
+                Tag::Emphasis
+                    | Tag::Strong
+                    | Tag::Strikethrough
+                    | Tag::Superscript
+                    | Tag::Subscript
+                    | Tag::Link { .. }
+                    | Tag::Image { .. }
+            )
+        };
+        let inline_end = |t: &TagEnd| {
+            matches!(
+                t,
+                TagEnd::Emphasis
+                    | TagEnd::Strong
+                    | TagEnd::Strikethrough
+                    | TagEnd::Superscript
+                    | TagEnd::Subscript
+                    | TagEnd::Link
+                    | TagEnd::Image
+            )
+        };
+        let (mut run, mut start) = (0usize, None::<usize>);
+        let opts = Options::ENABLE_TABLES | Options::ENABLE_STRIKETHROUGH;
+        for (ev, r) in Parser::new_ext(text, opts).into_offset_iter() {
+            let boundary = match &ev {
+                Event::Start(t) => !inline(t),
+                Event::End(t) => !inline_end(t),
+                Event::Rule => true,
+                _ => false,
+            };
+            if boundary {
+                (run, start) = (0, None);
+                continue;
+            }
+            run += match ev {
+                Event::Start(_) | Event::End(_) | Event::TaskListMarker(_) => continue,
+                Event::SoftBreak | Event::HardBreak => 1,
+                _ => r.len(),
+            };
+            let first = *start.get_or_insert(r.start);
+            if run > PARAGRAPH_MAX_BYTES {
+                let at = span.start + first;
+                diags.push(
+                    Diagnostic::new(
+                        Span::new(at, at + 1),
+                        "this paragraph is too long to typeset",
+                    )
+                    .expected(format!(
+                        "at most {} KiB of text in one paragraph, heading, list item or table cell",
+                        PARAGRAPH_MAX_BYTES / 1024
+                    ))
+                    .found(format!("more than {} KiB without a blank line", run / 1024))
+                    .help("break the text into paragraphs (a blank line between them)"),
+                );
+                break;
+            }
+        }
+        total += text.len();
+        if total > PROSE_MAX_BYTES {
+            let mut cut = text.len().saturating_sub(total - PROSE_MAX_BYTES);
+            while !text.is_char_boundary(cut) {
+                cut -= 1;
+            }
+            let at = span.start + cut;
+            diags.push(
+                Diagnostic::new(
+                    Span::new(at, at),
+                    "the notebook holds too much prose to typeset",
+                )
+                .expected(format!(
+                    "at most {} KiB of prose in all",
+                    PROSE_MAX_BYTES / 1024
+                ))
+                .found(format!(
+                    "{} KiB up to the end of this run of prose",
+                    total / 1024
+                ))
+                .help(
+                    "move long text into a separate document and keep the notebook to the record",
+                ),
+            );
+            break;
+        }
+    }
+    diags
+}
+
 /// Is `rel` a plain relative path that stays inside its folder (no root, no `..`, no scheme)?
 fn is_inside(rel: &str) -> bool {
     if rel.is_empty() || rel.contains("://") || rel.starts_with('/') || rel.starts_with('\\') {
@@ -155,11 +458,11 @@ fn is_inside(rel: &str) -> bool {
         .all(|c| matches!(c, Component::Normal(_) | Component::CurDir))
 }
 
-/// Images named in the prose, as (path as written, span).
-pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
+/// Images named in the prose of these items, as (path as written, span).
+pub fn image_refs_in(items: &[Item]) -> Vec<(String, Span)> {
     use pulldown_cmark::{Event, Options, Parser, Tag};
     let mut out = Vec::new();
-    for item in &rec.notebook.items {
+    for item in items {
         let Item::Prose { text, span } = item else {
             continue;
         };
@@ -175,15 +478,15 @@ pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
     out
 }
 
-/// Gathers what the renderer may use: images inside the notebook's folder and a user template.
+/// Images named in the prose, as (path as written, span).
+pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
+    image_refs_in(&rec.notebook.items)
+}
+
+/// Gathers what the renderer may use: images inside the notebook's folder and a user
+/// template, each read through [`read_named`] and each image checked by [`check_image`].
 pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
-    let dir = src.path.parent().map(Path::to_path_buf).unwrap_or_default();
-    let dir = if dir.as_os_str().is_empty() {
-        PathBuf::from(".")
-    } else {
-        dir
-    };
-    let canon_dir = dir.canonicalize().map_err(|e| io_fail(&dir, e))?;
+    let canon_dir = notebook_folder(&src.path).map_err(|e| io_fail(&src.path, e))?;
     let mut assets = Assets {
         source_name: src
             .path
@@ -199,51 +502,34 @@ pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
         }
         let refuse = |why: &str| {
             Diagnostic::new(span, format!("image `{rel}` {why}"))
-                .expected("a path relative to the notebook, inside its folder")
+                .expected("a PNG, JPEG, GIF, WebP or SVG file relative to the notebook, inside its folder")
                 .found(rel.clone())
                 .help("copy the image next to the notebook (or into a subfolder) and name it by a relative path")
         };
-        if !is_inside(&rel) {
-            diags.push(refuse("points outside the notebook's folder"));
-            continue;
-        }
-        let full = dir.join(&rel);
-        match full.canonicalize() {
-            Ok(c) if c.starts_with(&canon_dir) => match std::fs::read(&c) {
-                Ok(bytes) => {
+        match read_named(&canon_dir, &rel, image_cap(&rel)) {
+            Ok(bytes) => match check_image(&rel, &bytes) {
+                Ok(()) => {
                     assets.images.insert(rel.clone(), bytes);
                 }
-                Err(e) => diags.push(refuse(&format!("could not be read: {e}"))),
+                Err(why) => diags.push(refuse(&why)),
             },
-            Ok(_) => diags.push(refuse(
-                "resolves (through a link) outside the notebook's folder",
-            )),
-            Err(_) => diags.push(refuse("does not exist")),
+            Err(r) => diags.push(refuse(&r.to_string())),
         }
     }
     if let Some((tpl, span)) = &rec.notebook.front.template {
-        // A template is typeset into the record, so it obeys the same rule as images: a
-        // relative path inside the notebook's folder, not leaving it through a link.
+        // A template is typeset into the record, so it obeys the same rule as images.
         let refuse = |why: String| {
             Diagnostic::new(*span, format!("template `{tpl}` {why}"))
                 .expected("a Typst template file, relative to the notebook, inside its folder")
                 .found(tpl.clone())
                 .help("copy the lab's template next to the notebook (or into a subfolder)")
         };
-        let full = dir.join(tpl);
-        if !is_inside(tpl) {
-            diags.push(refuse("points outside the notebook's folder".into()));
-        } else {
-            match full.canonicalize() {
-                Ok(c) if c.starts_with(&canon_dir) => match std::fs::read_to_string(&c) {
-                    Ok(t) => assets.template = Some(t),
-                    Err(e) => diags.push(refuse(format!("could not be read: {e}"))),
-                },
-                Ok(_) => diags.push(refuse(
-                    "resolves (through a link) outside the notebook's folder".into(),
-                )),
-                Err(_) => diags.push(refuse("does not exist".into())),
-            }
+        match read_named(&canon_dir, tpl, TEMPLATE_MAX_BYTES) {
+            Ok(bytes) => match String::from_utf8(bytes) {
+                Ok(t) => assets.template = Some(t),
+                Err(_) => diags.push(refuse("is not UTF-8 text".into())),
+            },
+            Err(r) => diags.push(refuse(r.to_string())),
         }
     }
     if diags.is_empty() {
@@ -262,15 +548,132 @@ pub fn default_output(path: &Path) -> PathBuf {
     path.with_extension("pdf")
 }
 
+/// The identity of an existing file: (device, inode).
+#[cfg(unix)]
+fn file_identity(path: &Path) -> Option<(u64, u64)> {
+    use std::os::unix::fs::MetadataExt;
+    let meta = std::fs::metadata(path).ok()?;
+    Some((meta.dev(), meta.ino()))
+}
+
+/// The identity of an existing file: its canonical path.
+#[cfg(not(unix))]
+fn file_identity(path: &Path) -> Option<PathBuf> {
+    path.canonicalize().ok()
+}
+
+/// May a build write `out`? Refused, before anything is written: an output that is one of
+/// the `inputs` (also through a link or `..`), one that is not a regular file, and an
+/// existing file that is not a PDF (does not start with `%PDF-`). benchrec replaces only PDFs.
+pub fn check_output(out: &Path, inputs: &[&Path]) -> Result<(), Failure> {
+    let refuse = |why: String| {
+        Err(io_fail(
+            out,
+            format!("{why}; nothing was written (name a new .pdf file or a folder with -o)"),
+        ))
+    };
+    let Ok(meta) = std::fs::metadata(out) else {
+        return Ok(());
+    };
+    if let Some(id) = file_identity(out) {
+        if let Some(nb) = inputs
+            .iter()
+            .find(|i| file_identity(i).as_ref() == Some(&id))
+        {
+            return refuse(format!(
+                "the output is the notebook {} itself",
+                nb.display()
+            ));
+        }
+    }
+    if let Some(what) = kind_of(meta.file_type()) {
+        return refuse(format!("the output is {what}, not a PDF file"));
+    }
+    let mut head = Vec::new();
+    if let Ok(f) = std::fs::File::open(out) {
+        use std::io::Read;
+        let _ = f.take(5).read_to_end(&mut head);
+    }
+    if head != b"%PDF-" {
+        return refuse("the output exists and is not a PDF".to_string());
+    }
+    Ok(())
+}
+
+/// Name prefix of the temporary files [`write_atomic`] leaves while it writes.
+const TEMP_PREFIX: &str = ".benchrec-";
+/// A temporary file in the older naming (no writer pid) is stale after this long.
+const TEMP_STALE_SECS: u64 = 10 * 60;
+
+/// Is the process `pid` still running (on this machine)?
+fn process_alive(pid: u32) -> bool {
+    #[cfg(unix)]
+    {
+        let Ok(p) = libc::pid_t::try_from(pid) else {
+            return false;
+        };
+        // Signal 0 only checks: success or EPERM means the process exists.
+        let r = unsafe { libc::kill(p, 0) };
+        r == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
+    }
+    #[cfg(not(unix))]
+    {
+        let _ = pid;
+        true
+    }
+}
+
+/// Removes the temporary files that killed builds left in `dir`: those named with a writer
+/// pid (`.benchrec-p<pid>-….tmp`) whose process is gone, and older-style ones
+/// (`.benchrec-….tmp`) untouched for ten minutes. A file a running build writes is kept.
+/// Returns how many were removed.
+pub fn sweep_temps(dir: &Path) -> usize {
+    let Ok(entries) = std::fs::read_dir(dir) else {
+        return 0;
+    };
+    let mut removed = 0;
+    for e in entries.flatten() {
+        let name = e.file_name().to_string_lossy().into_owned();
+        let Some(mid) = name
+            .strip_prefix(TEMP_PREFIX)
+            .and_then(|n| n.strip_suffix(".tmp"))
+        else {
+            continue;
+        };
+        let Ok(meta) = e.metadata() else { continue };
+        if !meta.file_type().is_file() {
+            continue;
+        }
+        let pid = mid
+            .strip_prefix('p')
+            .and_then(|m| m.split_once('-'))
+            .and_then(|(p, _)| p.parse::<u32>().ok());
+        let stale = match pid {
+            Some(p) => !process_alive(p),
+            None => meta
+                .modified()
+                .ok()
+                .and_then(|m| m.elapsed().ok())
+                .is_some_and(|age| age.as_secs() >= TEMP_STALE_SECS),
+        };
+        if stale && std::fs::remove_file(e.path()).is_ok() {
+            removed += 1;
+        }
+    }
+    removed
+}
+
 /// Writes `bytes` to a temporary file beside `out` and renames it into place, so a reader never
-/// sees a partial file and a failed build leaves the earlier file untouched.
+/// sees a partial file and a failed build leaves the earlier file untouched. The temporary
+/// name carries this process's id, so [`sweep_temps`] can tell a live writer's file from a
+/// killed one's.
 pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
     let dir = match out.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => PathBuf::from("."),
     };
     let mut tmp = tempfile::Builder::new()
-        .prefix(".benchrec-")
+        .prefix(&format!("{TEMP_PREFIX}p{}-", std::process::id()))
         .suffix(".tmp")
         .tempfile_in(&dir)?;
     tmp.write_all(bytes)?;
@@ -290,16 +693,22 @@ pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
     Ok(())
 }
 
-/// Everything up to the PDF bytes, for one notebook on disk.
+/// Everything up to the PDF bytes, for one notebook on disk. `check` and `results` run this
+/// too (and drop the bytes), so they accept exactly what `build` accepts.
 pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     let src = read_source(path)?;
     let rec = analyse_text(path, &src.text)?;
+    let too_long = prose_limits(&rec.notebook.items);
+    if !too_long.is_empty() {
+        return Err(Failure::Notebook {
+            path: path.to_path_buf(),
+            source: rec.notebook.source.clone(),
+            diags: too_long,
+        });
+    }
     let mut assets = gather_assets(&src, &rec)?;
     assets.source = src.raw.clone();
-    let pdf = render::render_pdf(&rec, &assets).map_err(|e| Failure::Render {
-        path: path.to_path_buf(),
-        message: e.to_string(),
-    });
+    let pdf = render::render_pdf(&rec, &assets).map_err(|e| render_failure(path, &rec, &assets, e));
     // Typst memoises layout across compilations; a batch or a watch session would otherwise
     // keep every record's intermediate results in memory. Every 4 builds, drop what the last
     // 8 did not use: for the 500-record benchmark this held 260 MB at peak (640 MB when every
@@ -311,12 +720,63 @@ pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     Ok((rec, pdf?))
 }
 
-/// Builds one notebook into `out` (default beside it). Returns the path written.
+/// A typesetting error that came from the notebook's own prose is reported at the notebook
+/// line (the image it names, or the start of the run of prose); the rest as a render failure.
+fn render_failure(path: &Path, rec: &Record, assets: &Assets, e: RenderError) -> Failure {
+    if e.at.is_empty() {
+        return Failure::Render {
+            path: path.to_path_buf(),
+            message: e.to_string(),
+        };
+    }
+    let prose: Vec<&Span> = rec
+        .notebook
+        .items
+        .iter()
+        .filter_map(|i| match i {
+            Item::Prose { span, .. } => Some(span),
+            _ => None,
+        })
+        .collect();
+    let refs = image_refs(rec);
+    let mut diags = Vec::new();
+    for p in &e.at {
+        let image = p
+            .image
+            .and_then(|k| assets.images.keys().nth(k))
+            .and_then(|rel| refs.iter().find(|(r, _)| r == rel));
+        let (span, what) = match (image, prose.get(p.prose)) {
+            (Some((rel, span)), _) => (*span, format!("image `{rel}` could not be typeset")),
+            (None, Some(s)) => (
+                Span::new(s.start, s.start),
+                "this prose could not be typeset".into(),
+            ),
+            (None, None) => (Span::default(), "the prose could not be typeset".into()),
+        };
+        diags.push(
+            Diagnostic::new(span, what)
+                .expected("text and images the typesetter can set")
+                .found(p.message.clone()),
+        );
+    }
+    if let (Some(first), false) = (diags.first_mut(), e.messages.is_empty()) {
+        first.help = Some(e.messages.join("\n"));
+    }
+    Failure::Notebook {
+        path: path.to_path_buf(),
+        source: rec.notebook.source.clone(),
+        diags,
+    }
+}
+
+/// Builds one notebook into `out` (default beside it). Returns the path written. The output
+/// is checked by [`check_output`] before anything is read or written.
 pub fn build_file(path: &Path, out: Option<&Path>) -> Result<PathBuf, Failure> {
-    let (_rec, pdf) = render_file(path)?;
     let out = out
         .map(Path::to_path_buf)
         .unwrap_or_else(|| default_output(path));
+    check_output(&out, &[path])?;
+    let (_rec, pdf) = render_file(path)?;
     write_atomic(&out, &pdf).map_err(|e| io_fail(&out, e))?;
     Ok(out)
 }

@@ -45,20 +45,86 @@ pub struct Assets {
 /// carry `path:line:col`).
 #[derive(Debug, Clone, PartialEq)]
 pub struct RenderError {
+    /// Errors of the template or of benchrec itself.
     pub messages: Vec<String>,
+    /// Errors inside a generated prose file: they come from the notebook's text.
+    pub at: Vec<ProseError>,
+}
+
+/// A typesetting error inside the markup of one run of prose.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ProseError {
+    /// Which run of prose (the n-th `Item::Prose` of the notebook).
+    pub prose: usize,
+    /// The image call it is in, as the index of the image in `Assets::images` order.
+    pub image: Option<usize>,
+    pub message: String,
 }
 
 impl RenderError {
     fn one(msg: impl Into<String>) -> Self {
         RenderError {
             messages: vec![msg.into()],
+            at: Vec::new(),
         }
     }
+
+    /// Sorts typst's errors: those inside generated prose go to `at`, the rest are described.
+    fn from_typst(
+        world: &RecordWorld,
+        errors: &[SourceDiagnostic],
+        template: &str,
+        user: bool,
+    ) -> Self {
+        let mut e = RenderError {
+            messages: Vec::new(),
+            at: Vec::new(),
+        };
+        for d in errors {
+            match prose_error(world, d) {
+                Some(p) => e.at.push(p),
+                None => e.messages.push(describe(world, d, template, user)),
+            }
+        }
+        e
+    }
+}
+
+/// Where in the notebook's prose an error lies: generated prose files are `/prose/<n>.typ`,
+/// and an image call in them names `/images/<k>.<ext>`.
+fn prose_error(world: &RecordWorld, diag: &SourceDiagnostic) -> Option<ProseError> {
+    let id = diag.span.id()?;
+    let path = world.path_of(id)?;
+    let prose = path
+        .strip_prefix("/prose/")?
+        .strip_suffix(".typ")?
+        .parse()
+        .ok()?;
+    let image = world.range(diag.span).and_then(|r| {
+        let src = world.served_source(id)?;
+        let text = src.text().get(r)?;
+        let after = &text[text.find("\"/images/")? + 9..];
+        after.split('.').next()?.parse().ok()
+    });
+    let mut message = diag.message.to_string();
+    for h in &diag.hints {
+        message.push_str(&format!("; hint: {}", h.v));
+    }
+    Some(ProseError {
+        prose,
+        image,
+        message,
+    })
 }
 
 impl fmt::Display for RenderError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}", self.messages.join("\n"))
+        let prose = self
+            .at
+            .iter()
+            .map(|p| format!("prose run {}: {}", p.prose + 1, p.message));
+        let all: Vec<String> = self.messages.iter().cloned().chain(prose).collect();
+        write!(f, "{}", all.join("\n"))
     }
 }
 
@@ -142,12 +208,7 @@ pub fn compile(record: &Record, assets: &Assets) -> Result<Compiled, RenderError
             world,
             warnings,
         }),
-        Err(errors) => Err(RenderError {
-            messages: errors
-                .iter()
-                .map(|d| describe(&world, d, &tname, user))
-                .collect(),
-        }),
+        Err(errors) => Err(RenderError::from_typst(&world, &errors, &tname, user)),
     }
 }
 
@@ -176,11 +237,8 @@ pub fn render_pdf(record: &Record, assets: &Assets) -> Result<Vec<u8>, RenderErr
         ..PdfOptions::default()
     };
     let tname = template_name(record, assets);
-    typst_pdf::pdf(&compiled.document, &options).map_err(|errs| RenderError {
-        messages: errs
-            .iter()
-            .map(|e| describe(&compiled.world, e, &tname, assets.template.is_some()))
-            .collect(),
+    typst_pdf::pdf(&compiled.document, &options).map_err(|errs| {
+        RenderError::from_typst(&compiled.world, &errs, &tname, assets.template.is_some())
     })
 }
 

@@ -125,6 +125,11 @@ impl RecordWorld {
         id_path(id)
     }
 
+    /// A served source (template or generated prose), for mapping errors back.
+    pub fn served_source(&self, id: FileId) -> Option<Source> {
+        self.lookup_source(id)
+    }
+
     fn lookup_source(&self, id: FileId) -> Option<Source> {
         if id == self.main.id() {
             return Some(self.main.clone());
