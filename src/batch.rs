@@ -163,14 +163,28 @@ fn hex(bytes: &[u8]) -> String {
     bytes.iter().map(|b| format!("{b:02x}")).collect()
 }
 
-/// What the key file holds: the build key, then the size and SHA-256 of the PDF written.
-fn key_text(key: &str, pdf: &[u8]) -> String {
-    format!("{key}\npdf {} {}\n", pdf.len(), hex(&Sha256::digest(pdf)))
+/// Modification time of a file in nanoseconds since the epoch (0 when unknown).
+fn mtime_ns(meta: &std::fs::Metadata) -> u128 {
+    meta.modified()
+        .ok()
+        .and_then(|t| t.duration_since(std::time::UNIX_EPOCH).ok())
+        .map_or(0, |d| d.as_nanos())
+}
+
+/// What the key file holds: the build key, then the size, SHA-256 and modification time of
+/// the PDF written.
+fn key_text(key: &str, pdf: &[u8], output: &Path) -> String {
+    let mtime = std::fs::metadata(output).map_or(0, |m| mtime_ns(&m));
+    format!(
+        "{key}\npdf {} {} {mtime}\n",
+        pdf.len(),
+        hex(&Sha256::digest(pdf))
+    )
 }
 
 /// Is `output` the PDF that a build with `key` wrote? The key must match and the file on
-/// disk must have the recorded size (from metadata) and SHA-256 (read only when the size
-/// agrees), so a truncated or altered PDF is rebuilt.
+/// disk must have the recorded size; when its modification time differs from the recorded
+/// one, its SHA-256 must match too. A truncated or altered PDF is rebuilt.
 fn up_to_date(output: &Path, kp: &Path, key: &str) -> bool {
     let Ok(text) = std::fs::read_to_string(kp) else {
         return false;
@@ -182,7 +196,8 @@ fn up_to_date(output: &Path, kp: &Path, key: &str) -> bool {
     let Some(rest) = lines.next().and_then(|l| l.strip_prefix("pdf ")) else {
         return false;
     };
-    let Some((size, sum)) = rest.trim().split_once(' ') else {
+    let fields: Vec<&str> = rest.split_whitespace().collect();
+    let [size, sum, mtime] = fields[..] else {
         return false;
     };
     let Ok(meta) = std::fs::metadata(output) else {
@@ -190,6 +205,12 @@ fn up_to_date(output: &Path, kp: &Path, key: &str) -> bool {
     };
     if !meta.is_file() || size.parse::<u64>().ok() != Some(meta.len()) {
         return false;
+    }
+    if mtime
+        .parse::<u128>()
+        .is_ok_and(|t| t != 0 && t == mtime_ns(&meta))
+    {
+        return true;
     }
     pipeline::read_regular(output, meta.len()).is_ok_and(|b| hex(&Sha256::digest(&b)) == sum)
 }
@@ -242,7 +263,7 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
     if let Some(d) = kp.parent() {
         let _ = std::fs::create_dir_all(d);
     }
-    let _ = pipeline::write_atomic(&kp, key_text(&key, &pdf).as_bytes());
+    let _ = pipeline::write_atomic(&kp, key_text(&key, &pdf, &job.output).as_bytes());
     Outcome::Built {
         output: job.output.clone(),
         seconds: t0.elapsed().as_secs_f64(),
@@ -276,11 +297,12 @@ fn output_place(out: &Path) -> PathBuf {
 /// Checks a plan before anything is written: every output may be written
 /// ([`pipeline::check_output`] against all inputs) and no two notebooks write one PDF.
 pub fn check_plan(jobs: &[Job]) -> Vec<Failure> {
-    let inputs: Vec<&Path> = jobs.iter().map(|j| j.notebook.as_path()).collect();
+    let paths: Vec<&Path> = jobs.iter().map(|j| j.notebook.as_path()).collect();
+    let inputs = pipeline::Inputs::of(&paths);
     let mut errors = Vec::new();
     let mut seen: std::collections::HashMap<PathBuf, &Path> = std::collections::HashMap::new();
     for j in jobs {
-        if let Err(f) = pipeline::check_output(&j.output, &inputs) {
+        if let Err(f) = pipeline::check_output_against(&j.output, &inputs) {
             errors.push(f);
             continue;
         }

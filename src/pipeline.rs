@@ -550,7 +550,7 @@ pub fn default_output(path: &Path) -> PathBuf {
 
 /// The identity of an existing file: (device, inode).
 #[cfg(unix)]
-fn file_identity(path: &Path) -> Option<(u64, u64)> {
+fn file_identity(path: &Path) -> Option<FileId> {
     use std::os::unix::fs::MetadataExt;
     let meta = std::fs::metadata(path).ok()?;
     Some((meta.dev(), meta.ino()))
@@ -558,7 +558,7 @@ fn file_identity(path: &Path) -> Option<(u64, u64)> {
 
 /// The identity of an existing file: its canonical path.
 #[cfg(not(unix))]
-fn file_identity(path: &Path) -> Option<PathBuf> {
+fn file_identity(path: &Path) -> Option<FileId> {
     path.canonicalize().ok()
 }
 
@@ -566,6 +566,25 @@ fn file_identity(path: &Path) -> Option<PathBuf> {
 /// the `inputs` (also through a link or `..`), one that is not a regular file, and an
 /// existing file that is not a PDF (does not start with `%PDF-`). benchrec replaces only PDFs.
 pub fn check_output(out: &Path, inputs: &[&Path]) -> Result<(), Failure> {
+    check_output_against(out, &Inputs::of(inputs))
+}
+
+/// The notebooks of a build with their file identities, taken once.
+pub struct Inputs<'a>(Vec<(&'a Path, Option<FileId>)>);
+
+#[cfg(unix)]
+type FileId = (u64, u64);
+#[cfg(not(unix))]
+type FileId = PathBuf;
+
+impl<'a> Inputs<'a> {
+    pub fn of(paths: &[&'a Path]) -> Self {
+        Inputs(paths.iter().map(|p| (*p, file_identity(p))).collect())
+    }
+}
+
+/// [`check_output`] against inputs whose identities are already known.
+pub fn check_output_against(out: &Path, inputs: &Inputs) -> Result<(), Failure> {
     let refuse = |why: String| {
         Err(io_fail(
             out,
@@ -576,10 +595,7 @@ pub fn check_output(out: &Path, inputs: &[&Path]) -> Result<(), Failure> {
         return Ok(());
     };
     if let Some(id) = file_identity(out) {
-        if let Some(nb) = inputs
-            .iter()
-            .find(|i| file_identity(i).as_ref() == Some(&id))
-        {
+        if let Some((nb, _)) = inputs.0.iter().find(|(_, i)| i.as_ref() == Some(&id)) {
             return refuse(format!(
                 "the output is the notebook {} itself",
                 nb.display()
