@@ -890,7 +890,7 @@ mod tests {
         assert!(out
             .flags
             .iter()
-            .any(|f| f.message.contains("do not close a triangle")));
+            .any(|f| f.message.contains("close no triangle")));
         assert!(out
             .flags
             .iter()
