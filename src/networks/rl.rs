@@ -12,14 +12,15 @@
 //! computed in the same propagation as the rows so shared gains and R stay correlated; their
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
-use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
 use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{
-    correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, Measured, Model,
+    correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, McInterval, Measured,
+    Model,
 };
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
@@ -233,6 +234,34 @@ fn open_triangle(c: f64, bi: &BlockInputs, g: usize, x: &[f64]) -> Option<String
     })
 }
 
+/// Inverse-variance weights as (u_min/u_i)², in (0, 1] so no 1/u² can overflow; equal
+/// weights when some row is exact.
+fn weights_of(us: &[f64]) -> Vec<f64> {
+    let umin = us.iter().copied().fold(f64::INFINITY, f64::min);
+    match us
+        .iter()
+        .map(|u| ratio(umin, *u).map(|r| r * r))
+        .collect::<Option<Vec<f64>>>()
+    {
+        Some(w) if umin > 0.0 => w,
+        _ => vec![1.0; us.len()],
+    }
+}
+
+/// The flag for Monte Carlo trials left out of a row because their triangle did not close.
+fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<Flag> {
+    (iv.dropped > 0).then(|| Flag {
+        span: grp.map(|gr| gr.span),
+        message: format!(
+            "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
+            f.map(fmt_hz).unwrap_or_default(),
+            iv.dropped,
+            iv.trials + iv.dropped,
+            if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
+        ),
+    })
+}
+
 fn positive(block: &ReadingsBlock) -> Vec<Diagnostic> {
     let mut d = Vec::new();
     for s in ["Vs", "VR", "VL"] {
@@ -441,16 +470,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             continue;
         }
         let us: Vec<f64> = idx.iter().map(|&i| p1.results[i].u).collect();
-        // Weights (u_min/u_i)² lie in (0, 1], so no 1/u² can overflow.
-        let umin = us.iter().copied().fold(f64::INFINITY, f64::min);
-        let w: Vec<f64> = match us
-            .iter()
-            .map(|u| ratio(umin, *u).map(|r| r * r))
-            .collect::<Option<Vec<f64>>>()
-        {
-            Some(w) if umin > 0.0 => w,
-            _ => vec![1.0; idx.len()], // some row exact: plain mean
-        };
+        let w = weights_of(&us);
         let sw: f64 = w.iter().sum();
         weights.push((
             name,
@@ -562,18 +582,10 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         let f = bi.groups.get(g).and_then(|gr| gr.f);
         let mut unvalidated = Vec::new();
         // Every output of a trial is kept or dropped together, so one count serves the row.
-        if let Some(iv) = mc.first().filter(|iv| iv.dropped > 0) {
-            let drawn = iv.trials + iv.dropped;
-            flags.push(Flag {
-                span: bi.groups.get(g).map(|gr| gr.span),
-                message: format!(
-                    "at {}: {} of {drawn} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
-                    f.map(fmt_hz).unwrap_or_default(),
-                    iv.dropped,
-                    if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
-                ),
-            });
-        }
+        flags.extend(
+            mc.first()
+                .and_then(|iv| dropped_flag(iv, f, bi.groups.get(g))),
+        );
         for (n, interval) in names.iter().zip(mc) {
             if let Some(r) = rows.iter_mut().find(|r| r.f == f && r.name == *n) {
                 r.m.mc = Some(interval);
