@@ -174,7 +174,7 @@ pub fn monte_carlo_with(
     let run = |h: usize, m: usize| run_batch(&sampler, f, nout, seed, h, m);
 
     let mut batches: Vec<Vec<Vec<f64>>> = Vec::new();
-    match trials {
+    let drawn = match trials {
         Some(n) => {
             let n = n.max(2);
             let nb = n.div_ceil(BATCH);
@@ -182,6 +182,7 @@ pub fn monte_carlo_with(
                 .into_par_iter()
                 .map(|h| run(h, if h + 1 == nb { n - h * BATCH } else { BATCH }))
                 .collect();
+            n
         }
         None => {
             let mut stats: Vec<Vec<[f64; 4]>> = Vec::new(); // per batch, per output
@@ -203,13 +204,16 @@ pub fn monte_carlo_with(
                     }
                 }
             }
+            batches.len() * BATCH
         }
-    }
+    };
     (0..nout)
         .into_par_iter()
         .map(|o| {
             let mut all: Vec<f64> = batches.iter().flat_map(|b| b[o].iter().copied()).collect();
-            summarise(&mut all, p)
+            let mut s = summarise(&mut all, p);
+            s.dropped = drawn.saturating_sub(s.trials);
+            s
         })
         .collect()
 }
@@ -248,6 +252,7 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
         let x = v.first().copied().unwrap_or(0.0);
         return McInterval {
             trials: m,
+            dropped: 0,
             mean: x,
             u: 0.0,
             low: x,
@@ -278,6 +283,7 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
     };
     McInterval {
         trials: m,
+        dropped: 0,
         mean,
         u: var.sqrt(),
         low,

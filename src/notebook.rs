@@ -2126,6 +2126,59 @@ fn parse_heading(
     )
 }
 
+/// The plausible range of each column's readings (SI): (symbol, smallest nonzero magnitude,
+/// largest magnitude, both as text, what the column is, why). A reading outside is a typo or
+/// a unit slip, and inside these every reduction stays well within f64 (products of four
+/// extremes stay between 1e-100 and 1e100). The limits are common practice for bench AC work
+/// with a signal generator, a true-RMS meter and a display, set wide.
+const RANGES: &[(&str, f64, f64, &str, &str, &str, &str)] = &[
+    ("f", 1e-3, 1e10, "1 mHz", "10 GHz", "a frequency",
+     "below 1 mHz one period lasts over a quarter of an hour and no RMS meter settles; above 10 GHz parts are no longer lumped"),
+    ("Vs", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VR", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VC", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VL", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("V", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("I", 1e-12, 1e4, "1 pA", "10 kA", "a current",
+     "no bench meter resolves less than a picoampere, and 10 kA is beyond any bench source"),
+    ("phi", 0.0, 2.0 * std::f64::consts::PI, "", "360°", "a phase angle",
+     "one turn is the most a phase can differ by"),
+    ("shift", 1e-6, 1e3, "1e-6 div", "1000 div", "a trace shift",
+     "a display has tens of divisions, read to a tenth or so"),
+    ("period", 1e-3, 1e3, "0.001 div", "1000 div", "a trace period",
+     "a display has tens of divisions, read to a tenth or so"),
+];
+const VOLT_WHY: &str =
+    "no bench voltmeter resolves less than a picovolt, and a megavolt is beyond any bench source";
+
+/// A reading outside its column's plausible range ([`RANGES`]), said at the cell. Zero passes:
+/// the networks refuse a zero where it matters, with their own reasons.
+fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Diagnostic> {
+    let &(_, lo, hi, lo_t, hi_t, what, why) = RANGES.iter().find(|r| r.0 == sym)?;
+    let m = v.abs();
+    let (msg, expected) = if m > hi {
+        (
+            format!("`{text}` is too large to compute with: {what} must be at most {hi_t}"),
+            format!("{what} of at most {hi_t}"),
+        )
+    } else if m != 0.0 && m < lo {
+        (
+            format!("`{text}` is too small to compute with: {what} must be at least {lo_t}"),
+            format!("{what} of at least {lo_t}"),
+        )
+    } else {
+        return None;
+    };
+    Some(
+        Diagnostic::new(at, format!("column `{sym}`: {msg}"))
+            .expected(expected)
+            .found(format!("`{text}`"))
+            .help(format!(
+                "the limits are magnitudes; {why} (common practice)"
+            )),
+    )
+}
+
 struct BlockCtx<'a> {
     src: &'a str,
     defined: &'a Defined,
@@ -2472,6 +2525,8 @@ fn parse_block(
                                 .expected("a positive value")
                                 .found(format!("`{text}`")),
                         );
+                    } else if let Some(dg) = out_of_range(sym, q.value, text, cspan) {
+                        d.push(dg);
                     }
                     cells.push(Cell {
                         value: q.value,
@@ -2577,6 +2632,79 @@ fn parse_block(
 }
 
 // ---------------------------------------------------------------------------------------------
+// Fences the Markdown reader does not see as readings blocks.
+
+/// Whether a code block label is a near miss of `readings` (other case, a typo, a colon).
+fn near_readings(word: &str) -> bool {
+    !word.is_empty() && suggest(word, &["readings"]).is_some()
+}
+
+/// `(offset of the fence, label)` when a line opens a fence (``` or ~~~) labelled like
+/// `readings`.
+fn readings_fence(line: &str) -> Option<(usize, &str)> {
+    let t = line.trim_start();
+    let ch = t.chars().next().filter(|c| *c == '`' || *c == '~')?;
+    let n = t.chars().take_while(|c| *c == ch).count();
+    if n < 3 {
+        return None;
+    }
+    let word = t[n..].split_whitespace().next()?;
+    (word == "readings" || near_readings(word)).then_some((line.len() - t.len(), word))
+}
+
+fn misnamed_fence(src: &str, block: Span, word: &str) -> Diagnostic {
+    let line_end = src[block.start..block.end]
+        .find('\n')
+        .map_or(block.end, |i| block.start + i);
+    let lead = src[block.start..line_end].len() - src[block.start..line_end].trim_start().len();
+    let why = if word.eq_ignore_ascii_case("readings") {
+        "the label is case-sensitive"
+    } else {
+        "the label is misspelt"
+    };
+    Diagnostic::new(
+        Span::new(block.start + lead, line_end),
+        format!("a code block labelled {} is not read as readings: {why}", short(word)),
+    )
+    .expected("the label `readings` exactly (lower case) for a block to reduce, or another label for plain code")
+    .found(short(word))
+}
+
+#[derive(Clone, Copy)]
+enum Hidden {
+    Html,
+    Indented,
+}
+
+/// Reports every readings fence inside an HTML block or an indented code block, where
+/// Markdown reads it as raw HTML or plain code and the block would be ignored.
+fn hidden_fences(src: &str, region: Span, kind: Hidden, d: &mut Vec<Diagnostic>) {
+    // From the start of the first line, so an indent is counted whole.
+    let from = src[..region.start].rfind('\n').map_or(0, |i| i + 1);
+    for l in split_lines(src, from, region.end) {
+        let Some((off, word)) = readings_fence(line_text(src, &l)) else {
+            continue;
+        };
+        let at = Span::new(l.start + off, content_end(src, &l).max(l.start + off));
+        d.push(match kind {
+            Hidden::Html => Diagnostic::new(
+                at,
+                "this readings fence sits inside an HTML block, where Markdown is not read: the block would be ignored",
+            )
+            .expected("a blank line between the HTML tag (e.g. `<details>`) and the fence, and one after the closing fence")
+            .found(format!("{} inside HTML", short(word))),
+            Hidden::Indented => Diagnostic::new(
+                at,
+                "this readings fence is indented four or more spaces, so Markdown reads it as indented plain code: the block would be ignored",
+            )
+            .expected("the fence at most three spaces from the margin")
+            .found(format!("{} indented {off} spaces", short(word)))
+            .help("to show a readings block as an example, put it inside a ````text fence"),
+        });
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
 // The notebook.
 
 /// Parses a notebook; on any problem returns every diagnostic found (all in one pass).
@@ -2642,10 +2770,20 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
     let mut prev = base;
     let mut depth = 0usize;
     for (ev, range) in Parser::new_ext(md, Options::ENABLE_TABLES).into_offset_iter() {
+        let here = Span::new(base + range.start, base + range.end);
         match ev {
+            Event::Html(_) => hidden_fences(&source, here, Hidden::Html, &mut d),
+            Event::Start(Tag::CodeBlock(CodeBlockKind::Indented)) => {
+                hidden_fences(&source, here, Hidden::Indented, &mut d);
+                depth += 1;
+            }
             Event::Start(tag) => {
                 if let Tag::CodeBlock(CodeBlockKind::Fenced(info)) = &tag {
-                    if info.split_whitespace().next() == Some("readings") {
+                    let word = info.split_whitespace().next().unwrap_or("");
+                    if word != "readings" && near_readings(word) {
+                        d.push(misnamed_fence(&source, here, word));
+                    }
+                    if word == "readings" {
                         let r = Span::new(base + range.start, base + range.end);
                         if depth > 0 {
                             let open_end = source[r.start..r.end]

@@ -78,7 +78,11 @@ pub struct BudgetLine {
 /// Coverage interval from a Monte Carlo run (JCGM 101).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct McInterval {
+    /// Trials kept (all outputs finite).
     pub trials: usize,
+    /// Trials drawn but left out because an output was not finite there (a model that is
+    /// undefined for part of the input distribution, e.g. a triangle that does not close).
+    pub dropped: usize,
     pub mean: f64,
     pub u: f64,
     pub low: f64,
@@ -101,6 +105,19 @@ pub struct Measured {
     pub expanded: f64,
     pub budget: Vec<BudgetLine>,
     pub mc: Option<McInterval>,
+}
+
+/// `num / den` when that is a finite number; `None` for a zero or non-finite divisor or a
+/// quotient beyond f64. Every ratio the reduction prints (a relative uncertainty, a ratio to a
+/// result that may be zero) goes through this, so a non-finite number stops where it arises.
+pub fn ratio(num: f64, den: f64) -> Option<f64> {
+    let q = num / den;
+    (den != 0.0 && q.is_finite()).then_some(q)
+}
+
+/// Relative standard uncertainty u(y)/|y|; `None` when y is zero or the ratio is not finite.
+pub fn relative_u(m: &Measured) -> Option<f64> {
+    ratio(m.u, m.value.abs())
 }
 
 /// Above this many degrees of freedom the normal quantile is used (the t quantile differs

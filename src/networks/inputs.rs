@@ -178,8 +178,12 @@ pub fn fmt_hz(f: f64) -> String {
 
 /// `v` to `sig` significant digits, trailing zeros trimmed.
 pub fn fmt_sig(v: f64, sig: i32) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return format!("{v}");
+    // The last line of defence for flag text: callers guard their numbers at the source.
+    if !v.is_finite() {
+        return "(not a finite number)".to_string();
+    }
+    if v == 0.0 {
+        return "0".to_string();
     }
     let mag = v.abs().log10().floor() as i32;
     let dec = (sig - 1 - mag).max(0) as usize;

@@ -12,7 +12,7 @@ pub mod z;
 use crate::diag::{Diagnostic, Span};
 use crate::notebook::{Instrument, Item, Network, Notebook, Part, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::Measured;
+use crate::uncertainty::{McInterval, Measured};
 use chrono::NaiveDate;
 use std::collections::BTreeMap;
 
@@ -132,7 +132,10 @@ pub fn reduce(nb: &Notebook) -> Result<Reduction, Vec<Diagnostic>> {
     for item in &nb.items {
         if let Item::Readings(b) = item {
             match reduce_block(&ctx, b) {
-                Ok(r) => blocks.push(r),
+                Ok(mut r) => {
+                    fence(&mut r);
+                    blocks.push(r)
+                }
                 Err(d) => diags.extend(d),
             }
         }
@@ -152,4 +155,77 @@ pub fn reduce_block(ctx: &Context, b: &ReadingsBlock) -> Result<BlockResult, Vec
         Network::RL => rl::reduce(ctx, b),
         Network::RLC => rlc::reduce(ctx, b),
     }
+}
+
+/// Whether every number of `m` (value, u, k, U, ν, budget, Monte Carlo) is finite; ν = ∞ is
+/// written `None`, so a finite `Some` is required.
+fn all_finite(m: &Measured) -> bool {
+    let nu = |d: Option<f64>| d.is_none_or(f64::is_finite);
+    [m.value, m.u, m.k, m.expanded]
+        .iter()
+        .all(|x| x.is_finite())
+        && nu(m.dof)
+        && m.budget.iter().all(|b| {
+            [b.estimate, b.u, b.sensitivity, b.contribution]
+                .iter()
+                .all(|x| x.is_finite())
+                && nu(b.dof)
+        })
+        && m.mc.as_ref().is_none_or(mc_finite)
+}
+
+fn mc_finite(mc: &McInterval) -> bool {
+    [mc.mean, mc.u, mc.low, mc.high]
+        .iter()
+        .all(|x| x.is_finite())
+}
+
+/// The last check before a block result goes to judging: no non-finite number passes. The
+/// networks guard each quotient, root and ratio where it arises; anything they missed is left
+/// out here with a flag that names it, never printed as inf or NaN and never dropped silently.
+pub fn fence(b: &mut BlockResult) {
+    let mut flags = Vec::new();
+    let mut say = |what: String| {
+        flags.push(Flag {
+            span: None,
+            message: format!(
+                "{what} is left out: it could not be computed as a finite number (an internal guard missed this: please report it with the notebook)"
+            ),
+        })
+    };
+    let label = |r: &NamedResult| match r.f {
+        Some(f) => format!("{} at {}", r.name, inputs::fmt_hz(f)),
+        None => format!("{} (block)", r.name),
+    };
+    for list in [&mut b.rows, &mut b.results] {
+        for r in list.iter_mut() {
+            if r.m.mc.as_ref().is_some_and(|mc| !mc_finite(mc)) {
+                r.m.mc = None;
+                say(format!("the Monte Carlo interval of {}", label(r)));
+            }
+        }
+        list.retain(|r| {
+            let ok = all_finite(&r.m) && r.f.is_none_or(f64::is_finite);
+            if !ok {
+                say(label(r));
+            }
+            ok
+        });
+    }
+    b.correlations.retain(|c| {
+        let ok = c.r.is_finite() && c.f.is_none_or(f64::is_finite);
+        if !ok {
+            say(format!("the correlation of {} and {}", c.a, c.b));
+        }
+        ok
+    });
+    // Plot points repeat results already checked above; a bad point is simply not drawn.
+    for (_, pts) in &mut b.plot.series {
+        pts.retain(|p| p.0.is_finite() && p.1.is_finite() && p.2.is_finite());
+    }
+    for (_, pts) in &mut b.plot.curves {
+        pts.retain(|p| p.0.is_finite() && p.1.is_finite());
+    }
+    b.plot.markers.retain(|m| m.1.is_finite());
+    b.flags.extend(flags);
 }

@@ -12,13 +12,16 @@
 //! computed in the same propagation as the rows so shared gains and R stay correlated; their
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
-use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
 use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::{correlation, dist_of, propagate, type_b, Dist, Input, Measured, Model};
+use crate::uncertainty::{
+    correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, McInterval, Measured,
+    Model,
+};
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
@@ -190,6 +193,75 @@ fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Opt
     Some(Input::type_b(name, dcr.value, u, Dist::Rectangular))
 }
 
+/// Within this of ±1, cos θ is taken as exactly ±1: readings of six or seven digits cannot
+/// tell a flat triangle from one this close to flat (common practice).
+const FLAT: f64 = 1e-9;
+
+/// Why the voltage triangle of row group `g` does not close, in words; `None` when it does.
+/// A flat triangle (Vs = VR + VL, θ = 0, or Vs = |VR − VL|, θ = 180°) has sin θ = 0 and an
+/// infinite sensitivity of sin θ to cos θ, so it gives no L either.
+fn open_triangle(c: f64, bi: &BlockInputs, g: usize, x: &[f64]) -> Option<String> {
+    let (vs, vr, vl) = (
+        bi.voltage("Vs", g, x),
+        bi.voltage("VR", g, x),
+        bi.voltage("VL", g, x),
+    );
+    let v = |x: f64| fmt_sig(x, 6);
+    if c.abs() > 1.0 + FLAT {
+        return Some(if c > 0.0 {
+            format!(
+                "Vs = {} V is above VR + VL = {} V (cos θ = {})",
+                v(vs),
+                v(vr + vl),
+                fmt_sig(c, 4)
+            )
+        } else {
+            format!(
+                "Vs = {} V is below |VR − VL| = {} V (cos θ = {})",
+                v(vs),
+                v((vr - vl).abs()),
+                fmt_sig(c, 4)
+            )
+        });
+    }
+    if c.abs() < 1.0 - FLAT {
+        return None;
+    }
+    Some(if c > 0.0 {
+        "Vs = VR + VL, so the coil's angle is 0".to_string()
+    } else {
+        "Vs = |VR − VL|, so the coil's angle would be 180°, which no passive coil has".to_string()
+    })
+}
+
+/// Inverse-variance weights as (u_min/u_i)², in (0, 1] so no 1/u² can overflow; equal
+/// weights when some row is exact.
+fn weights_of(us: &[f64]) -> Vec<f64> {
+    let umin = us.iter().copied().fold(f64::INFINITY, f64::min);
+    match us
+        .iter()
+        .map(|u| ratio(umin, *u).map(|r| r * r))
+        .collect::<Option<Vec<f64>>>()
+    {
+        Some(w) if umin > 0.0 => w,
+        _ => vec![1.0; us.len()],
+    }
+}
+
+/// The flag for Monte Carlo trials left out of a row because their triangle did not close.
+fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<Flag> {
+    (iv.dropped > 0).then(|| Flag {
+        span: grp.map(|gr| gr.span),
+        message: format!(
+            "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
+            f.map(fmt_hz).unwrap_or_default(),
+            iv.dropped,
+            iv.trials + iv.dropped,
+            if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
+        ),
+    })
+}
+
 fn positive(block: &ReadingsBlock) -> Vec<Diagnostic> {
     let mut d = Vec::new();
     for s in ["Vs", "VR", "VL"] {
@@ -270,13 +342,12 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     for (g, grp) in bi.groups.iter().enumerate() {
         let f = grp.f.unwrap_or(f64::NAN);
         let (c, uc) = (pc.values[g], pc.results[g].expanded);
-        if c.abs() > 1.0 {
+        if let Some(why) = open_triangle(c, &bi, g, &x0) {
             flags.push(Flag {
                 span: Some(grp.span),
                 message: format!(
-                    "at {}: the voltages do not close a triangle (cos θ = {}): the three-voltmeter results of this row are not computed",
+                    "at {}: the three readings close no triangle: {why}: Rac, XL, L and Q cannot be inferred from this row and are left out",
                     fmt_hz(f),
-                    fmt_sig(c, 4)
                 ),
             });
         } else if c < -uc {
@@ -399,11 +470,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             continue;
         }
         let us: Vec<f64> = idx.iter().map(|&i| p1.results[i].u).collect();
-        let w: Vec<f64> = if us.iter().all(|u| *u > 0.0) {
-            us.iter().map(|u| 1.0 / (u * u)).collect()
-        } else {
-            vec![1.0; idx.len()] // some row exact: plain mean
-        };
+        let w = weights_of(&us);
         let sw: f64 = w.iter().sum();
         weights.push((
             name,
@@ -514,6 +581,11 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         );
         let f = bi.groups.get(g).and_then(|gr| gr.f);
         let mut unvalidated = Vec::new();
+        // Every output of a trial is kept or dropped together, so one count serves the row.
+        flags.extend(
+            mc.first()
+                .and_then(|iv| dropped_flag(iv, f, bi.groups.get(g))),
+        );
         for (n, interval) in names.iter().zip(mc) {
             if let Some(r) = rows.iter_mut().find(|r| r.f == f && r.name == *n) {
                 r.m.mc = Some(interval);
@@ -549,20 +621,14 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .position(|o| matches!(o, Out::Row(gg, nn) if *gg == g && *nn == n))
             .and_then(|k| p.results.get(k))
     };
-    let rel = |m: &Measured| {
-        if m.value != 0.0 {
-            m.u / m.value.abs()
-        } else {
-            f64::INFINITY
-        }
-    };
     for (g, grp) in bi.groups.iter().enumerate() {
         let fs = grp.f.map(fmt_hz).unwrap_or_default();
         let mut big = Vec::new();
         for n in ["L", "Rac"] {
-            if let Some(m) = get(g, n) {
-                if rel(m) > REL_U_LIMIT {
-                    big.push(format!("{n} ({} %)", fmt_sig(100.0 * rel(m), 2)));
+            // A zero Rac (cos θ = 0) has no relative u; the cos θ flag above says so.
+            if let Some(r) = get(g, n).and_then(relative_u) {
+                if r > REL_U_LIMIT {
+                    big.push(format!("{n} ({} %)", fmt_sig(100.0 * r, 2)));
                 }
             }
         }
@@ -575,8 +641,8 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 ),
             });
         }
-        if let (Some(a), Some(b)) = (get(g, "L"), get(g, "L_dcr")) {
-            let (ra, rb) = (rel(a), rel(b));
+        let rel_pair = (get(g, "L").map(relative_u), get(g, "L_dcr").map(relative_u));
+        if let (Some(Some(ra)), Some(Some(rb))) = rel_pair {
             // Within 5 % of each other the two are reported as alike.
             let verdict = if (ra - rb).abs() <= 0.05 * ra.max(rb) {
                 "the two methods are about equally well conditioned".to_string()
@@ -836,7 +902,7 @@ mod tests {
         assert!(out
             .flags
             .iter()
-            .any(|f| f.message.contains("do not close a triangle")));
+            .any(|f| f.message.contains("close no triangle")));
         assert!(out
             .flags
             .iter()

@@ -4,12 +4,12 @@
 //! their correlations; R, X, Z and their correlations come from one propagation. With an `f`
 //! column there is one set per distinct f (per-frequency results); without, one block set.
 
-use super::inputs::{BlockInputs, Spec};
-use super::{BlockResult, Context, Correlation, NamedResult, PlotData};
+use super::inputs::{fmt_hz, BlockInputs, Group, Spec};
+use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::{correlation, propagate_sparse};
+use crate::uncertainty::{correlation, propagate_sparse, Measured};
 
 pub const SPEC: Spec<'static> = Spec {
     network: "Z",
@@ -17,6 +17,39 @@ pub const SPEC: Spec<'static> = Spec {
     optional: &[],
     resistor: false,
 };
+
+/// A passive part has R = |Z| cos φ ≥ 0, i.e. |φ| ≤ 90°. Flags a group whose R is negative:
+/// beyond its expanded uncertainty R and X are left out (false), within it they are kept.
+/// Flagged, not refused, as RL flags a voltage triangle that does not close: the readings
+/// are each possible, their combination is not.
+fn passive_check(block: &ReadingsBlock, grp: &Group, r: &Measured, flags: &mut Vec<Flag>) -> bool {
+    if r.value >= 0.0 {
+        return true;
+    }
+    let phi = block.col("phi").and_then(|c| {
+        let row = block.rows.get(*grp.rows.first()?)?;
+        row.cells.get(c)
+    });
+    let at = grp
+        .f
+        .map(|f| format!("at {}: ", fmt_hz(f)))
+        .unwrap_or_default();
+    let read = phi.map_or(String::new(), |c| format!(" (φ = {})", c.text));
+    let beyond = r.value < -r.expanded;
+    flags.push(Flag {
+        span: phi.map(|c| c.span).or(Some(grp.span)),
+        message: if beyond {
+            format!(
+                "{at}|φ| is above 90°{read}, so R = |Z| cos φ would be negative: a passive part's resistance cannot be negative; check the probe polarity or the phase sign convention. R and X are left out for this reading; |Z| is kept"
+            )
+        } else {
+            format!(
+                "{at}|φ| is above 90°{read} but within its uncertainty of it: R is negative yet zero within its expanded uncertainty (a nearly lossless part), and is reported as computed"
+            )
+        },
+    });
+    !beyond
+}
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
     let bi = BlockInputs::build(ctx, block, &SPEC)?;
@@ -68,11 +101,19 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let mut correlations = Vec::new();
     let mut plot = PlotData::default();
     let mut series: Vec<Vec<(f64, f64, f64)>> = vec![Vec::new(); 3];
+    let mut flags = bi.flags.clone();
     for (g, grp) in bi.groups.iter().enumerate() {
+        let passive = p
+            .results
+            .get(3 * g)
+            .is_none_or(|r| passive_check(block, grp, r, &mut flags));
         for (k, (name, unit)) in names.iter().enumerate() {
             let Some(m) = p.results.get(3 * g + k) else {
                 continue;
             };
+            if k < 2 && !passive {
+                continue;
+            }
             let r = NamedResult {
                 name: name.to_string(),
                 f: grp.f,
@@ -89,7 +130,12 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 None => results.push(r),
             }
         }
-        for (a, b) in [(0usize, 1usize), (0, 2), (1, 2)] {
+        let pairs: &[(usize, usize)] = if passive {
+            &[(0, 1), (0, 2), (1, 2)]
+        } else {
+            &[]
+        };
+        for &(a, b) in pairs {
             correlations.push(Correlation {
                 a: names[a].0.into(),
                 b: names[b].0.into(),
@@ -109,7 +155,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         rows,
         results,
         correlations,
-        flags: bi.flags,
+        flags,
         plot,
     })
 }

@@ -125,6 +125,13 @@ case("cell-infinity-negative", sub("1.1989", "⟦-Infinity"), "finite", "-Infini
 case("cell-out-of-range", sub("0.9015", "⟦1e999"), "range|finite", "a number beyond f64")
 case("cell-frequency-negative", sub("800     0.9015", "⟦-800    0.9015"), "positive|greater than", "negative frequency")
 case("cell-frequency-zero", sub("800     0.9015", "⟦0       0.9015"), "positive|greater than", "zero frequency")
+# --- numbers beyond what can be computed, and fences the Markdown reader would hide
+case("cell-frequency-subnormal", sub("800     0.9015", "⟦1e-320  0.9015"), "too small to compute", "a subnormal frequency, 1e-320 Hz")
+case("cell-voltage-absurd", sub("1.1989", "⟦1e300"), "too large to compute", "VC = 1e300 V")
+case("fence-inside-html", sub("```readings\n", "<details>\n⟦```readings\n").replace("The block value is `=blk.C`.", "</details>"), "inside an HTML block", "a readings fence right under <details>")
+case("fence-wrong-case", sub("```readings\n", "⟦```Readings\n").replace("The block value is `=blk.C`.", ""), "case-sensitive", "the label Readings, capital R")
+case("fence-misspelt", sub("```readings\n", "⟦```reading\n").replace("The block value is `=blk.C`.", ""), "misspelt", "the label reading, without s")
+case("fence-indented-four", (FM + PROSE + "".join("    " + l + "\n" for l in (HEAD + TABLE + "```").split("\n"))).replace("    ```readings", "    ⟦```readings", 1), "indented four or more", "a readings block indented as code")
 # --- prose
 case("prose-cite-missing-block", sub("The block value is `=blk.C`.", "The block value is ⟦`=nope.C`."), "no readings block|no block|not found|unknown", "citation of a block that does not exist")
 case("prose-cite-missing-result", sub("The block value is `=blk.C`.", "The block value is ⟦`=blk.Zq`."), "no block result|no result|has no|not found", "citation of a result that does not exist")
