@@ -4,7 +4,7 @@
 //! are the invented base notebook of `tests/malformed/ok-minimal.md`, changed as stated.
 
 use std::io::Read;
-use std::path::{Path, PathBuf};
+use std::path::Path;
 use std::process::{Command, Output, Stdio};
 use std::time::{Duration, Instant};
 
