@@ -49,21 +49,7 @@ pub struct SafetyCheck {
     pub span: Option<Span>,
 }
 
-#[derive(Debug, Clone, PartialEq)]
-pub enum SignState {
-    Unsigned,
-    Valid {
-        by: String,
-        on: String,
-        digest: String,
-    },
-    /// Signed, but the readings changed since.
-    Void {
-        by: String,
-        on: String,
-        recorded: String,
-    },
-}
+pub use crate::signoff::SignState;
 
 #[derive(Debug, Clone)]
 pub struct Record {
@@ -428,19 +414,7 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
         return Err(diags);
     }
     let digest = signoff::digest(&nb);
-    let sign = match &nb.front.signoff {
-        None => SignState::Unsigned,
-        Some(s) if s.digest == digest => SignState::Valid {
-            by: s.by.clone(),
-            on: s.on.clone(),
-            digest: s.digest.clone(),
-        },
-        Some(s) => SignState::Void {
-            by: s.by.clone(),
-            on: s.on.clone(),
-            recorded: s.digest.clone(),
-        },
-    };
+    let sign = signoff::state(&nb, &digest);
     let source_digest = signoff::sha256_hex(nb.source.as_bytes());
     Ok(Record {
         notebook: nb,
@@ -453,6 +427,36 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
         citations: cites,
         derating,
     })
+}
+
+/// Everything a signer must acknowledge with a reason (`sign --accept`): every warning flag
+/// ([`crate::networks::Flag::warn`]), every verdict other than pass, and every safety check
+/// over its limit. Empty for a clean record.
+pub fn reservations(rec: &Record) -> Vec<String> {
+    let mut out = Vec::new();
+    for b in &rec.reduction.blocks {
+        for f in b.flags.iter().filter(|f| f.warn) {
+            out.push(format!("block `{}`: {}", b.id, f.message));
+        }
+    }
+    for v in &rec.verdicts {
+        let word = match v.outcome {
+            Outcome::Pass => continue,
+            Outcome::Fail => "fail",
+            Outcome::Inconclusive => "inconclusive",
+        };
+        out.push(format!(
+            "block `{}`: {} of {} is {word}",
+            v.block, v.name, v.part
+        ));
+    }
+    for s in rec.safety.iter().filter(|s| !s.ok) {
+        out.push(format!(
+            "block `{}`: {} of {} exceeds its derated limit",
+            s.block, s.what, s.part
+        ));
+    }
+    out
 }
 
 #[cfg(test)]

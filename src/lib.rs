@@ -3,6 +3,9 @@
 //! Data flows one way: [`notebook`] (parse) → [`networks`] (reduce, pure maths) →
 //! [`judge`] (verdicts, safety, sign-off state) → [`render`] (typst) → the CLI writes the file.
 
+#[cfg(feature = "typeset")]
+pub mod attest;
+#[cfg(feature = "typeset")]
 pub mod batch;
 pub mod diag;
 pub mod export;
@@ -10,8 +13,10 @@ pub mod judge;
 pub mod montecarlo;
 pub mod networks;
 pub mod notebook;
+#[cfg(feature = "typeset")]
 pub mod pipeline;
 pub mod quantity;
+#[cfg(feature = "typeset")]
 pub mod render;
 pub mod signoff;
 pub mod starter;

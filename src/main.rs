@@ -1,8 +1,9 @@
 //! The benchrec command line. Exit status: 0 success, 1 a notebook has problems, 2 usage.
 
+use benchrec::attest::{self, SignRequest};
 use benchrec::batch::{self, Outcome};
 use benchrec::pipeline::{self, Failure};
-use benchrec::{export, signoff, starter};
+use benchrec::{export, starter};
 use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -94,18 +95,31 @@ enum Verb {
         #[arg(long, value_enum, default_value = "json")]
         format: Format,
     },
-    /// Record a sign-off (who, when, digest of the readings) in the notebook's front matter
+    /// Sign a notebook: name, time and digest of its front matter and readings, with an SSH
+    /// key signature when --key is given
     Sign {
         notebook: PathBuf,
-        /// Name of the person signing
+        /// Name or identity of the person signing (as listed in the allowed-signers file)
         #[arg(long)]
         by: String,
-        /// Time of signing (ISO 8601); default: now, in UTC
+        /// Time of signing (ISO 8601 date-time); default: now, in UTC
         #[arg(long)]
         on: Option<String>,
+        /// OpenSSH private key to sign with (ed25519, without a passphrase)
+        #[arg(long, value_name = "PRIVATE_KEY")]
+        key: Option<PathBuf>,
+        /// Sign a record with flags, a verdict other than pass or a safety limit exceeded,
+        /// giving the reason (printed in the sign-off box)
+        #[arg(long, value_name = "REASON")]
+        accept: Option<String>,
     },
-    /// Say whether a record (PDF or notebook) still matches its sign-off digest
-    Verify { path: PathBuf },
+    /// Say what a record's sign-off proves: a notebook, a PDF, or every PDF under a folder
+    Verify {
+        path: PathBuf,
+        /// OpenSSH allowed-signers file: accept only keys listed for the signer's name
+        #[arg(long, value_name = "FILE")]
+        signers: Option<PathBuf>,
+    },
     /// Rebuild a notebook (or every notebook under a folder) each time it is saved
     Watch {
         path: PathBuf,
@@ -145,8 +159,22 @@ fn main() -> ExitCode {
         } => build(&paths, output.as_deref(), force),
         Verb::Check { paths } => check(&paths),
         Verb::Results { path, format } => results(&path, format),
-        Verb::Sign { notebook, by, on } => sign(&notebook, &by, on),
-        Verb::Verify { path } => verify(&path),
+        Verb::Sign {
+            notebook,
+            by,
+            on,
+            key,
+            accept,
+        } => sign(
+            &notebook,
+            &SignRequest {
+                by,
+                on,
+                key,
+                accept,
+            },
+        ),
+        Verb::Verify { path, signers } => verify(&path, signers.as_deref()),
         Verb::Watch { path, max_builds } => watch(&path, max_builds),
         Verb::New { path, record } => new_notebook(&path, record),
         Verb::Completions { shell } => {
@@ -343,81 +371,73 @@ fn results(path: &Path, format: Format) -> ExitCode {
     }
 }
 
-fn sign(path: &Path, by: &str, on: Option<String>) -> ExitCode {
-    let src = match pipeline::read_source(path) {
-        Ok(s) => s,
+fn sign(path: &Path, req: &SignRequest) -> ExitCode {
+    let done = match attest::sign_file(path, req) {
+        Ok(d) => d,
         Err(f) => return fail(&f),
     };
-    let rec = match pipeline::analyse_text(path, &src.text) {
-        Ok(r) => r,
-        Err(f) => return fail(&f),
+    let e = &done.entry;
+    let how = match &e.key {
+        Some(k) => format!("with key {k}"),
+        None => "by name only (no --key: not authenticated)".into(),
     };
-    let on = on.unwrap_or_else(|| chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string());
-    let signed = match signoff::set_signoff(&src.text, by, &on, &rec.digest) {
-        Ok(s) => s,
-        Err(e) => {
-            eprintln!("error: {}: {e}", path.display());
-            return ExitCode::from(1);
-        }
-    };
-    if let Err(e) = pipeline::write_atomic(path, signed.as_bytes()) {
-        eprintln!("error: {}: {e}", path.display());
-        return ExitCode::from(1);
+    say!(
+        "signed {} as {} on {} {how} ({})",
+        done.notebook.display(),
+        e.by,
+        e.on,
+        e.digest
+    );
+    if let Some(a) = &e.accepted {
+        say!("accepted with reservations: {a}");
     }
-    say!("signed {} by {by} on {on} ({})", path.display(), rec.digest);
+    match &done.rebuilt {
+        Some(p) => say!("rebuilt {}", p.display()),
+        None => say!(
+            "no PDF beside it yet: run `benchrec build {}` to make the signed record",
+            path.display()
+        ),
+    }
     ExitCode::SUCCESS
 }
 
-fn verify(path: &Path) -> ExitCode {
-    let bytes = match std::fs::read(path) {
-        Ok(b) => b,
-        Err(e) => {
-            eprintln!("error: {}: {e}", path.display());
-            return ExitCode::from(1);
-        }
-    };
-    let (text, origin) = if bytes.starts_with(b"%PDF") {
-        match signoff::verify_pdf_source(&bytes) {
-            Ok(t) => (t, format!("the notebook embedded in {}", path.display())),
-            Err(e) => {
-                say!("NOT VERIFIED: {}: {e}", path.display());
-                return ExitCode::from(1);
-            }
-        }
-    } else {
-        match pipeline::read_source(path) {
-            Ok(s) => (s.text, path.display().to_string()),
-            Err(f) => return fail(&f),
-        }
-    };
-    let rec = match pipeline::analyse_text(path, &text) {
-        Ok(r) => r,
+fn verify(path: &Path, signers: Option<&Path>) -> ExitCode {
+    let list = match signers.map(attest::read_signers).transpose() {
+        Ok(l) => l,
         Err(f) => return fail(&f),
     };
-    match &rec.notebook.front.signoff {
-        None => {
-            say!("NOT SIGNED: {origin} carries no sign-off");
-            ExitCode::from(1)
+    let with_list = list.is_some();
+    if path.is_dir() {
+        let reports = attest::verify_tree(path, list.as_ref());
+        let mut bad = 0;
+        for r in &reports {
+            if !r.status.ok(with_list) {
+                bad += 1;
+            }
+            say!("{:<13} {}  {}", r.status.word(), r.path.display(), r.detail);
         }
-        Some(s) if s.digest == rec.digest => {
-            say!(
-                "verified: {origin} matches the sign-off by {} on {} ({})",
-                s.by,
-                s.on,
-                s.digest
-            );
+        say!(
+            "{} record(s) checked, {} not valid{}",
+            reports.len(),
+            bad,
+            if with_list {
+                ""
+            } else {
+                " (no --signers: keys were not checked against a list)"
+            }
+        );
+        return if bad == 0 && !reports.is_empty() {
             ExitCode::SUCCESS
-        }
-        Some(s) => {
-            say!(
-                "VOID: {origin} was signed by {} on {} as {}, but its readings now give {}",
-                s.by,
-                s.on,
-                s.digest,
-                rec.digest
-            );
+        } else {
             ExitCode::from(1)
-        }
+        };
+    }
+    let r = attest::verify_file(path, list.as_ref());
+    say!("{}: {}: {}", r.status.word(), r.path.display(), r.detail);
+    if r.status.ok(with_list) {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
     }
 }
 

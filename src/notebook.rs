@@ -131,6 +131,12 @@ pub struct Signoff {
     pub by: String,
     pub on: String,
     pub digest: String,
+    /// Fingerprint of the signing key (`SHA256:…`), when signed with a key.
+    pub key: Option<String>,
+    /// Armored SSH signature (sshsig, namespace `benchrec`) over [`crate::signoff::message`].
+    pub signature: Option<String>,
+    /// The signer's reason for signing a record with warnings or a verdict other than pass.
+    pub accepted: Option<String>,
     pub span: Span,
 }
 
@@ -262,7 +268,8 @@ const PART_KEYS: &[&str] = &[
     "rating",
 ];
 const MEASURED_KEYS: &[&str] = &["value", "by"];
-const SIGNOFF_KEYS: &[&str] = &["by", "on", "digest"];
+const SIGNOFF_KEYS: &[&str] = &["by", "on", "digest", "key", "signature", "accepted"];
+const SIGNOFF_REQUIRED: &[&str] = &["by", "on", "digest"];
 const HEADER_KEYS: &[&str] = &[
     "id", "network", "parts", "meter", "phase", "counter", "note", "source",
 ];
@@ -1481,7 +1488,7 @@ fn signoff(ex: &mut Ex, v: &Value) -> Option<Signoff> {
         }
     }
     let mut ok = true;
-    for k in SIGNOFF_KEYS {
+    for k in SIGNOFF_REQUIRED {
         if !entries.iter().any(|(n, _)| n == k) {
             ok = false;
             ex.err(
@@ -1497,6 +1504,9 @@ fn signoff(ex: &mut Ex, v: &Value) -> Option<Signoff> {
         by: vals.remove("by")?,
         on: vals.remove("on")?,
         digest: vals.remove("digest")?,
+        key: vals.remove("key"),
+        signature: vals.remove("signature"),
+        accepted: vals.remove("accepted"),
         span,
     })
 }

@@ -324,6 +324,7 @@ impl BlockInputs {
             let s = c.symbol.as_str();
             if s != "f" && !used.contains(&s) {
                 bi.flags.push(Flag {
+                    warn: false,
                     span: Some(c.span),
                     message: format!("column {s} is not used by network {}", spec.network),
                 });
@@ -335,6 +336,7 @@ impl BlockInputs {
             if let Some(due) = i.due {
                 if ctx.date > due {
                     bi.flags.push(Flag {
+                        warn: true,
                         span: Some(n.span),
                         message: format!(
                             "readings dated {} were taken after the calibration of {} fell due ({})",
@@ -361,6 +363,7 @@ impl BlockInputs {
                     if let Some(cell) = row.cells.get(fc) {
                         if cell.value > bw {
                             bi.flags.push(Flag {
+                                warn: true,
                                 span: Some(row.span),
                                 message: format!(
                                     "reading at {} is above the bandwidth of {} ({})",
@@ -388,6 +391,7 @@ impl BlockInputs {
                 .and_then(|n| ctx.instruments.get(&n.name).map(|i| (n.name.as_str(), i)));
             if inst.is_none() {
                 bi.flags.push(Flag {
+                    warn: false,
                     span: Some(c.span),
                     message: format!(
                         "no instrument for column {s}: its Type B uncertainty is not included"
@@ -418,6 +422,7 @@ impl BlockInputs {
                             match res {
                                 Some(r) => count_offset = Some((type_b(counts * r, i.distribution), dist_of(i.distribution), "counts")),
                                 None => bi.flags.push(Flag {
+                                    warn: false,
                                     span: Some(i.span),
                                     message: format!(
                                         "accuracy of {iname} has {counts} counts but no resolution in {}: the counts are not included for column {s}",
@@ -442,6 +447,7 @@ impl BlockInputs {
                             ));
                         } else {
                             bi.flags.push(Flag {
+                                warn: false,
                                 span: Some(i.span),
                                 message: format!(
                                     "accuracy of {iname} is in {}, not {}: not applied to column {s}",
@@ -467,6 +473,7 @@ impl BlockInputs {
                             Some(type_b(rd.value, crate::notebook::Distribution::Rectangular));
                     } else if matches!(c.unit, Unit::Div) || matches!(rd.unit, Unit::Div) {
                         bi.flags.push(Flag {
+                            warn: false,
                             span: Some(i.span),
                             message: format!(
                                 "reading half-width of {iname} is in {}, not {}: not applied to column {s}",
@@ -593,6 +600,7 @@ impl BlockInputs {
                     let tol = lim.max(1e-12 * level.abs());
                     if (cell.value - level).abs() > tol {
                         bi.flags.push(Flag {
+                            warn: true,
                             span: Some(cell.span),
                             message: format!(
                                 "Vs = {} V departs from the stated source level {} V by more than the meter's limit (±{} V): the voltages at {} are normalised to {} V",
@@ -759,6 +767,7 @@ fn series_resistor(
             }
             (None, _) => {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(part.span),
                     message: format!(
                         "measured value of {name} names no instrument (`by`): taken as exact"
@@ -770,6 +779,7 @@ fn series_resistor(
                 if let Some(due) = i.due {
                     if ctx.date > due {
                         flags.push(Flag {
+                            warn: true,
                             span: Some(part.span),
                             message: format!(
                                 "{name} was measured with {b}, whose calibration fell due on {due}"
@@ -779,6 +789,7 @@ fn series_resistor(
                 }
                 if i.accuracy.is_none() && i.resolution.is_none() {
                     flags.push(Flag {
+                        warn: false,
                         span: Some(i.span),
                         message: format!("{b} has no accuracy or resolution: the measured value of {name} is taken as exact"),
                     });
@@ -799,6 +810,7 @@ fn series_resistor(
             Some(Tolerance::Absolute(a)) => a.abs(),
             None => {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(part.span),
                     message: format!("{name} has neither a measured value nor a tolerance: its nominal is taken as exact"),
                 });

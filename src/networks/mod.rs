@@ -36,6 +36,10 @@ pub struct Correlation {
 
 #[derive(Debug, Clone, PartialEq)]
 pub struct Flag {
+    /// A warning (a failed consistency check, an overdue or out-of-band instrument, a source
+    /// departure, an impossible reading) rather than a note on the method: `sign` asks for a
+    /// reason (`--accept`) before it signs a record with warnings.
+    pub warn: bool,
     /// Where in the notebook (row or cell), when known.
     pub span: Option<Span>,
     pub message: String,
@@ -187,6 +191,7 @@ pub fn fence(b: &mut BlockResult) {
     let mut flags = Vec::new();
     let mut say = |what: String| {
         flags.push(Flag {
+            warn: true,
             span: None,
             message: format!(
                 "{what} is left out: it could not be computed as a finite number (an internal guard missed this: please report it with the notebook)"

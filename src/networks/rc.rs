@@ -58,6 +58,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let has_phase = bi.has("shift") && bi.has("period");
     if bi.has("shift") != bi.has("period") {
         flags.push(Flag {
+            warn: false,
             span: Some(block.span),
             message: "shift and period are read together: the measured phase is not computed"
                 .into(),
@@ -74,6 +75,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             for (cell, name) in [(r, "VR"), (c, "VC")] {
                 if cell.value > s.value {
                     flags.push(Flag {
+                        warn: true,
                         span: Some(cell.span),
                         message: format!(
                             "{name} = {} V exceeds Vs = {} V, impossible in a series RC: check the readings",
@@ -161,6 +163,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                     s_pm.push(pt);
                     if m.value < -m.expanded || m.value > PI / 2.0 + m.expanded {
                         flags.push(Flag {
+                            warn: true,
                             span: Some(grp.span),
                             message: format!(
                                 "measured phase at {} is {} rad, outside 0 to π/2 for a series RC: check the trace polarity",
@@ -175,6 +178,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                     let vs = bi.voltage("Vs", g, &x0).abs();
                     if m.value.abs() > m.expanded + 1e-9 * vs {
                         flags.push(Flag {
+                            warn: true,
                             span: Some(grp.span),
                             message: format!(
                                 "Kirchhoff check at {}: Vs − √(VR² + VC²) = {} V exceeds its expanded uncertainty {} V",

@@ -139,6 +139,7 @@ fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Opt
         .find(|p| p.kind == PartKind::Inductor);
     let Some(part) = part else {
         flags.push(Flag {
+            warn: false,
             span: Some(block.span),
             message: "no inductor in `parts`: the DC-resistance correction (XL_dcr, L_dcr) is not computed".into(),
         });
@@ -146,6 +147,7 @@ fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Opt
     };
     let Some(dcr) = part.dcr.filter(|q| q.value.is_finite() && q.value >= 0.0) else {
         flags.push(Flag {
+            warn: false,
             span: Some(part.span),
             message: format!(
                 "{} has no `dcr`: the DC-resistance correction (XL_dcr, L_dcr) is not computed",
@@ -171,6 +173,7 @@ fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Opt
         }
         (Some(b), None) => {
             flags.push(Flag {
+                warn: false,
                 span: Some(part.span),
                 message: format!(
                     "unknown instrument {b} for the dcr of {}: dcr taken as exact",
@@ -181,6 +184,7 @@ fn dcr_input(ctx: &Context, block: &ReadingsBlock, flags: &mut Vec<Flag>) -> Opt
         }
         (None, _) => {
             flags.push(Flag {
+                warn: false,
                 span: Some(part.span),
                 message: format!(
                     "dcr of {} names no instrument (`by`): taken as exact",
@@ -251,6 +255,7 @@ fn weights_of(us: &[f64]) -> Vec<f64> {
 /// The flag for Monte Carlo trials left out of a row because their triangle did not close.
 fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<Flag> {
     (iv.dropped > 0).then(|| Flag {
+        warn: false,
         span: grp.map(|gr| gr.span),
         message: format!(
             "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
@@ -344,6 +349,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         let (c, uc) = (pc.values[g], pc.results[g].expanded);
         if let Some(why) = open_triangle(c, &bi, g, &x0) {
             flags.push(Flag {
+                warn: true,
                 span: Some(grp.span),
                 message: format!(
                     "at {}: the three readings close no triangle: {why}: Rac, XL, L and Q cannot be inferred from this row and are left out",
@@ -352,6 +358,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             });
         } else if c < -uc {
             flags.push(Flag {
+                warn: true,
                 span: Some(grp.span),
                 message: format!(
                     "at {}: cos θ = {} is negative beyond its uncertainty (a negative coil resistance): the three-voltmeter results of this row are not computed",
@@ -364,6 +371,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             q_ok[g] = c > 0.0;
             if c <= uc {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(grp.span),
                     message: format!(
                         "at {}: cos θ = {} is zero within its uncertainty: Rac is not resolved{}",
@@ -379,6 +387,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
             if c + uc >= 1.0 {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(grp.span),
                     message: format!("at {}: cos θ is 1 within its uncertainty (XL not resolved); the linear propagation is poor here, see the Monte Carlo interval", fmt_hz(f)),
                 });
@@ -392,6 +401,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 dc_ok[g] = true;
             } else {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(grp.span),
                     message: format!(
                         "at {}: VL = {} V is not above the resistive drop I·dcr = {} V: XL_dcr is not computed",
@@ -606,6 +616,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     }
     if !not_validated.is_empty() {
         flags.push(Flag {
+            warn: false,
             span: Some(block.span),
             message: format!(
                 "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: prefer the Monte Carlo intervals there",
@@ -634,6 +645,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
         if !big.is_empty() {
             flags.push(Flag {
+                warn: false,
                 span: Some(grp.span),
                 message: format!(
                     "at {fs}: three-voltmeter relative standard uncertainty above 20 %: {}",
@@ -652,6 +664,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 "the DC-resistance correction method is better conditioned".to_string()
             };
             flags.push(Flag {
+                warn: false,
                 span: Some(grp.span),
                 message: format!(
                     "at {fs}: {verdict} (u(L)/L = {} % three-voltmeter, {} % with dcr)",
@@ -694,6 +707,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 "Rac is below the DC resistance, which a coil cannot do: check R, dcr and the readings".to_string()
             };
             flags.push(Flag {
+                warn: m.value < -m.expanded,
                 span: Some(block.span),
                 message: format!(
                     "Rac (mean) = {} ohm against dcr = {} ohm: difference {} ± {} ohm (k = {}); {verdict}",
@@ -730,6 +744,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 "from the row uncertainties"
             };
             flags.push(Flag {
+                warn: !c.consistent,
                 span: Some(block.span),
                 message: if c.consistent {
                     format!(

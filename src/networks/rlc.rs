@@ -444,6 +444,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let mut flags = bi.flags.clone();
     if !has_vs {
         flags.push(Flag {
+            warn: false,
             span: Some(block.span),
             message: "no Vs column: |Y| uses the stated source level, taken as exact".into(),
         });
@@ -596,6 +597,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 }
             }
             Err(e) => flags.push(Flag {
+                warn: false,
                 span: Some(block.span),
                 message: format!("the read-off points have no uncertainty: {e}"),
             }),
@@ -603,6 +605,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         for (side, name) in [(ro.low, "lower"), (ro.high, "upper")] {
             if side.is_none() {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(block.span),
                     message: format!("the sweep does not reach the {name} half-power point: it is not read off the data"),
                 });
@@ -613,6 +616,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     // The fit.
     match fit_resonance(&fs, &ys, &u_w) {
         Err(e) => flags.push(Flag {
+            warn: true,
             span: Some(block.span),
             message: format!("RLC fit: {e}"),
         }),
@@ -683,6 +687,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
             if !unvalidated.is_empty() {
                 flags.push(Flag {
+                    warn: false,
                     span: Some(block.span),
                     message: format!(
                         "the GUM intervals of {} differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo intervals",
@@ -696,6 +701,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 .map(|d| d.inverse_cdf(0.95) / nu.max(1) as f64)
                 .unwrap_or(f64::INFINITY);
             flags.push(Flag {
+                warn: false,
                 span: Some(block.span),
                 message: format!(
                     "RLC fit: χ²/ν = {} (ν = {nu}), weights from {weights_note}; the covariance is not scaled by χ²/ν{}",
@@ -773,12 +779,14 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                         }
                     }
                     Err(e) => flags.push(Flag {
+                        warn: false,
                         span: Some(block.span),
                         message: format!("phase zero crossing not computed: {e}"),
                     }),
                 }
             }
             None => flags.push(Flag {
+                warn: false,
                 span: Some(block.span),
                 message:
                     "the measured phase does not change sign over the sweep: no f0 from the phase"
@@ -797,6 +805,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         let qp = (l / c).sqrt() / r;
         if f0p.is_finite() && qp.is_finite() {
             flags.push(Flag {
+                warn: false,
                 span: Some(block.span),
                 message: format!(
                     "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {} ohm)",

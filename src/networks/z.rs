@@ -37,6 +37,7 @@ fn passive_check(block: &ReadingsBlock, grp: &Group, r: &Measured, flags: &mut V
     let read = phi.map_or(String::new(), |c| format!(" (φ = {})", c.text));
     let beyond = r.value < -r.expanded;
     flags.push(Flag {
+        warn: true,
         span: phi.map(|c| c.span).or(Some(grp.span)),
         message: if beyond {
             format!(

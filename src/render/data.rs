@@ -663,12 +663,31 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         .collect();
     let sign = match &record.sign {
         SignState::Unsigned => json!({ "state": "unsigned", "reason": "not signed" }),
-        SignState::Valid { by, on, digest } => {
-            json!({ "state": "valid", "by": by, "on": on, "digest": digest })
-        }
+        SignState::NameOnly {
+            by,
+            on,
+            digest,
+            accepted,
+        } => json!({
+            "state": "name-only", "by": by, "on": on, "digest": digest, "accepted": accepted,
+        }),
+        SignState::Keyed {
+            by,
+            on,
+            digest,
+            key,
+            accepted,
+        } => json!({
+            "state": "keyed", "by": by, "on": on, "digest": digest, "key": key,
+            "accepted": accepted,
+        }),
         SignState::Void { by, on, recorded } => json!({
             "state": "void", "by": by, "on": on, "recorded": recorded,
             "reason": format!("signed by {by} on {on}, but the readings changed after signing"),
+        }),
+        SignState::Forged { by, on, reason } => json!({
+            "state": "forged", "by": by, "on": on,
+            "reason": format!("the sign-off as {by} is not authentic: {reason}"),
         }),
     };
     let attachment = format!("/{}", attachment_name(&assets.source_name));

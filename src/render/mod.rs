@@ -473,6 +473,7 @@ pub(crate) mod tests {
                     f: Some(1000.0),
                 }],
                 flags: vec![Flag {
+                    warn: false,
                     span: None,
                     message: "row 5: VC near the meter's range limit".into(),
                 }],
@@ -742,15 +743,25 @@ pub(crate) mod tests {
 
     #[test]
     fn signed_and_void_records() {
-        let valid = SignState::Valid {
+        let valid = SignState::NameOnly {
             by: "B. Reviewer".into(),
             on: "2026-02-04".into(),
             digest: "3f".repeat(32),
+            accepted: Some("bridge reading checked by hand".into()),
         };
         let c = compile(&sample_record("x", valid), &Assets::default()).expect("compiles");
         let t = text_of(&c);
         assert!(!t.contains("DRAFT"), "a valid record has no draft mark");
         assert!(t.contains("B. Reviewer"));
+        assert!(t.contains("not authenticated") && t.contains("bridge reading checked by hand"));
+        let forged = SignState::Forged {
+            by: "B. Reviewer".into(),
+            on: "2026-02-04".into(),
+            reason: "the signature does not match".into(),
+        };
+        let t =
+            text_of(&compile(&sample_record("x", forged), &Assets::default()).expect("compiles"));
+        assert!(t.contains("DRAFT") && t.contains("NOT AUTHENTICATED"));
         let void = SignState::Void {
             by: "B. Reviewer".into(),
             on: "2026-02-04".into(),
