@@ -3,6 +3,7 @@
 //! outside the `signoff` entry (the text before it and after it are prefix and suffix).
 #![no_main]
 use benchrec::signoff::{self, Entry};
+
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
@@ -22,24 +23,20 @@ fuzz_target!(|data: &[u8]| {
     let Ok(edited) = signoff::set_signoff(raw, &entry) else {
         return;
     };
-    // Every other byte kept: the edit replaced one contiguous range.
-    let pre = raw
-        .bytes()
-        .zip(edited.bytes())
-        .take_while(|(a, b)| a == b)
-        .count();
-    let post = raw
-        .bytes()
-        .rev()
-        .zip(edited.bytes().rev())
-        .take_while(|(a, b)| a == b)
-        .count()
-        .min(raw.len() - pre.min(raw.len()));
-    let removed = &raw[pre.min(raw.len())..raw.len() - post];
-    assert!(
-        removed.trim().is_empty() || removed.contains("signoff") || raw.len() == pre + post,
-        "the edit removed text that was not a sign-off: {removed:?}"
-    );
+    // Every other byte kept: exactly one range was replaced by the entry, and that range is
+    // the old `signoff` entry (YAML reads it as a mapping with that one key) or empty.
+    let r = signoff::edit::entry_range(raw).expect("set_signoff succeeded");
+    let text = signoff::edit::entry_text(&entry, signoff::edit::line_end(raw));
+    assert_eq!(edited, format!("{}{}{}", &raw[..r.start], text, &raw[r.end..]));
+    let removed = &raw[r];
+    if !removed.is_empty() {
+        match serde_yaml::from_str::<serde_yaml::Value>(removed) {
+            Ok(serde_yaml::Value::Mapping(m)) => {
+                assert!(m.len() == 1 && m.contains_key("signoff"), "removed {removed:?}")
+            }
+            other => panic!("removed {removed:?}, which reads as {other:?}"),
+        }
+    }
     if by.trim().is_empty() || by.chars().any(char::is_control) {
         return; // `sign` refuses these names before it edits.
     }

@@ -19,7 +19,7 @@ fn yaml_quote(s: &str) -> String {
 }
 
 /// The entry as block YAML, two-space indented; the signature as a literal block.
-fn entry_text(e: &Entry, nl: &str) -> String {
+pub fn entry_text(e: &Entry, nl: &str) -> String {
     let mut out = format!("signoff:{nl}");
     let mut field = |k: &str, v: &str| out.push_str(&format!("  {k}: {}{nl}", yaml_quote(v)));
     field("by", &e.by);
@@ -110,10 +110,31 @@ fn top_key(line: &str) -> Option<String> {
     }
 }
 
+/// The line end `sign` writes: CRLF when the file has any.
+pub fn line_end(raw: &str) -> &'static str {
+    if raw.contains("\r\n") {
+        "\r\n"
+    } else {
+        "\n"
+    }
+}
+
 /// Returns `raw` with its front matter's `signoff` entry set to `entry`. An existing entry,
 /// in any YAML spelling of its key, is replaced where it stands; otherwise the entry goes last.
 pub fn set_signoff(raw: &str, entry: &Entry) -> Result<String, String> {
-    let nl = if raw.contains("\r\n") { "\r\n" } else { "\n" };
+    let r = entry_range(raw)?;
+    let text = entry_text(entry, line_end(raw));
+    let mut out = String::with_capacity(raw.len() + text.len());
+    out.push_str(&raw[..r.start]);
+    out.push_str(&text);
+    out.push_str(&raw[r.end..]);
+    Ok(out)
+}
+
+/// The byte range of the existing top-level `signoff` entry (its key line to the next
+/// top-level key, less blank lines and comments before that key), or an empty range at the
+/// front matter's closing line when there is none.
+pub fn entry_range(raw: &str) -> Result<std::ops::Range<usize>, String> {
     let ls = lines(raw);
     let text = |i: usize| &raw[ls[i].0..ls[i].1];
     if ls.is_empty() || text(0).trim_start_matches('\u{feff}').trim_end() != "---" {
@@ -151,8 +172,8 @@ pub fn set_signoff(raw: &str, entry: &Entry) -> Result<String, String> {
             }
         }
     }
-    let (from, to) = match found.as_slice() {
-        [] => (ls[close].0, ls[close].0),
+    Ok(match found.as_slice() {
+        [] => ls[close].0..ls[close].0,
         [(i, next)] => {
             // Keep blank lines and comments that sit between the entry and the next key.
             let mut j = *next;
@@ -162,15 +183,10 @@ pub fn set_signoff(raw: &str, entry: &Entry) -> Result<String, String> {
             } {
                 j -= 1;
             }
-            (ls[*i].0, ls[j].0)
+            ls[*i].0..ls[j].0
         }
         _ => return Err("the front matter has more than one `signoff` entry".into()),
-    };
-    let mut out = String::with_capacity(raw.len() + 1024);
-    out.push_str(&raw[..from]);
-    out.push_str(&entry_text(entry, nl));
-    out.push_str(&raw[to..]);
-    Ok(out)
+    })
 }
 
 #[cfg(test)]
