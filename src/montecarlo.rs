@@ -138,17 +138,13 @@ pub fn monte_carlo_on(
         .iter()
         .filter_map(|&(a, b, r)| Some((pos(a)?, pos(b)?, r)))
         .collect();
-    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
-    let g = |xs: &[f64]| -> Vec<f64> {
-        let mut x = x0.clone();
-        for (k, &i) in used.iter().enumerate() {
-            if let (Some(d), Some(v)) = (x.get_mut(i), xs.get(k)) {
-                *d = *v;
-            }
-        }
-        f(&x)
-    };
-    monte_carlo(&sub, &sub_corr, &g, p, seed, trials)
+    // Draw the used inputs (in their order, so the streams are those of a run on `sub`)
+    // straight into the full input vector.
+    let slot: Vec<usize> = used.iter().copied().filter(|&i| i < inputs.len()).collect();
+    let mut sampler = Sampler::new(&sub, &sub_corr);
+    sampler.full = inputs.iter().map(|i| i.value).collect();
+    sampler.slot = slot;
+    run_adaptive(&sampler, f, p, seed, trials, McOptions::default())
 }
 
 /// [`monte_carlo`] with explicit options.
@@ -167,55 +163,178 @@ pub fn monte_carlo_with(
         0.95
     };
     let sampler = Sampler::new(inputs, corr);
-    let nout = f(&sampler.x).len();
+    run_adaptive(&sampler, f, p, seed, trials, opts)
+}
+
+/// The trials of [`monte_carlo_with`]: `trials` fixed, or batches until §7.9.4 says stable.
+/// Each output's values are gathered in batch order as the batches finish, so no copy of all
+/// values is made at the end.
+fn run_adaptive(
+    sampler: &Sampler,
+    f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),
+    p: f64,
+    seed: u64,
+    trials: Option<usize>,
+    opts: McOptions,
+) -> Vec<McInterval> {
+    let p = if p.is_finite() {
+        p.clamp(0.5, 0.9999)
+    } else {
+        0.95
+    };
+    let nout = f(&sampler.start()).len();
     if nout == 0 {
         return Vec::new();
     }
-    let run = |h: usize, m: usize| run_batch(&sampler, f, nout, seed, h, m);
-
-    let mut batches: Vec<Vec<Vec<f64>>> = Vec::new();
+    let run = |h: usize, m: usize| run_batch(sampler, f, nout, seed, h, m);
+    // batches[h][o]: the values of output o in batch h.
+    let mut all: Vec<Vec<Vec<f64>>> = Vec::new();
+    let keep = |all: &mut Vec<Vec<Vec<f64>>>, b: Vec<Vec<f64>>| all.push(b);
+    let mut stats: Vec<Vec<[f64; 4]>> = Vec::new(); // per batch, per output (adaptive runs)
     let drawn = match trials {
         Some(n) => {
             let n = n.max(2);
             let nb = n.div_ceil(BATCH);
-            batches = (0..nb)
-                .into_par_iter()
-                .map(|h| run(h, if h + 1 == nb { n - h * BATCH } else { BATCH }))
-                .collect();
+            for h0 in (0..nb).step_by(GROUP) {
+                let group: Vec<Vec<Vec<f64>>> = (h0..(h0 + GROUP).min(nb))
+                    .into_par_iter()
+                    .map(|h| run(h, if h + 1 == nb { n - h * BATCH } else { BATCH }))
+                    .collect();
+                for b in group {
+                    keep(&mut all, b);
+                }
+            }
             n
         }
         None => {
-            let mut stats: Vec<Vec<[f64; 4]>> = Vec::new(); // per batch, per output
             let max_batches = opts.max_trials.div_ceil(BATCH).max(2);
             'outer: loop {
-                let start = batches.len();
+                let start = stats.len();
                 let group: Vec<Vec<Vec<f64>>> = (start..start + GROUP)
                     .into_par_iter()
                     .map(|h| run(h, BATCH))
                     .collect();
                 for b in group {
                     stats.push(b.iter().map(|v| batch_summary(v, p)).collect());
-                    batches.push(b);
-                    if batches.len() >= opts.min_batches.max(2) && stabilised(&stats, &opts) {
+                    keep(&mut all, b);
+                    if stats.len() >= opts.min_batches.max(2) && stabilised(&stats, &opts) {
                         break 'outer;
                     }
-                    if batches.len() >= max_batches {
+                    if stats.len() >= max_batches {
                         break 'outer;
                     }
                 }
             }
-            batches.len() * BATCH
+            stats.len() * BATCH
         }
     };
     (0..nout)
         .into_par_iter()
         .map(|o| {
-            let mut all: Vec<f64> = batches.iter().flat_map(|b| b[o].iter().copied()).collect();
-            let mut s = summarise(&mut all, p);
+            let parts: Vec<&[f64]> = all.iter().map(|b| b[o].as_slice()).collect();
+            // The batches' own interval ends bracket the pooled ones (adaptive runs).
+            let brackets = (!stats.is_empty()).then(|| {
+                let span = |q: usize| {
+                    stats
+                        .iter()
+                        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), s| {
+                            (a.min(s[o][q]), b.max(s[o][q]))
+                        })
+                };
+                [span(2), span(3)]
+            });
+            let mut s = summarise_parts(&parts, p, brackets);
             s.dropped = drawn.saturating_sub(s.trials);
             s
         })
         .collect()
+}
+
+/// Indices (0-based) of the order statistics §7.7.2 takes for `m` values: (low, high).
+fn interval_ranks(m: usize, p: f64) -> (usize, usize) {
+    let pm = p * m as f64;
+    let q = if (pm - pm.round()).abs() < 1e-9 {
+        pm.round() as usize
+    } else {
+        (pm + 0.5).floor() as usize
+    };
+    let q = q.min(m - 1).max(1);
+    let r = (m - q).div_ceil(2).max(1); // 1-based
+    (r - 1, (r + q - 1).min(m - 1))
+}
+
+/// [`summarise`] of the values of all `parts` taken in order, without gathering them: the
+/// mean and variance are summed in the same order, and each order statistic is selected among
+/// the few values inside a bracket from the batches' own quantiles (the values below it are
+/// counted). The result is exactly that of [`summarise`] on the concatenation; when a bracket
+/// misses, it falls back to that.
+fn summarise_parts(parts: &[&[f64]], p: f64, brackets: Option<[(f64, f64); 2]>) -> McInterval {
+    let m: usize = parts.iter().map(|v| v.len()).sum();
+    if parts.len() < 4 || m < 2 {
+        let mut v: Vec<f64> = parts.iter().flat_map(|v| v.iter().copied()).collect();
+        return summarise(&mut v, p);
+    }
+    let mut sum = 0.0;
+    for v in parts {
+        for x in v.iter() {
+            sum += x;
+        }
+    }
+    let mean = sum / m as f64;
+    let mut ss = 0.0;
+    for v in parts {
+        for x in v.iter() {
+            ss += (x - mean).powi(2);
+        }
+    }
+    let (lo_i, hi_i) = interval_ranks(m, p);
+    let pick = |k: usize, bracket: Option<(f64, f64)>| -> Option<f64> {
+        // Bracket: the smallest and largest of the batches' own k/m quantiles.
+        let (a, b) = bracket.unwrap_or_else(|| {
+            let frac = (k as f64 + 0.5) / m as f64;
+            let (mut a, mut b) = (f64::INFINITY, f64::NEG_INFINITY);
+            for v in parts.iter().filter(|v| v.len() >= 2) {
+                let mut w = v.to_vec();
+                let j = ((frac * w.len() as f64) as usize).min(w.len() - 1);
+                let (_, q, _) = w.select_nth_unstable_by(j, f64::total_cmp);
+                a = a.min(*q);
+                b = b.max(*q);
+            }
+            (a, b)
+        });
+        let (mut below, mut inside) = (0usize, Vec::new());
+        for v in parts {
+            for &x in v.iter() {
+                if x.total_cmp(&a).is_lt() {
+                    below += 1;
+                } else if x.total_cmp(&b).is_le() {
+                    inside.push(x);
+                }
+            }
+        }
+        let j = k.checked_sub(below).filter(|&j| j < inside.len())?;
+        let (_, q, _) = inside.select_nth_unstable_by(j, f64::total_cmp);
+        Some(*q)
+    };
+    let (bl, bh) = match brackets {
+        Some([l, h]) => (Some(l), Some(h)),
+        None => (None, None),
+    };
+    match (pick(lo_i, bl), pick(hi_i, bh)) {
+        (Some(low), Some(high)) => McInterval {
+            trials: m,
+            dropped: 0,
+            mean,
+            u: (ss / (m as f64 - 1.0)).sqrt(),
+            low,
+            high,
+            gum_validated: false,
+        },
+        _ => {
+            let mut v: Vec<f64> = parts.iter().flat_map(|v| v.iter().copied()).collect();
+            summarise(&mut v, p)
+        }
+    }
 }
 
 /// §7.9.4 f)–i): every output's 2·s of the batch averages of y, u, y_low, y_high ≤ δ/divisor.
@@ -262,16 +381,7 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
     }
     let mean = v.iter().sum::<f64>() / m as f64;
     let var = v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / (m as f64 - 1.0);
-    let pm = p * m as f64;
-    let q = if (pm - pm.round()).abs() < 1e-9 {
-        pm.round() as usize
-    } else {
-        (pm + 0.5).floor() as usize
-    };
-    let q = q.min(m - 1).max(1);
-    let r = (m - q).div_ceil(2).max(1); // 1-based
-    let lo_i = r - 1;
-    let hi_i = (r + q - 1).min(m - 1);
+    let (lo_i, hi_i) = interval_ranks(m, p);
     let (_, lo, rest) = v.select_nth_unstable_by(lo_i, f64::total_cmp);
     let low = *lo;
     let high = if hi_i == lo_i {
@@ -304,7 +414,7 @@ fn run_batch(
     let mut rng = ChaCha8Rng::seed_from_u64(seed);
     rng.set_stream(h as u64);
     let mut out: Vec<Vec<f64>> = (0..nout).map(|_| Vec::with_capacity(m)).collect();
-    let mut x = s.x.clone();
+    let mut x = s.start();
     let mut z = vec![0.0; s.group.len()];
     for _ in 0..m {
         s.draw(&mut rng, &mut x, &mut z);
@@ -333,6 +443,11 @@ struct Sampler {
     /// correlation matrix, row-major.
     group: Vec<usize>,
     factor: Vec<f64>,
+    /// The model's whole input vector at the estimates, when the sampler draws only some
+    /// inputs ([`monte_carlo_on`]); empty when it draws them all.
+    full: Vec<f64>,
+    /// Where each drawn input goes in `full` (empty: in place).
+    slot: Vec<usize>,
 }
 
 impl Sampler {
@@ -401,13 +516,34 @@ impl Sampler {
             law,
             group,
             factor,
+            full: Vec::new(),
+            slot: Vec::new(),
+        }
+    }
+
+    /// The model's input vector at the estimates.
+    fn start(&self) -> Vec<f64> {
+        if self.slot.is_empty() {
+            self.x.clone()
+        } else {
+            self.full.clone()
+        }
+    }
+
+    /// Index in the model's input vector of drawn input `i`.
+    #[inline]
+    fn at(&self, i: usize) -> usize {
+        if self.slot.is_empty() {
+            i
+        } else {
+            self.slot[i]
         }
     }
 
     fn draw(&self, rng: &mut ChaCha8Rng, x: &mut [f64], z: &mut [f64]) {
         for (i, law) in self.law.iter().enumerate() {
             let (x0, u) = (self.x[i], self.u[i]);
-            x[i] = match law {
+            x[self.at(i)] = match law {
                 Law::Normal => x0 + u * rng.sample::<f64, _>(StandardNormal),
                 Law::Rect => x0 + u * 3f64.sqrt() * (2.0 * rng.random::<f64>() - 1.0),
                 Law::T(t) => x0 + u * t.sample(rng),
@@ -424,7 +560,7 @@ impl Sampler {
         for (i, &k) in self.group.iter().enumerate() {
             let row = &self.factor[i * g..i * g + g];
             let c: f64 = row.iter().zip(z.iter()).map(|(a, b)| a * b).sum();
-            x[k] = self.x[k] + self.u[k] * c;
+            x[self.at(k)] = self.x[k] + self.u[k] * c;
         }
     }
 }
@@ -442,6 +578,43 @@ mod tests {
             dof,
             kind: EvalType::B,
             dist,
+        }
+    }
+
+    /// The batched summary is exactly the §7.7.2 summary of all values taken together, with
+    /// good brackets, with brackets that miss (fallback), and without brackets.
+    #[test]
+    fn batched_summary_equals_the_summary_of_all_values() {
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        let batches: Vec<Vec<f64>> = (0..12)
+            .map(|_| {
+                (0..997)
+                    .map(|_| rng.sample::<f64, _>(StandardNormal))
+                    .collect()
+            })
+            .collect();
+        let parts: Vec<&[f64]> = batches.iter().map(|b| b.as_slice()).collect();
+        let mut all: Vec<f64> = batches.concat();
+        let want = summarise(&mut all, 0.95);
+        let ends = |q: usize| {
+            batches
+                .iter()
+                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
+                    let s = batch_summary(v, 0.95);
+                    (a.min(s[q]), b.max(s[q]))
+                })
+        };
+        for brackets in [
+            None,
+            Some([ends(2), ends(3)]),
+            Some([(5.0, 6.0), (-6.0, -5.0)]),
+        ] {
+            let got = summarise_parts(&parts, 0.95, brackets);
+            assert_eq!(
+                (got.trials, got.mean, got.u, got.low, got.high),
+                (want.trials, want.mean, want.u, want.low, want.high),
+                "{brackets:?}"
+            );
         }
     }
 
