@@ -613,6 +613,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         cite: &cite,
     };
 
+    let shared = shared_notes(record);
     let mut items = Vec::new();
     let mut prose_n = 0usize;
     for item in &nb.items {
@@ -625,11 +626,19 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
             }
             Item::Readings(rb) => {
                 let index = items.len();
-                items.push(readings_json(record, rb, index, &mut files)?);
+                items.push(readings_json(record, rb, index, &shared, &mut files)?);
             }
         }
     }
 
+    // Blocks with warnings: their verdicts are marked in the summary.
+    let warned_blocks: std::collections::BTreeSet<&str> = record
+        .reduction
+        .blocks
+        .iter()
+        .filter(|b| b.flags.iter().any(|f| f.warn))
+        .map(|b| b.id.as_str())
+        .collect();
     let verdicts: Vec<Value> = record
         .verdicts
         .iter()
@@ -643,6 +652,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
                 "interval": format::interval(v.low, v.high, v.unit),
                 "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
                 "outcome": outcome_word(v.outcome),
+                "warned": warned_blocks.contains(v.block.as_str()),
             })
         })
         .collect();
@@ -719,6 +729,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "instruments": fm.instruments.iter().map(|(n, i)| instrument_json(n, i, date)).collect::<Vec<_>>(),
         "parts": fm.parts.iter().map(|(n, p)| part_json(n, p)).collect::<Vec<_>>(),
         "items": items,
+        "record_notes": shared.iter().collect::<Vec<_>>(),
         "verdicts": verdicts,
         "safety": safety,
         "sign": sign,
@@ -741,10 +752,49 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
     })
 }
 
+/// Notes (not warnings) that two or more blocks carry word for word: the record prints them
+/// once, not in every block.
+fn shared_notes(record: &Record) -> std::collections::BTreeSet<String> {
+    let mut seen: BTreeMap<&str, usize> = BTreeMap::new();
+    for b in &record.reduction.blocks {
+        let mine: std::collections::BTreeSet<&str> = b
+            .flags
+            .iter()
+            .filter(|f| !f.warn)
+            .map(|f| f.message.as_str())
+            .collect();
+        for m in mine {
+            *seen.entry(m).or_default() += 1;
+        }
+    }
+    seen.into_iter()
+        .filter(|(_, n)| *n >= 2)
+        .map(|(m, _)| m.to_string())
+        .collect()
+}
+
+/// Up to [`PRINT_FLAGS`] messages, with a line for the rest.
+fn capped(msgs: Vec<String>, what: &str) -> Value {
+    let n = msgs.len();
+    let mut v: Vec<Value> = msgs
+        .into_iter()
+        .take(PRINT_FLAGS)
+        .map(Value::from)
+        .collect();
+    if n > PRINT_FLAGS {
+        v.push(Value::from(format!(
+            "… and {} more {what}, not printed here; `benchrec results` lists every one",
+            n - PRINT_FLAGS
+        )));
+    }
+    Value::Array(v)
+}
+
 fn readings_json(
     record: &Record,
     rb: &ReadingsBlock,
     index: usize,
+    shared: &std::collections::BTreeSet<String>,
     files: &mut BTreeMap<String, Vec<u8>>,
 ) -> Result<Value, String> {
     let columns: Vec<Value> = rb
@@ -855,6 +905,16 @@ fn readings_json(
                 v
             }),
         );
+        let of = |warn: bool| -> Vec<String> {
+            block
+                .flags
+                .iter()
+                .filter(|f| f.warn == warn && (warn || !shared.contains(&f.message)))
+                .map(|f| f.message.clone())
+                .collect()
+        };
+        map.insert("warnings".into(), capped(of(true), "warnings"));
+        map.insert("notes".into(), capped(of(false), "notes"));
         map.insert("verdicts".into(), Value::Array(verdicts));
         map.insert("plots".into(), Value::Array(plots_json));
     }
