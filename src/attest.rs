@@ -57,17 +57,18 @@ pub fn sign_file(path: &Path, req: &SignRequest) -> Result<Signed, Failure> {
     if by.chars().any(char::is_control) {
         return Err(io(path, "`--by` holds a line end or control character"));
     }
-    let on =
-        match &req.on {
-            Some(on) if is_iso_time(on) => on.trim().to_string(),
-            Some(on) => return Err(io(
+    let on = match &req.on {
+        Some(on) if is_iso_time(on) => on.trim().to_string(),
+        Some(on) => {
+            return Err(io(
                 path,
                 format!(
                     "`--on {on}` is not an ISO 8601 date-time; expected e.g. 2026-12-02T09:30:00Z"
                 ),
-            )),
-            None => chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string(),
-        };
+            ))
+        }
+        None => chrono::Utc::now().format("%Y-%m-%dT%H:%M:%SZ").to_string(),
+    };
     let accepted = match &req.accept {
         Some(a) if a.trim().is_empty() => {
             return Err(io(path, "`--accept` is empty: give the reason for signing"))

@@ -1119,15 +1119,80 @@ fn concurrent_builds_leave_one_whole_pdf() {
     }
 }
 
-/// Inputs that once crashed a parser, kept as regressions (the fuzz targets found these).
+/// The fuzz target `notebook_parse`'s property on one input: parse returns, and every
+/// diagnostic's span lies inside the source (BOM stripped) on character boundaries.
+fn check_notebook_target(name: &str, text: &str) {
+    match benchrec::notebook::parse(text) {
+        Ok(nb) => assert!(nb.source.len() <= text.len(), "{name}: source grew"),
+        Err(diags) => {
+            assert!(!diags.is_empty(), "{name}: error with no diagnostic");
+            let src = text.strip_prefix('\u{feff}').unwrap_or(text);
+            for d in diags {
+                assert!(
+                    d.span.start <= d.span.end && d.span.end <= src.len(),
+                    "{name}: span {:?} outside {}",
+                    d.span,
+                    src.len()
+                );
+                assert!(
+                    src.is_char_boundary(d.span.start) && src.is_char_boundary(d.span.end),
+                    "{name}: span {:?} splits a character",
+                    d.span
+                );
+                let _ = benchrec::diag::line_col(src, d.span.start);
+            }
+        }
+    }
+}
+
+/// The fuzz target `quantity_parse`'s property: an accepted value is finite, an error's
+/// offsets lie inside the text (and, stricter than the target, on character boundaries).
+fn check_quantity_target(name: &str, text: &str) {
+    match benchrec::quantity::parse_quantity(text) {
+        Ok(q) => assert!(q.value.is_finite(), "{name}: {text:?} gave {}", q.value),
+        Err(e) => {
+            assert!(
+                e.offset <= text.len() && e.offset + e.len <= text.len(),
+                "{name}: {e:?} for {text:?}"
+            );
+            assert!(
+                text.is_char_boundary(e.offset) && text.is_char_boundary(e.offset + e.len),
+                "{name}: {e:?} splits a character of {text:?}"
+            );
+        }
+    }
+}
+
+/// Inputs that once crashed a parser and the fuzz targets' seeds (`fuzz/seeds/`), kept in
+/// `tests/malformed/fuzz/` and run through both targets' properties. The folder must exist,
+/// hold every seed byte for byte, and hold inputs for both targets.
 #[test]
 fn fuzz_regressions_do_not_panic() {
     let dir = malformed_dir().join("fuzz");
-    for f in files_in(&dir) {
-        let bytes = std::fs::read(dir.join(&f)).unwrap();
-        let text = String::from_utf8_lossy(&bytes);
-        let _ = benchrec::notebook::parse(&text);
-        let _ = benchrec::quantity::parse_quantity(&text);
+    let files = files_in(&dir);
+    assert!(
+        files.iter().any(|f| f.starts_with("notebook-"))
+            && files.iter().any(|f| f.starts_with("quantity-")),
+        "{} must hold notebook-* and quantity-* inputs, has {files:?}",
+        dir.display()
+    );
+    let seeds = manifest_dir().join("fuzz").join("seeds").join("quantity");
+    let seed_names = files_in(&seeds);
+    assert!(!seed_names.is_empty(), "{} is empty", seeds.display());
+    for f in seed_names {
+        let kept = std::fs::read(dir.join(format!("quantity-{f}"))).ok();
+        assert_eq!(
+            kept,
+            std::fs::read(seeds.join(&f)).ok(),
+            "fuzz seed {f} is not kept as tests/malformed/fuzz/quantity-{f}"
+        );
+    }
+    for f in &files {
+        let bytes = std::fs::read(dir.join(f)).unwrap();
+        check_notebook_target(f, &String::from_utf8_lossy(&bytes));
+        if let Ok(text) = std::str::from_utf8(&bytes) {
+            check_quantity_target(f, text);
+        }
     }
 }
 
