@@ -1,0 +1,233 @@
+//! Reference checks that fail when the code is wrong (issue 16): each names its source, and
+//! says where a value comes from memory.
+
+use benchrec::montecarlo::{numerical_tolerance, validate};
+use benchrec::notebook::{self, Tolerance};
+use benchrec::quantity::{format_value_u, Unit};
+use benchrec::uncertainty::{coverage_factor, welch_satterthwaite, McInterval};
+use std::process::{Command, Stdio};
+
+/// `benchrec results` on `text` (written as `name` in a fresh folder): the JSON.
+fn results_json(name: &str, text: &str) -> serde_json::Value {
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join(name);
+    std::fs::write(&nb, text).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
+        .arg("results")
+        .arg(&nb)
+        .stdin(Stdio::null())
+        .output()
+        .expect("benchrec runs");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    serde_json::from_slice(&o.stdout).expect("results JSON")
+}
+
+/// The result `name` at frequency `f` (None: the block result) of block 0.
+fn result<'a>(j: &'a serde_json::Value, name: &str, f: Option<f64>) -> &'a serde_json::Value {
+    j["blocks"][0]["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["name"] == name && r["f"].as_f64() == f)
+        .unwrap_or_else(|| panic!("no result {name} at {f:?}"))
+}
+
+fn mc(low: f64, high: f64) -> McInterval {
+    McInterval {
+        trials: 1_000_000,
+        dropped: 0,
+        mean: 0.0,
+        u: 2.0,
+        low,
+        high,
+        gum_validated: false,
+    }
+}
+
+// JCGM 101:2008 §7.9.2, Examples 1 and 2 (from memory; they agree with the rule of §7.9.2,
+// z = c × 10^ℓ with c an ndig-digit integer, δ = ½ × 10^ℓ): u(y) = 0.000 35 g with ndig = 2
+// is 35 × 10⁻⁵ g, δ = 0.000 005 g; with ndig = 1 it is 4 × 10⁻⁴ g, δ = 0.000 05 g.
+// Example 3 (from memory): u(y) = 2 K, ndig = 1, δ = 0.5 K.
+#[test]
+fn jcgm101_7_9_2_numerical_tolerance_examples() {
+    let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b;
+    assert!(close(numerical_tolerance(0.00035, 2), 0.000005));
+    assert!(close(numerical_tolerance(0.00035, 1), 0.00005));
+    assert!(close(numerical_tolerance(2.0, 1), 0.5));
+}
+
+// JCGM 101:2008 §9.2.3 (from memory): Y = X1 + X2 + X3 + X4, each Xi rectangular with u = 1.
+// GUF: y = 0, u(y) = 2, U = 1.96 × 2 = 3.92; MCM 95 % interval [−3.88, 3.88]. So
+// d_low = d_high = 0.04: validated at ndig = 2 (δ = 0.05), not at ndig = 3 (δ = 0.005).
+#[test]
+fn jcgm101_9_2_3_validates_at_two_digits_not_at_three() {
+    let m = mc(-3.88, 3.88);
+    let two = validate(0.0, 2.0, 3.92, &m, 2);
+    assert!(two.validated, "{two:?}");
+    assert!((two.delta - 0.05).abs() < 1e-15 && (two.d_low - 0.04).abs() < 1e-12);
+    let three = validate(0.0, 2.0, 3.92, &m, 3);
+    assert!(!three.validated, "{three:?}");
+    assert!((three.delta - 0.005).abs() < 1e-15);
+    // One end alone outside δ already fails §8.2 (both d_low and d_high must be ≤ δ).
+    assert!(!validate(0.0, 2.0, 3.92, &mc(-3.92, 3.80), 2).validated);
+    assert!(!validate(0.0, 2.0, 3.92, &mc(-3.80, 3.92), 2).validated);
+    // d is a distance: an MC interval wider than the GUF one by 0.04 is as good as narrower.
+    assert!(validate(0.0, 2.0, 3.92, &mc(-3.96, 3.96), 2).validated);
+}
+
+// GUM (JCGM 100:2008) 7.2.6: "if y = 10.057 62 Ω with u_c(y) = 27 mΩ, y should be rounded to
+// 10.058 Ω". Printed with that uncertainty as the ± term.
+#[test]
+fn gum_7_2_6_the_standards_own_example() {
+    assert_eq!(
+        format_value_u(10.05762, 0.027, Unit::Ohm),
+        "10.058 ± 0.027 Ω"
+    );
+    assert_eq!(
+        benchrec::render::format::value_and_u(10.05762, 0.027),
+        ("10.058".to_string(), "0.027".to_string())
+    );
+}
+
+// GUM G.4.1 EXAMPLE (from memory): relative u 0.25 %, 0.57 %, 0.82 % with ν = 9, 4, 14 give
+// u_c = 1.03 %, ν_eff = 19.0, t95(19) = 2.09 and U95 = 2.2 %. The products are 2.15…, so the
+// published 2.2 is the rounding to two significant digits (GUM 7.2.6), asserted as such.
+#[test]
+fn gum_g_4_1_expanded_uncertainty_rounds_to_2_2() {
+    let c = [(0.25, Some(9.0)), (0.57, Some(4.0)), (0.82, Some(14.0))];
+    let nu = welch_satterthwaite(&c).unwrap();
+    assert_eq!(format!("{nu:.1}"), "19.0");
+    let uc: f64 = c.iter().map(|x| x.0 * x.0).sum::<f64>().sqrt();
+    assert_eq!(format!("{uc:.2}"), "1.03");
+    let k = coverage_factor(0.95, Some(nu.round()));
+    assert_eq!(format!("{k:.2}"), "2.09");
+    assert_eq!(format!("{:.1}", k * uc), "2.2");
+    assert_eq!(benchrec::quantity::round_sig(k * uc, 2), 2.2);
+}
+
+const PARTS_FM: &str = "---\nrecord: a\ntitle: t\ndate: 2026-05-04\noperator: o\nparts:\n";
+
+// IEC 60062:2016, letter codes for tolerance (from memory): B ±0.1 %, C ±0.25 %, D ±0.5 %,
+// F ±1 %, G ±2 %, J ±5 %, K ±10 %, M ±20 % (the set FORMAT.md lists). Any other letter, and
+// the lower-case forms, are refused.
+#[test]
+fn iec_60062_every_letter() {
+    let table = [
+        ('B', 0.001),
+        ('C', 0.0025),
+        ('D', 0.005),
+        ('F', 0.01),
+        ('G', 0.02),
+        ('J', 0.05),
+        ('K', 0.10),
+        ('M', 0.20),
+    ];
+    for kind in ["resistor", "capacitor", "inductor"] {
+        for (c, frac) in table {
+            let src = format!("{PARTS_FM}  X1: {{kind: {kind}, tolerance: {c}}}\n---\n");
+            let n = notebook::parse(&src).unwrap_or_else(|d| panic!("{c} {kind}: {d:?}"));
+            assert_eq!(
+                n.front.parts["X1"].tolerance,
+                Some(Tolerance::Code(c, frac)),
+                "{c} on a {kind}"
+            );
+        }
+    }
+    for c in ('A'..='Z').chain('a'..='z') {
+        if table.iter().any(|(k, _)| *k == c) {
+            continue;
+        }
+        let src = format!("{PARTS_FM}  X1: {{kind: resistor, tolerance: {c}}}\n---\n");
+        let d = notebook::parse(&src).expect_err(&format!("letter {c} accepted"));
+        assert!(
+            d.iter()
+                .any(|d| d.message.contains("not an IEC 60062 tolerance letter")),
+            "{c}: {d:?}"
+        );
+    }
+}
+
+// IEC 60062 (from memory): for capacitors below 10 pF the letters B, C, D, F and G stand for
+// absolute tolerances (±0.1, 0.25, 0.5, 1, 2 pF), not percentages; they are refused there so
+// the absolute value is written out. J, K and M keep their percentages; at 10 pF and above
+// every letter is a percentage; other kinds are not affected.
+#[test]
+fn iec_60062_small_capacitance_letters_b_to_g() {
+    let parse = |kind: &str, nominal: &str, c: char| {
+        let src =
+            format!("{PARTS_FM}  X1: {{kind: {kind}, nominal: {nominal}, tolerance: {c}}}\n---\n");
+        notebook::parse(&src).map(|n| n.front.parts["X1"].tolerance.clone())
+    };
+    for c in ['B', 'C', 'D', 'F', 'G'] {
+        let d = parse("capacitor", "4.7 pF", c).expect_err(&format!("{c} at 4.7 pF"));
+        assert!(
+            d.iter()
+                .any(|d| d.message.contains("below 10 pF a tolerance letter")),
+            "{c}: {d:?}"
+        );
+        assert!(
+            matches!(parse("capacitor", "10 pF", c), Ok(Some(Tolerance::Code(k, _))) if k == c)
+        );
+        assert!(
+            parse("resistor", "4.7 ohm", c).is_ok(),
+            "{c} on a 4.7 Ω resistor"
+        );
+    }
+    for (c, frac) in [('J', 0.05), ('K', 0.10), ('M', 0.20)] {
+        assert_eq!(
+            parse("capacitor", "4.7 pF", c).map_err(|d| format!("{d:?}")),
+            Ok(Some(Tolerance::Code(c, frac))),
+            "{c} at 4.7 pF"
+        );
+    }
+}
+
+// A true 3-4-5 triangle for the three-voltmeter method (law of cosines, any circuit text):
+// Vs = 5, VR = 3, VL = 4 gives cos θ = (25 − 9 − 16)/(2·3·4) = 0, an ideal coil. With the
+// series 30 Ω: I = 0.1 A, Rac = 0, XL = 40 Ω, L = 40/(2π·1 kHz) = 6.366 198 mH; Q = XL/Rac is
+// not computed and the row says why.
+#[test]
+fn three_voltmeter_3_4_5_is_an_ideal_coil() {
+    let text = "---
+record: T-345
+title: 3-4-5 check (synthetic)
+date: 2026-10-06
+operator: T. Tester (synthetic)
+parts:
+  R2:
+    kind: resistor
+    nominal: 30 ohm
+  L1:
+    kind: inductor
+    nominal: 6.8 mH
+---
+
+```readings
+id: t
+network: RL
+parts: [R2, L1]
+---
+f/Hz    Vs/V    VR/V    VL/V
+1000    5.000   3.000   4.000
+```
+";
+    let j = results_json("t345.md", text);
+    let v = |n: &str| result(&j, n, Some(1000.0))["value"].as_f64().unwrap();
+    assert!((v("I") - 0.1).abs() < 1e-15);
+    assert!(v("Rac").abs() < 1e-12, "Rac = {}", v("Rac"));
+    assert!((v("XL") - 40.0).abs() < 1e-12);
+    let l = 40.0 / (2.0 * std::f64::consts::PI * 1000.0);
+    assert!((v("L") - l).abs() < 1e-15 * 1e3, "L = {}", v("L"));
+    let names: Vec<&str> = j["blocks"][0]["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["name"].as_str().unwrap())
+        .collect();
+    assert!(!names.contains(&"Q"), "{names:?}");
+    let flags = j["blocks"][0]["flags"].to_string();
+    assert!(
+        flags.contains("cos θ = 0 is zero") && flags.contains("Q is not computed"),
+        "{flags}"
+    );
+}
