@@ -231,3 +231,123 @@ f/Hz    Vs/V    VR/V    VL/V
         "{flags}"
     );
 }
+
+/// `benchrec results --format csv` on `text`: the `verdict` cell of the row `name` with no `f`.
+fn csv_verdict(name: &str, text: &str, result: &str) -> String {
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join(name);
+    std::fs::write(&nb, text).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
+        .args(["results", "--format", "csv"])
+        .arg(&nb)
+        .stdin(Stdio::null())
+        .output()
+        .expect("benchrec runs");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let mut rd = csv::Reader::from_reader(&o.stdout[..]);
+    let head = rd.headers().unwrap().clone();
+    let col = |n: &str| head.iter().position(|h| h == n).unwrap();
+    rd.records()
+        .map(Result::unwrap)
+        .find(|r| &r[col("name")] == result && r[col("f")].is_empty())
+        .map(|r| r[col("verdict")].to_string())
+        .unwrap_or_else(|| panic!("no CSV row {result}"))
+}
+
+/// The catalogue's base notebook (an RC block judged on C1) with C1's nominal and absolute
+/// tolerance in farads and a `decision:` line.
+fn judged_notebook(nominal: f64, tol: f64, decision: &str) -> String {
+    let base = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed/ok-minimal.md"),
+    )
+    .unwrap();
+    let out = base
+        .replacen(
+            "    nominal: 68 nF\n    tolerance: K\n",
+            &format!("    nominal: {nominal:e} F\n    tolerance: {tol:e} F\n"),
+            1,
+        )
+        .replacen(
+            "operator: T. Tester (synthetic)\n",
+            &format!("operator: T. Tester (synthetic)\ndecision: {decision}\n"),
+            1,
+        );
+    assert_ne!(out, base, "anchors missing from ok-minimal.md");
+    out
+}
+
+// ILAC-G8:09/2019 through the CLI, read from the JSON `verdicts` and the CSV `verdict` column.
+// Simple acceptance (§4.2.1): pass when the value lies in [low, high]. Guarded (guard band
+// w = U, as README states the rule): pass when value ± U lies inside, fail when it lies
+// wholly outside, else inconclusive. The limits are set a hair (10⁻⁶ U) either side of the
+// decisive points, and between u and U, so judging with u instead of U, or ignoring
+// `decision:`, changes a verdict.
+#[test]
+fn ilac_g8_verdicts_at_the_limits_through_the_cli() {
+    let probe = results_json("probe.md", &judged_notebook(68e-9, 1e-9, "guarded"));
+    let c = result(&probe, "C", None);
+    let (v, u, big_u) = (
+        c["value"].as_f64().unwrap(),
+        c["u"].as_f64().unwrap(),
+        c["U"].as_f64().unwrap(),
+    );
+    let k = c["k"].as_f64().unwrap();
+    assert!(
+        ((big_u - k * u) / big_u).abs() < 1e-12 && k > 1.9,
+        "U = k·u: {c}"
+    );
+    let e = 1e-6 * big_u;
+    let mid = 0.5 * (u + big_u); // u < mid < U
+                                 // (decision, nominal, tolerance half-width, verdict)
+    let cases = [
+        ("guarded", v, big_u + e, "pass"),
+        ("guarded", v, big_u - e, "inconclusive"),
+        ("guarded", v, mid, "inconclusive"),
+        ("guarded", v + big_u + e + big_u, big_u, "fail"),
+        ("guarded", v + big_u - e + big_u, big_u, "inconclusive"),
+        ("guarded", v + mid + big_u, big_u, "inconclusive"),
+        ("guarded", v - big_u - e - big_u, big_u, "fail"),
+        ("guarded", v - mid - big_u, big_u, "inconclusive"),
+        ("simple", v, mid, "pass"),
+        ("simple", v, 0.5 * u, "pass"),
+        ("simple", v + e + big_u, big_u, "fail"),
+        ("simple", v - e + big_u, big_u, "pass"),
+        ("simple", v - e - big_u, big_u, "fail"),
+        ("simple", v + e - big_u, big_u, "pass"),
+    ];
+    for (i, (rule, nominal, tol, want)) in cases.into_iter().enumerate() {
+        let text = judged_notebook(nominal, tol, rule);
+        let j = results_json(&format!("case{i}.md"), &text);
+        let c = result(&j, "C", None);
+        assert_eq!(
+            c["value"].as_f64(),
+            Some(v),
+            "case {i}: C moved with the nominal"
+        );
+        assert_eq!(
+            c["U"].as_f64(),
+            Some(big_u),
+            "case {i}: U moved with the nominal"
+        );
+        let verdicts = j["blocks"][0]["verdicts"].as_array().unwrap();
+        assert_eq!(verdicts.len(), 1, "case {i}: {verdicts:?}");
+        let vd = &verdicts[0];
+        let (lo, hi) = (vd["low"].as_f64().unwrap(), vd["high"].as_f64().unwrap());
+        assert!(
+            (lo - (nominal - tol)).abs() < 1e-9 * nominal
+                && (hi - (nominal + tol)).abs() < 1e-9 * nominal
+                && vd["name"] == "C"
+                && vd["part"] == "C1",
+            "case {i}: {vd}"
+        );
+        assert_eq!(
+            vd["verdict"], want,
+            "case {i} ({rule}): value {v:e}, U {big_u:e}, [{lo:e}, {hi:e}]"
+        );
+        assert_eq!(
+            csv_verdict(&format!("case{i}.md"), &text, "C"),
+            want,
+            "case {i} CSV"
+        );
+    }
+}
