@@ -351,3 +351,140 @@ fn ilac_g8_verdicts_at_the_limits_through_the_cli() {
         );
     }
 }
+
+/// The reduction of a notebook file through the library (parse → reduce), block 0.
+fn reduce_file(rel: &str) -> benchrec::networks::BlockResult {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join(rel);
+    let text = std::fs::read_to_string(&path).unwrap();
+    let nb = notebook::parse(&text).unwrap_or_else(|d| panic!("{rel}: {d:?}"));
+    let red = benchrec::networks::reduce(&nb).unwrap_or_else(|d| panic!("{rel}: {d:?}"));
+    red.blocks.into_iter().next().expect("one block")
+}
+
+/// Lines `name f value u` of a reference output (`f` is `-` for a block result).
+fn reference_rows(text: &str) -> Vec<(String, Option<f64>, f64, f64)> {
+    text.lines()
+        .filter(|l| !l.starts_with('#') && !l.trim().is_empty())
+        .map(|l| {
+            let v: Vec<&str> = l.split_whitespace().collect();
+            (
+                v[0].to_string(),
+                v[1].parse().ok(),
+                v[2].parse().unwrap(),
+                v[3].parse().unwrap(),
+            )
+        })
+        .collect()
+}
+
+// RL uncertainties against an independent first-order propagation by the Python
+// `uncertainties` package (tests/reference/rl_uncertainty.py, output rl_uncertainty.out, from
+// the readings of rl_three_voltmeter.md and the input rules of FORMAT.md/inputs.rs): u(I),
+// u(Rac), u(XL), u(L), u(Q), u(XL_dcr), u(L_dcr) per frequency and the block means, with the
+// shared gains and R correlated. Both are first order, so they agree to rounding (1e-6).
+#[test]
+fn rl_uncertainties_match_the_uncertainties_package() {
+    let b = reduce_file("tests/reference/rl_three_voltmeter.md");
+    let rows = reference_rows(include_str!("reference/rl_uncertainty.out"));
+    assert_eq!(rows.len(), 3 * 7 + 3);
+    for (name, f, value, u) in rows {
+        let r = b
+            .rows
+            .iter()
+            .chain(&b.results)
+            .find(|r| r.name == name && r.f == f)
+            .unwrap_or_else(|| panic!("no result {name} at {f:?}"));
+        assert!(
+            ((r.m.value - value) / value).abs() < 1e-9,
+            "{name} at {f:?}: value {} vs {value}",
+            r.m.value
+        );
+        assert!(
+            ((r.m.u - u) / u).abs() < 1e-6,
+            "{name} at {f:?}: u {} vs uncertainties {u}",
+            r.m.u
+        );
+    }
+}
+
+// JCGM 101 §5.11 and §9 (from memory): where the model is near-linear the Monte Carlo
+// standard deviation equals the GUM u. I = VR/R, XL and L are near-linear in the readings at
+// these uncertainties (relative u < 1 %); the adaptive run (§7.9) holds u to two digits, so
+// they must agree within 1.5 % (measured: at most 0.4 %).
+#[test]
+fn rl_monte_carlo_u_matches_the_gum_u_where_near_linear() {
+    let b = reduce_file("tests/reference/rl_three_voltmeter.md");
+    let mut n = 0;
+    for r in b
+        .rows
+        .iter()
+        .filter(|r| ["I", "XL", "L"].contains(&r.name.as_str()))
+    {
+        let mc = r.m.mc.as_ref().expect("Monte Carlo attached");
+        let rel = (mc.u - r.m.u).abs() / r.m.u;
+        assert!(
+            rel < 0.015,
+            "{} at {:?}: MC u {} vs GUM u {}",
+            r.name,
+            r.f,
+            mc.u,
+            r.m.u
+        );
+        n += 1;
+    }
+    assert_eq!(n, 9);
+}
+
+// RLC derived results: scipy's fitted (f0, Q, Rt) with their covariance (rlc_curve_fit.out) as
+// correlated normal inputs, as rlc::reduce passes them, propagated by `propagate` through
+// `rlc::derived_lin` to BW, L and C; the reference is the Python `uncertainties` package
+// (tests/reference/rlc_derived_uncertainty.py, output rlc_derived_uncertainty.out).
+#[test]
+fn rlc_derived_uncertainties_match_the_uncertainties_package() {
+    use benchrec::uncertainty::{propagate, Dist, Input, Model};
+    let fit = include_str!("reference/rlc_curve_fit.out");
+    let nums = |key: &str| -> Vec<Vec<f64>> {
+        fit.lines()
+            .filter(|l| l.split_whitespace().next() == Some(key))
+            .map(|l| {
+                l.split_whitespace()
+                    .skip(1)
+                    .map(|x| x.parse().unwrap())
+                    .collect()
+            })
+            .collect()
+    };
+    let popt = nums("popt").remove(0);
+    let pcov = nums("pcov");
+    let names = ["f0", "Q", "Rtotal"];
+    let inputs: Vec<Input> = (0..3)
+        .map(|k| Input::type_b(names[k], popt[k], pcov[k][k].sqrt(), Dist::Normal))
+        .collect();
+    let mut corr = Vec::new();
+    for a in 0..3 {
+        for b in a + 1..3 {
+            corr.push((a, b, pcov[a][b] / (pcov[a][a] * pcov[b][b]).sqrt()));
+        }
+    }
+    let model = Model {
+        inputs: &inputs,
+        corr: &corr,
+    };
+    let p = propagate(&model, &benchrec::networks::rlc::derived_lin, 0.95).unwrap();
+    let rows = reference_rows(include_str!("reference/rlc_derived_uncertainty.out"));
+    assert_eq!(rows.len(), benchrec::networks::rlc::DERIVED.len());
+    for (k, (name, _, value, u)) in rows.into_iter().enumerate() {
+        assert_eq!(benchrec::networks::rlc::DERIVED[k].0, name);
+        let m = &p.results[k];
+        assert!(
+            ((m.value - value) / value).abs() < 1e-12,
+            "{name}: {} vs {value}",
+            m.value
+        );
+        assert!(
+            ((m.u - u) / u).abs() < 1e-6,
+            "{name}: u {} vs uncertainties {u}",
+            m.u
+        );
+    }
+}
