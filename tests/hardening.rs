@@ -1155,6 +1155,43 @@ fn large_rc_block_of_100k_rows_builds() {
 #[test]
 fn large_rlc_sweep_of_5000_points_builds() {
     build_large("rlc-large.md", &large_rlc_notebook());
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("rlc-large.md");
+    std::fs::write(&nb, large_rlc_notebook()).unwrap();
+    let j = results_json(&nb);
+    // Series resonance (circuit theory): f0 = 1/(2π√(LC)), Q = √(L/C)/Rt, half-power points
+    // f0(√(1 + 1/4Q²) ∓ 1/2Q), from the parts the readings were made with (0.1 mV rounding).
+    let (rt, l, c) = (48.9f64, 6.8e-3f64, 68e-9f64);
+    let f0 = 1.0 / (2.0 * std::f64::consts::PI * (l * c).sqrt());
+    let q = (l / c).sqrt() / rt;
+    let s = (1.0 + 1.0 / (4.0 * q * q)).sqrt();
+    for (name, want, tol) in [
+        ("f0", f0, 1e-5),
+        ("Q", q, 1e-5),
+        ("L", l, 1e-5),
+        ("C", c, 1e-5),
+        ("Rtotal", rt, 1e-5),
+        ("f_low", f0 * (s - 0.5 / q), 1e-3),
+        ("f_high", f0 * (s + 0.5 / q), 1e-3),
+    ] {
+        let got = block_value(&j, name);
+        assert!(
+            (got / want - 1.0).abs() < tol,
+            "{name} = {got}, want {want}"
+        );
+    }
+}
+
+/// The value of the block result `name` (no `f`) of block 0.
+fn block_value(j: &serde_json::Value, name: &str) -> f64 {
+    j["blocks"][0]["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["name"] == name && r.get("f").is_none())
+        .unwrap_or_else(|| panic!("no block result {name}"))["value"]
+        .as_f64()
+        .unwrap()
 }
 
 #[test]
@@ -1164,21 +1201,29 @@ fn large_rc_block_of_5000_frequencies_builds_and_keeps_c() {
     let nb = dir.path().join("rc-sweep.md");
     std::fs::write(&nb, large_rc_distinct_notebook()).unwrap();
     let j = results_json(&nb);
-    let c = j["blocks"][0]["results"]
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|r| r["name"] == "C")
-        .expect("block C")["value"]
-        .as_f64()
-        .unwrap();
-    // The readings were made from C = 68 nF (synthetic); 0.1 mV rounding moves the mean little.
-    assert!((c / 68e-9 - 1.0).abs() < 2e-3, "C = {c}");
+    // The block C: the result named C without `f` (the first C in the list is the 200 Hz row).
+    let c = block_value(&j, "C");
+    // The readings were made from C = 68 nF (synthetic) and rounded to 0.1 mV; over 5 000
+    // frequencies the rounding averages out (their mean C computed apart: 68 nF × (1 + 1.4e-7)).
+    assert!((c / 68e-9 - 1.0).abs() < 1e-5, "C = {c}");
 }
 
 /// Writes the large notebooks into $BENCHREC_WRITE_LARGE (for measuring with /usr/bin/time).
 #[test]
 fn write_large_notebooks_when_asked() {
+    // The generators' notebooks parse (the large tests above rely on them).
+    for t in [
+        large_rc_notebook(),
+        large_rlc_notebook(),
+        large_rc_distinct_notebook(),
+    ] {
+        if let Err(d) = benchrec::notebook::parse(&t) {
+            panic!(
+                "a large notebook does not parse: {:?}",
+                &d[..d.len().min(3)]
+            );
+        }
+    }
     if let Some(d) = std::env::var_os("BENCHREC_WRITE_LARGE") {
         let d = PathBuf::from(d);
         std::fs::create_dir_all(&d).unwrap();
