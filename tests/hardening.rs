@@ -1460,22 +1460,43 @@ proptest! {
     /// No string makes the notebook parser panic (brief: never panic on input).
     #[test]
     fn notebook_parse_never_panics_on_any_string(src in any::<String>()) {
-        let _ = benchrec::notebook::parse(&src);
+        check_notebook_target("any string", &src);
     }
 
     #[test]
     fn notebook_parse_never_panics_on_notebook_fragments(src in notebook_like()) {
-        if let Err(d) = benchrec::notebook::parse(&src) {
-            let body = src.strip_prefix('\u{feff}').unwrap_or(&src);
-            for x in d {
-                prop_assert!(x.span.end <= body.len() && x.span.start <= x.span.end);
+        check_notebook_target("fragments", &src);
+    }
+
+    /// Structured: the catalogue's base notebook (which parses) with one random edit (a
+    /// stretch cut out, a fragment or any text put in), so most cases get past the front
+    /// matter into the blocks and the reduction. Parse keeps the fuzz target's properties; a
+    /// notebook that parses reduces without panic, to finite values.
+    #[test]
+    fn edited_notebooks_keep_spans_and_reduce_to_finite_values(
+        at in 0.0f64..1.0,
+        cut in 0usize..12,
+        put in prop_oneof![notebook_like(), any::<String>(), "[0-9eE.+-]{0,6}"],
+    ) {
+        let base = base_notebook();
+        let mut i = (at * base.len() as f64) as usize;
+        while !base.is_char_boundary(i) { i -= 1; }
+        let mut j = (i + cut).min(base.len());
+        while !base.is_char_boundary(j) { j -= 1; }
+        let src = format!("{}{put}{}", &base[..i], &base[j..]);
+        check_notebook_target("edited", &src);
+        if let Ok(nb) = benchrec::notebook::parse(&src) {
+            if let Ok(red) = benchrec::networks::reduce(&nb) {
+                for r in red.blocks.iter().flat_map(|b| b.rows.iter().chain(&b.results)) {
+                    prop_assert!(r.m.value.is_finite() && r.m.u.is_finite(), "{} in {:?}", r.name, src);
+                }
             }
         }
     }
 
     #[test]
     fn parse_quantity_never_panics(t in any::<String>()) {
-        let _ = benchrec::quantity::parse_quantity(&t);
+        check_quantity_target("any string", &t);
     }
 
     #[test]
