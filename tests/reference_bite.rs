@@ -488,3 +488,21 @@ fn rlc_derived_uncertainties_match_the_uncertainties_package() {
         );
     }
 }
+
+// coverage_factor's fallbacks, pinned: a non-positive ν is taken as 1, so k = t95(1) = 12.71
+// (GUM Table G.2); p = 2 is clamped to 1 − 10⁻¹², so k is the t(3) quantile at 1 − 5·10⁻¹³,
+// 13 016.38 (closed-form t(3) CDF solved with mpmath: tests/reference/t3_quantile.py, .out).
+#[test]
+fn coverage_factor_fallbacks_are_pinned() {
+    assert!((coverage_factor(0.95, Some(0.0)) - 12.71).abs() < 0.005);
+    assert!((coverage_factor(0.95, Some(-3.0)) - 12.71).abs() < 0.005);
+    let t3: f64 = include_str!("reference/t3_quantile.out")
+        .lines()
+        .find_map(|l| l.strip_prefix("t3 "))
+        .unwrap()
+        .parse()
+        .unwrap();
+    // statrs' inverse t CDF is good to 3e-5 this far in the tail (measured).
+    let k = coverage_factor(2.0, Some(3.0));
+    assert!(((k - t3) / t3).abs() < 1e-4, "k = {k}, mpmath {t3}");
+}
