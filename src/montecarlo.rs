@@ -620,8 +620,8 @@ mod tests {
 
     #[test]
     fn tolerance_examples() {
-        // JCGM 101 §7.9.2 (from memory): u = 0.0036 held to two digits → c = 36, l = −4,
-        // δ = 0.5 × 10⁻⁴; u = 2.0 → δ = 0.05.
+        // Derived from the rule of JCGM 101 §7.9.2 (not its examples, which are in
+        // tests/reference_bite.rs): u = 0.0036 to two digits → c = 36, l = −4, δ = 0.5 × 10⁻⁴.
         assert!((numerical_tolerance(0.0036, 2) - 0.5e-4).abs() < 1e-18);
         assert!((numerical_tolerance(2.0, 2) - 0.05).abs() < 1e-15);
         assert!((numerical_tolerance(1.0, 2) - 0.05).abs() < 1e-15);

@@ -1850,8 +1850,13 @@ fn tolerance(
                 );
                 return None;
             };
-            // IEC 60062 (from memory): below 10 pF the letters B–G mean absolute pF values.
-            if kind == PartKind::Capacitor && nominal.is_some_and(|n| n.value < 10e-12) {
+            // IEC 60062 (from memory): below 10 pF the letters B–G mean absolute pF values
+            // (B 0.1, C 0.25, D 0.5, F 1, G 2 pF), so they are refused; J, K, M stay percent.
+            let absolute_below_10pf = matches!(c, 'B' | 'C' | 'D' | 'F' | 'G');
+            if kind == PartKind::Capacitor
+                && absolute_below_10pf
+                && nominal.is_some_and(|n| n.value < 10e-12)
+            {
                 ex.err(
                     Diagnostic::new(
                         span,

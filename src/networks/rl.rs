@@ -829,8 +829,9 @@ mod tests {
     }
 
     // Law of cosines in the voltage triangle (three-voltmeter method as in electrical
-    // measurement handbooks, e.g. Golding & Widdis, from memory): a 3-4-5 style check. With
-    // VR = 3, VL = 5 and θ = 60°, Vs² = 9 + 25 + 2·15·0.5 = 49: Vs = 7, cos θ = 0.5.
+    // measurement handbooks, e.g. Golding & Widdis, from memory): a 3-5-7 triangle. With
+    // VR = 3, VL = 5 and θ = 60°, Vs² = 9 + 25 + 2·15·0.5 = 49: Vs = 7, cos θ = 0.5. (The 3-4-5
+    // case, an ideal coil, is in tests/reference_bite.rs.)
     #[test]
     fn law_of_cosines_triangle() {
         assert!((cos_theta(7.0, 3.0, 5.0) - 0.5).abs() < 1e-15);
