@@ -85,8 +85,16 @@ enum Verb {
     },
     /// Parse and reduce, report every problem, write nothing
     Check {
+        /// Notebook files, or folders to search for notebooks
         #[arg(required = true)]
         paths: Vec<PathBuf>,
+        /// Also print the notes on the method (warnings are always printed)
+        #[arg(short, long)]
+        verbose: bool,
+        /// Exit 1 when a notebook has warnings, a verdict other than pass or a safety limit
+        /// exceeded, as well as on errors
+        #[arg(long)]
+        strict: bool,
     },
     /// Print results on standard output (SI units): JSON for one notebook, or CSV
     Results {
@@ -157,7 +165,11 @@ fn main() -> ExitCode {
             output,
             force,
         } => build(&paths, output.as_deref(), force),
-        Verb::Check { paths } => check(&paths),
+        Verb::Check {
+            paths,
+            verbose,
+            strict,
+        } => check(&paths, verbose, strict),
         Verb::Results { path, format } => results(&path, format),
         Verb::Sign {
             notebook,
@@ -308,17 +320,51 @@ fn analyse(nb: &Path) -> Result<benchrec::judge::Record, Failure> {
     pipeline::render_file(nb).map(|(rec, _pdf)| rec)
 }
 
-fn check(paths: &[PathBuf]) -> ExitCode {
+fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
     let mut failed = 0;
+    let mut reserved = 0;
     for nb in notebooks_of(paths) {
         match analyse(&nb) {
             Ok(rec) => {
-                let flags: usize = rec.reduction.blocks.iter().map(|b| b.flags.len()).sum();
+                let n = |c: usize, one: &str, many: &str| {
+                    format!("{c} {}", if c == 1 { one } else { many })
+                };
+                let flags = rec.reduction.blocks.iter().flat_map(|b| &b.flags);
+                let warnings: Vec<_> = flags.clone().filter(|f| f.warn).collect();
+                let notes: Vec<_> = flags.filter(|f| !f.warn).collect();
                 say!(
-                    "ok {} ({} blocks, {flags} flags)",
+                    "ok {} ({}, {}, {})",
                     nb.display(),
-                    rec.reduction.blocks.len()
+                    n(rec.reduction.blocks.len(), "block", "blocks"),
+                    n(warnings.len(), "warning", "warnings"),
+                    n(notes.len(), "note", "notes"),
                 );
+                let at = |f: &benchrec::networks::Flag| match f.span {
+                    Some(sp) => {
+                        let (l, c) = benchrec::diag::line_col(&rec.notebook.source, sp.start);
+                        format!("{}:{l}:{c}", nb.display())
+                    }
+                    None => nb.display().to_string(),
+                };
+                for f in &warnings {
+                    say!("  warning: {}: {}", at(f), f.message);
+                }
+                if verbose {
+                    for f in &notes {
+                        say!("  note: {}: {}", at(f), f.message);
+                    }
+                }
+                for v in &rec.verdicts {
+                    let word = match v.outcome {
+                        benchrec::judge::Outcome::Pass => "pass",
+                        benchrec::judge::Outcome::Fail => "FAIL",
+                        benchrec::judge::Outcome::Inconclusive => "inconclusive",
+                    };
+                    say!("  {word:<12} {} of {} (block {})", v.name, v.part, v.block);
+                }
+                if !benchrec::judge::reservations(&rec).is_empty() {
+                    reserved += 1;
+                }
             }
             Err(f) => {
                 eprint!("{}", f.report());
@@ -326,7 +372,7 @@ fn check(paths: &[PathBuf]) -> ExitCode {
             }
         }
     }
-    if failed > 0 {
+    if failed > 0 || (strict && reserved > 0) {
         ExitCode::from(1)
     } else {
         ExitCode::SUCCESS

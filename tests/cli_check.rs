@@ -1,0 +1,56 @@
+//! `check` says what matters: every warning with its file:line:column, notes with `-v`, one
+//! line per verdict, and `--strict` exits 1 on a record with reservations.
+
+use std::path::PathBuf;
+use std::process::{Command, Output};
+
+fn run(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_benchrec"))
+        .args(args)
+        .output()
+        .expect("benchrec runs")
+}
+
+fn demo(name: &str) -> String {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("demo")
+        .join(name)
+        .to_str()
+        .unwrap()
+        .to_string()
+}
+
+#[test]
+fn check_prints_warnings_at_their_row_and_strict_fails_on_them() {
+    let snub = demo("snubber-caps.md");
+    let text = std::fs::read_to_string(&snub).unwrap();
+    // The 1.2 kHz row of the invented snubber data fails the Kirchhoff check (Vs against
+    // √(VR² + VC²), a handbook identity of the series RC); find its line independently.
+    let line = text
+        .lines()
+        .position(|l| l.starts_with("1200 ") && l.contains("1.220"))
+        .expect("the 1.2 kHz row")
+        + 1;
+    let o = run(&["check", &snub]);
+    assert_eq!(o.status.code(), Some(0));
+    let out = String::from_utf8_lossy(&o.stdout);
+    let want = format!("warning: {snub}:{line}:1: Kirchhoff check at 1.2 kHz");
+    assert!(out.contains(&want), "{want} not in\n{out}");
+    assert!(out.contains("1 warning, 1 note"), "{out}");
+    assert!(!out.contains("note: "), "notes only with -v: {out}");
+    assert!(
+        out.contains("pass         C of C1 (block snub-c1)"),
+        "{out}"
+    );
+    let v = run(&["check", "-v", &snub]);
+    assert!(String::from_utf8_lossy(&v.stdout).contains("note: "));
+    assert_eq!(run(&["check", "--strict", &snub]).status.code(), Some(1));
+    // The sensor tank has notes but no warning and passes: --strict accepts it.
+    let o = run(&["check", "--strict", &demo("sensor-tank.md")]);
+    assert_eq!(
+        o.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&o.stdout)
+    );
+}
