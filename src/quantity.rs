@@ -550,7 +550,8 @@ pub fn format_value_u(value: f64, expanded_u: f64, unit: Unit) -> String {
     if expanded_u == 0.0 {
         return format_si(value, unit, 6);
     }
-    let pick = if value != 0.0 { value } else { expanded_u };
+    // The prefix follows the larger of |value| and U: "0 ± 14 mV", not "0 ± 14000 µV".
+    let pick = value.abs().max(expanded_u);
     let (_, exp) = display_scale(pick, unit);
     let scale = |x: f64| match unit {
         Unit::Percent => x * 100.0,

@@ -124,10 +124,24 @@ pub fn relative_u(m: &Measured) -> Option<f64> {
 /// from it by less than 1e-7 there).
 const DOF_NORMAL: f64 = 1e7;
 
+/// Degrees of freedom as they enter k and are printed: ν_eff truncated (GUM G.6.4 truncates to
+/// the next lower integer; below 10, where t changes fast, we keep one decimal, truncated),
+/// so that the printed ν reproduces the printed k. Never below 1.
+pub fn dof_for_k(nu: f64) -> f64 {
+    if !(nu > 1.0) {
+        return 1.0;
+    }
+    if nu < 10.0 {
+        ((nu * 10.0 + 1e-9).floor() / 10.0).max(1.0)
+    } else {
+        (nu + 1e-9).floor()
+    }
+}
+
 /// Coverage factor for a two-sided coverage probability `p` (e.g. 0.9545): the Student's t
-/// quantile t_p(ν) for finite `dof` (non-integer allowed, GUM G.3), the normal quantile for
-/// `None`. `p` is clamped into [1e-12, 1 − 1e-12]; a non-positive or NaN dof is taken as 1
-/// (the smallest a Type A evaluation gives).
+/// quantile t_p(ν) at ν = [`dof_for_k`] of a finite `dof`, the normal quantile for `None`.
+/// `p` is clamped into [1e-12, 1 − 1e-12]; a non-positive or NaN dof is taken as 1 (the
+/// smallest a Type A evaluation gives).
 pub fn coverage_factor(p: f64, dof: Option<f64>) -> f64 {
     let p = if p.is_nan() {
         0.9545
@@ -136,8 +150,8 @@ pub fn coverage_factor(p: f64, dof: Option<f64>) -> f64 {
     };
     let q = 0.5 * (1.0 + p);
     match dof {
-        Some(nu) if nu < DOF_NORMAL => {
-            let nu = if nu > 0.0 { nu } else { 1.0 };
+        Some(nu) if !(nu >= DOF_NORMAL) => {
+            let nu = dof_for_k(nu);
             match StudentsT::new(0.0, 1.0, nu) {
                 Ok(t) => t.inverse_cdf(q),
                 Err(_) => normal_quantile(q),
@@ -848,14 +862,26 @@ mod tests {
     }
 
     // GUM Table G.2, p = 95 % row: t(ν=1) = 12.71, t(10) = 2.23, ∞ 1.960.
-    // Non-integer ν: t lies between its integer neighbours (GUM G.3.4 allows interpolation).
+    // Non-integer ν: truncated to an integer from 10 (GUM G.6.4), to one decimal below 10.
     #[test]
     fn coverage_factor_95_and_fractional_dof() {
         assert!(close(coverage_factor(0.95, Some(1.0)), 12.71, 0.005));
         assert!(close(coverage_factor(0.95, Some(10.0)), 2.23, 0.005));
         assert!(close(coverage_factor(0.95, None), 1.960, 0.0005));
-        let k = coverage_factor(0.95, Some(19.04));
-        assert!(k < coverage_factor(0.95, Some(19.0)) && k > coverage_factor(0.95, Some(20.0)));
+        assert_eq!(
+            coverage_factor(0.95, Some(19.97)),
+            coverage_factor(0.95, Some(19.0))
+        );
+        assert_eq!(
+            coverage_factor(0.95, Some(2.152)),
+            coverage_factor(0.95, Some(2.1))
+        );
+        let k = coverage_factor(0.95, Some(2.1));
+        assert!(k < coverage_factor(0.95, Some(2.0)) && k > coverage_factor(0.95, Some(3.0)));
+        assert_eq!(
+            (dof_for_k(2.152), dof_for_k(9.99), dof_for_k(16.6)),
+            (2.1, 9.9, 16.0)
+        );
         // Fallbacks (ν ≤ 0 → 1, p clamped): values pinned in tests/reference_bite.rs.
         assert_eq!(
             coverage_factor(0.95, Some(0.0)),

@@ -232,7 +232,7 @@ fn break_points(name: &str) -> String {
 /// A block result with its budget.
 fn result_json(r: &NamedResult) -> Value {
     let m = &r.m;
-    let (div, unit) = format::scale_for(r.unit, m.value);
+    let (div, unit) = format::scale_for(r.unit, m.value.abs().max(m.expanded.abs()));
     let with_unit = |x: String| {
         if unit.is_empty() {
             x

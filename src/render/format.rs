@@ -202,12 +202,20 @@ pub fn k_text(k: f64) -> String {
     sig(k, 3)
 }
 
-/// Degrees of freedom: "∞" for None, else a whole number (GUM G.6.4 truncates ν_eff).
+/// Degrees of freedom as k was computed from them ([`crate::uncertainty::dof_for_k`]): "∞"
+/// for None, one decimal below 10, else a whole number.
 pub fn dof_text(dof: Option<f64>) -> String {
     match dof {
         None => "∞".into(),
-        Some(v) if !v.is_finite() => "∞".into(),
-        Some(v) => format!("{}", v.max(0.0).floor() as i64),
+        Some(v) if !(v < 1e7) => "∞".into(),
+        Some(v) => {
+            let nu = crate::uncertainty::dof_for_k(v);
+            if nu < 10.0 {
+                format!("{nu:.1}")
+            } else {
+                format!("{nu:.0}")
+            }
+        }
     }
 }
 
@@ -229,7 +237,8 @@ fn join_unit(number: String, unit: &str) -> String {
 
 /// `(468.3 ± 2.1) nF (k = 2.00)`: a result as the record prints it.
 pub fn value_u_k(value: f64, expanded: f64, k: f64, unit: Unit) -> String {
-    let (div, u) = scale_for(unit, value);
+    // The prefix follows the larger of |value| and U: "0 ± 14 mV", not "0 ± 14000 µV".
+    let (div, u) = scale_for(unit, value.abs().max(expanded.abs()));
     let (v, e) = value_and_u(value / div, expanded / div);
     let body = if u.is_empty() {
         format!("{v} ± {e}")
@@ -305,6 +314,12 @@ mod tests {
         assert_eq!(fixed(f64::NAN, 2), "—");
         assert_eq!(dof_text(None), "∞");
         assert_eq!(dof_text(Some(12.7)), "12");
+        assert_eq!(dof_text(Some(2.152)), "2.1");
+        // GUM 7.2.6 rounding on the prefix of the larger of |value| and U.
+        assert_eq!(
+            value_u_k(0.0, 0.014, 2.0, Unit::V),
+            "(0 ± 14) mV (k = 2.00)"
+        );
         assert_eq!(interval(4.653e-7, 4.747e-7, Unit::F), "[465.3, 474.7] nF");
     }
 }
