@@ -229,6 +229,78 @@ fn break_points(name: &str) -> String {
     out
 }
 
+/// The unit of a readings column symbol, for budget cells; `None` where it depends on the
+/// column heading (phase) or is not a column.
+fn symbol_unit(sym: &str) -> Option<&'static str> {
+    match sym {
+        "Vs" | "VR" | "VC" | "VL" | "V" => Some("V"),
+        "I" => Some("A"),
+        "f" => Some("Hz"),
+        "shift" | "period" => Some("div"),
+        _ => None,
+    }
+}
+
+/// A budget input's name as a reader says it, and the unit of its estimate and u:
+/// `gain(dmm,VR)` → "VR gain, dmm" (a relative factor), `counts(dmm,VR@1 kHz)` → "VR counts
+/// at 1 kHz, dmm", `read(scope,shift@1 kHz)` → "shift read-off at 1 kHz, scope",
+/// `VR@1 kHz` → "VR at 1 kHz". Other names (parts, fit parameters) are kept.
+pub fn readable_input(name: &str) -> (String, Option<&'static str>) {
+    let at = |tag: &str| -> (String, Option<&'static str>) {
+        match tag.split_once('@') {
+            Some((sym, f)) => (format!("{sym} at {f}"), symbol_unit(sym)),
+            None => (tag.to_string(), symbol_unit(tag)),
+        }
+    };
+    let call = name
+        .split_once('(')
+        .and_then(|(head, rest)| Some((head, rest.strip_suffix(')')?)))
+        .and_then(|(head, args)| Some((head, args.split_once(',')?)));
+    match call {
+        Some(("gain", (inst, sym))) => (format!("{sym} gain, {inst}"), Some("1")),
+        Some((label @ ("counts" | "read"), (inst, tag))) => {
+            let (what, unit) = at(tag);
+            let word = if label == "read" {
+                "read-off"
+            } else {
+                "counts"
+            };
+            let what = match what.split_once(" at ") {
+                Some((sym, f)) => format!("{sym} {word} at {f}, {inst}"),
+                None => format!("{what} {word}, {inst}"),
+            };
+            (what, unit)
+        }
+        Some(_) => (name.to_string(), None),
+        None if name.contains('@') || symbol_unit(name).is_some() => at(name),
+        None => (name.to_string(), None),
+    }
+}
+
+/// The largest contributions to u_c², as "VR gain, dmm 49 %; VC gain, dmm 47 %" (at most
+/// three, each at least 5 %).
+fn largest_contributions(m: &crate::uncertainty::Measured) -> String {
+    let total: f64 = m.budget.iter().map(|b| b.contribution.powi(2)).sum();
+    if !(total > 0.0) {
+        return String::new();
+    }
+    let mut order: Vec<usize> = (0..m.budget.len()).collect();
+    order.sort_by(|&a, &b| {
+        m.budget[b]
+            .contribution
+            .abs()
+            .total_cmp(&m.budget[a].contribution.abs())
+    });
+    order
+        .iter()
+        .take(3)
+        .map(|&i| (&m.budget[i], m.budget[i].contribution.powi(2) / total))
+        .filter(|(_, share)| *share >= 0.05)
+        .map(|(b, share)| format!("{} {:.0} %", readable_input(&b.input).0, 100.0 * share))
+        .collect::<Vec<_>>()
+        .join("; ")
+}
+
 /// A block result with its budget.
 fn result_json(r: &NamedResult) -> Value {
     let m = &r.m;
@@ -267,10 +339,15 @@ fn result_json(r: &NamedResult) -> Value {
         .iter()
         .map(|&i| &m.budget[i])
         .map(|b| {
+            let (name, unit) = readable_input(&b.input);
+            let with = |x: String| match unit {
+                Some(u) if u != "1" && x != "—" => format!("{x} {u}"),
+                _ => x,
+            };
             json!({
-                "input": break_points(&b.input),
-                "estimate": sci(b.estimate, 5),
-                "u": sci(b.u, 2),
+                "input": break_points(&name),
+                "estimate": with(sci(b.estimate, 5)),
+                "u": with(sci(b.u, 2)),
                 "type": match b.kind { EvalType::A => "A", EvalType::B => "B" },
                 "distribution": dist_text(b.dist),
                 "sensitivity": sci(b.sensitivity, 3),
@@ -320,6 +397,7 @@ fn result_json(r: &NamedResult) -> Value {
         "u": with_unit(sig(m.u / div, 2)),
         "dof": dof_text(m.dof),
         "budget": lines,
+        "largest": largest_contributions(m),
         "budget_widths": budget_widths,
         "budget_omitted": omitted,
         "mc": mc,
@@ -924,6 +1002,24 @@ fn readings_json(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn budget_inputs_read_as_words_with_units() {
+        let r = |n: &str| readable_input(n);
+        assert_eq!(r("gain(dmm,VR)"), ("VR gain, dmm".into(), Some("1")));
+        assert_eq!(
+            r("counts(dmm,VC@1.2 kHz)"),
+            ("VC counts at 1.2 kHz, dmm".into(), Some("V"))
+        );
+        assert_eq!(
+            r("read(scope,shift@300 Hz)"),
+            ("shift read-off at 300 Hz, scope".into(), Some("div"))
+        );
+        assert_eq!(r("VR@2.4 kHz"), ("VR at 2.4 kHz".into(), Some("V")));
+        assert_eq!(r("I"), ("I".into(), Some("A")));
+        assert_eq!(r("R1"), ("R1".into(), None));
+        assert_eq!(r("f(x,y"), ("f(x,y".into(), None));
+    }
 
     #[test]
     fn symbols_follow_iso_80000_1() {
