@@ -211,7 +211,8 @@ fn worst(
 }
 
 /// Computed safety checks from the readings: series resistor dissipation VR²/R, capacitor
-/// peak voltage √2·VC (or √2·I·XC from the nominal C where VC was not read), coil current.
+/// peak voltage √2·VC (or √2·I·XC from the measured C, else the nominal, where VC was not
+/// read), coil current.
 pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<SafetyCheck> {
     let parts: Vec<&Part> = block
         .parts
@@ -250,7 +251,15 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                 push(part, "dissipation VR²/R", w, Unit::W, d.resistor_power);
             }
             PartKind::Capacitor => {
-                let c = part.nominal.map(|q| q.value);
+                // The measured C where there is one, else the nominal; the check says which.
+                let c = part_value(part);
+                let what = if block.col("VC").is_some() {
+                    "peak voltage √2·VC".to_string()
+                } else if part.measured.is_some() {
+                    "peak voltage √2·I/(2πf·C), C measured".to_string()
+                } else {
+                    "peak voltage √2·I/(2πf·C), C nominal".to_string()
+                };
                 let w = worst(block, |g| {
                     let vc = g("VC").or_else(|| {
                         let i = current(g)?;
@@ -259,7 +268,7 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                     })?;
                     Some(std::f64::consts::SQRT_2 * vc)
                 });
-                push(part, "peak voltage √2·VC", w, Unit::V, d.capacitor_voltage);
+                push(part, &what, w, Unit::V, d.capacitor_voltage);
             }
             PartKind::Inductor => {
                 let Some(rating) = part.rating else { continue };

@@ -807,6 +807,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "instruments": fm.instruments.iter().map(|(n, i)| instrument_json(n, i, date)).collect::<Vec<_>>(),
         "parts": fm.parts.iter().map(|(n, p)| part_json(n, p)).collect::<Vec<_>>(),
         "items": items,
+        "cautions": cautions(record),
         "record_notes": shared.iter().collect::<Vec<_>>(),
         "verdicts": verdicts,
         "safety": safety,
@@ -827,6 +828,43 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         files,
         sources,
         attachment,
+    })
+}
+
+/// Which bench cautions apply: the probe-ground one when a block reads a phase or a trace
+/// shift (a two-trace display) or an instrument is described as a scope; the stored-charge one
+/// when a capacitor is used; the inductive-kick one when a coil is.
+fn cautions(record: &Record) -> Value {
+    let nb = &record.notebook;
+    let blocks: Vec<&ReadingsBlock> = nb
+        .items
+        .iter()
+        .filter_map(|i| match i {
+            Item::Readings(b) => Some(b),
+            _ => None,
+        })
+        .collect();
+    let scope = blocks.iter().any(|b| {
+        b.phase.is_some()
+            || ["phi", "shift", "period"]
+                .iter()
+                .any(|c| b.col(c).is_some())
+    }) || nb.front.instruments.values().any(|i| {
+        i.what
+            .as_deref()
+            .is_some_and(|w| w.to_lowercase().contains("scope"))
+    });
+    let used = |k: PartKind| {
+        blocks.iter().any(|b| {
+            b.parts
+                .iter()
+                .any(|n| nb.front.parts.get(&n.name).is_some_and(|p| p.kind == k))
+        })
+    };
+    json!({
+        "scope": scope,
+        "capacitor": used(PartKind::Capacitor),
+        "inductor": used(PartKind::Inductor),
     })
 }
 
