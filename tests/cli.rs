@@ -108,9 +108,14 @@ fn two_builds_are_byte_identical_and_declare_pdfa3b_with_the_source_attached() {
         || s.contains("pdfaid:conformance=\"B\"");
     assert!(xmp_part && xmp_conf, "XMP does not declare PDF/A-3b");
     let files = benchrec::signoff::pdf_attachments(&pa).unwrap();
-    assert_eq!(files.len(), 1, "one attachment expected");
+    assert_eq!(files.len(), 2, "the notebook and the summary expected");
+    let md = files
+        .iter()
+        .find(|(n, _)| n.ends_with(".md"))
+        .expect("notebook attached");
+    assert!(files.iter().any(|(n, _)| n == "benchrec-summary.json"));
     assert_eq!(
-        files[0].1,
+        md.1,
         std::fs::read(&nb).unwrap(),
         "attachment differs from the notebook bytes"
     );
@@ -316,7 +321,8 @@ fn tamper_attachment(pdf: &[u8], from: &str, to: &str) -> Vec<u8> {
         .iter()
         .filter(|(_, o)| {
             o.as_stream()
-                .is_ok_and(|s| matches!(s.dict.get(b"Type"), Ok(lopdf::Object::Name(n)) if n == b"EmbeddedFile"))
+                .is_ok_and(|s| matches!(s.dict.get(b"Type"), Ok(lopdf::Object::Name(n)) if n == b"EmbeddedFile")
+                    && matches!(s.dict.get(b"Subtype"), Ok(lopdf::Object::Name(n)) if n.ends_with(b"markdown")))
         })
         .map(|(id, _)| *id)
         .collect();

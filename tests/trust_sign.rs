@@ -389,7 +389,8 @@ fn swap_attachment(pdf: &[u8], notebook: &[u8]) -> Vec<u8> {
         .iter()
         .filter(|(_, o)| {
             o.as_stream().is_ok_and(
-                |s| matches!(s.dict.get(b"Type"), Ok(lopdf::Object::Name(n)) if n == b"EmbeddedFile"),
+                |s| matches!(s.dict.get(b"Type"), Ok(lopdf::Object::Name(n)) if n == b"EmbeddedFile")
+                    && matches!(s.dict.get(b"Subtype"), Ok(lopdf::Object::Name(n)) if n.ends_with(b"markdown")),
             )
         })
         .map(|(id, _)| *id)

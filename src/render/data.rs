@@ -785,6 +785,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         assets.source.clone()
     };
     files.insert(attachment.clone(), bytes);
+    files.insert(SUMMARY_PATH.into(), summary_json(record).into_bytes());
 
     let date = fm.date;
     use chrono::Datelike;
@@ -829,6 +830,48 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         sources,
         attachment,
     })
+}
+
+/// Virtual path (and attachment name) of the record's summary, which `benchrec index` reads.
+pub const SUMMARY_PATH: &str = "/benchrec-summary.json";
+
+/// The summary attached beside the notebook: what an archive index shows without reducing
+/// the notebook again. `digest` ties it to the attached notebook's readings.
+pub fn summary_json(record: &Record) -> String {
+    let fm = &record.notebook.front;
+    let count = |o: Outcome| record.verdicts.iter().filter(|v| v.outcome == o).count();
+    let warnings: usize = record
+        .reduction
+        .blocks
+        .iter()
+        .map(|b| b.flags.iter().filter(|f| f.warn).count())
+        .sum::<usize>()
+        + record.safety.iter().filter(|s| !s.ok).count();
+    let overdue: Vec<&str> = fm
+        .instruments
+        .values()
+        .filter(|i| i.due.is_some_and(|d| d < fm.date))
+        .map(|i| i.name.as_str())
+        .collect();
+    json!({
+        "summary": 1,
+        "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
+        "record": fm.record,
+        "title": fm.title,
+        "date": fm.date.to_string(),
+        "operator": fm.operator,
+        "lab": fm.lab,
+        "lot": fm.lot,
+        "digest": record.digest,
+        "verdicts": {
+            "pass": count(Outcome::Pass),
+            "fail": count(Outcome::Fail),
+            "inconclusive": count(Outcome::Inconclusive),
+        },
+        "warnings": warnings,
+        "overdue": overdue,
+    })
+    .to_string()
 }
 
 /// Which bench cautions apply: the probe-ground one when a block reads a phase or a trace
