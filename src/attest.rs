@@ -329,6 +329,10 @@ pub fn verify_tree(dir: &Path, signers: Option<&Signers>) -> Vec<Report> {
         .filter(|e| e.file_type().is_file())
         .map(|e| e.into_path())
         .filter(|p| p.extension().is_some_and(|x| x.eq_ignore_ascii_case("pdf")))
+        // The archive index (`benchrec index DIR`) is not a record; nor is the cache folder.
+        .filter(|p| {
+            p != &dir.join("index.pdf") && !p.components().any(|c| c.as_os_str() == ".benchrec")
+        })
         .collect();
     pdfs.sort();
     pdfs.par_iter()

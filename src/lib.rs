@@ -9,6 +9,8 @@ pub mod attest;
 pub mod batch;
 pub mod diag;
 pub mod export;
+#[cfg(feature = "typeset")]
+pub mod index;
 pub mod judge;
 pub mod montecarlo;
 pub mod networks;

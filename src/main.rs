@@ -128,6 +128,9 @@ enum Verb {
         #[arg(long, value_name = "FILE")]
         signers: Option<PathBuf>,
     },
+    /// Write DIR/index.html and DIR/index.pdf: every record PDF under DIR with its state,
+    /// verdict counts, warnings and instruments past due (incremental)
+    Index { dir: PathBuf },
     /// Rebuild a notebook (or every notebook under a folder) each time it is saved
     Watch {
         path: PathBuf,
@@ -188,6 +191,7 @@ fn main() -> ExitCode {
         ),
         Verb::Verify { path, signers } => verify(&path, signers.as_deref()),
         Verb::Watch { path, max_builds } => watch(&path, max_builds),
+        Verb::Index { dir } => index(&dir),
         Verb::New { path, record } => new_notebook(&path, record),
         Verb::Completions { shell } => {
             use clap_complete::Shell as S;
@@ -484,6 +488,37 @@ fn verify(path: &Path, signers: Option<&Path>) -> ExitCode {
         ExitCode::SUCCESS
     } else {
         ExitCode::from(1)
+    }
+}
+
+fn index(dir: &Path) -> ExitCode {
+    if !dir.is_dir() {
+        eprintln!("error: {}: not a folder", dir.display());
+        return ExitCode::from(1);
+    }
+    match benchrec::index::index_dir(dir) {
+        Ok(ix) => {
+            let bad = ix
+                .rows
+                .iter()
+                .filter(|r| r.state == "error" || r.state == "mismatch")
+                .count();
+            say!(
+                "indexed {} record(s) ({} read, {} unchanged) into {} and {}{}",
+                ix.rows.len(),
+                ix.read,
+                ix.rows.len() - ix.read,
+                ix.html.display(),
+                ix.pdf.display(),
+                if bad > 0 {
+                    format!("; {bad} could not be read or do not match")
+                } else {
+                    String::new()
+                }
+            );
+            ExitCode::SUCCESS
+        }
+        Err(f) => fail(&f),
     }
 }
 
