@@ -161,6 +161,21 @@ pub fn reduce_block(ctx: &Context, b: &ReadingsBlock) -> Result<BlockResult, Vec
     }
 }
 
+/// Says a maths error that carries no span of its own (a singular fit, a non-finite output)
+/// at the whole block: "block <id> could not be reduced: …".
+pub trait AtBlock<T> {
+    fn at_block(self, block: &ReadingsBlock) -> Result<T, Vec<Diagnostic>>;
+}
+
+impl<T, E: std::fmt::Display> AtBlock<T> for Result<T, E> {
+    fn at_block(self, block: &ReadingsBlock) -> Result<T, Vec<Diagnostic>> {
+        self.map_err(|e| {
+            let message = format!("block {} could not be reduced: {e}", block.id);
+            vec![Diagnostic::new(block.span, message)]
+        })
+    }
+}
+
 /// Whether every number of `m` (value, u, k, U, ν, budget, Monte Carlo) is finite; ν = ∞ is
 /// written `None`, so a finite `Some` is required.
 fn all_finite(m: &Measured) -> bool {

@@ -7,7 +7,7 @@
 //! same propagation so shared gains and R stay correlated.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{BlockResult, Context, Flag, NamedResult, PlotData};
+use super::{AtBlock, BlockResult, Context, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
@@ -118,16 +118,10 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let pattern: Vec<Vec<usize>> = (0..ng)
         .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), per))
         .collect();
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
-    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(fail)?;
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     // Block C = mean of the groups' C.
     let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
-    let block_c = p.linear(&bi.model(), &w, ctx.coverage).map_err(fail)?;
+    let block_c = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
 
     let x0 = bi.estimates();
     let mut rows = Vec::new();

@@ -13,7 +13,7 @@
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
 use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{AtBlock, BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
@@ -311,12 +311,6 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         inputs.len() - 1
     });
     let dcr_value = dcr_idx.and_then(|i| inputs.get(i)).map(|i| i.value);
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
     let ng = bi.groups.len();
     let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
 
@@ -340,7 +334,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         &cos_model,
         ctx.coverage,
     )
-    .map_err(fail)?;
+    .at_block(block)?;
     let mut tri_ok = vec![false; ng];
     let mut q_ok = vec![false; ng];
     let mut dc_ok = vec![false; ng];
@@ -465,7 +459,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         &rows_model,
         ctx.coverage,
     )
-    .map_err(fail)?;
+    .at_block(block)?;
 
     // Inverse-variance weights (fixed at the row uncertainties) for the block means.
     let mut weights: Vec<(&'static str, Vec<(usize, f64)>)> = Vec::new();
@@ -525,7 +519,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         &full_model,
         ctx.coverage,
     )
-    .map_err(fail)?;
+    .at_block(block)?;
 
     // Results per row.
     let unit_of = |n: &str| match n {

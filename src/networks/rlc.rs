@@ -16,7 +16,7 @@
 //! of the readings' distributions.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{AtBlock, BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo};
 use crate::notebook::{Network, PartKind, ReadingsBlock};
@@ -450,12 +450,6 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         });
     }
     let level = block.source.unwrap_or(f64::NAN);
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
     let ng = bi.groups.len();
     // Groups in order of frequency.
     let mut order: Vec<usize> = (0..ng).collect();
@@ -491,7 +485,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         v.dedup();
         v
     };
-    let py = propagate_sparse(&model, &ys_model, Some(&own), ctx.coverage).map_err(fail)?;
+    let py = propagate_sparse(&model, &ys_model, Some(&own), ctx.coverage).at_block(block)?;
     let ys = py.values.clone();
     let u_tot: Vec<f64> = py.results.iter().map(|m| m.u).collect();
 
@@ -503,7 +497,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .map(|&g| bi.voltage("VR", g, x) / bi.r(x))
             .collect()
     };
-    let pi = propagate_sparse(&model, &i_model, Some(&own), ctx.coverage).map_err(fail)?;
+    let pi = propagate_sparse(&model, &i_model, Some(&own), ctx.coverage).at_block(block)?;
     for (k, m) in pi.results.iter().enumerate() {
         rows.push(NamedResult {
             name: "I".into(),
@@ -652,7 +646,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                 &derived_lin,
                 ctx.coverage,
             )
-            .map_err(fail)?;
+            .at_block(block)?;
             let mc = monte_carlo(
                 &fit_in,
                 &corr,

@@ -5,7 +5,7 @@
 //! column there is one set per distinct f (per-frequency results); without, one block set.
 
 use super::inputs::{fmt_hz, BlockInputs, Group, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{AtBlock, BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
@@ -90,12 +90,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let pattern: Vec<Vec<usize>> = (0..ng)
         .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), 3))
         .collect();
-    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(|e| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    })?;
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     let names = [("R", Unit::Ohm), ("X", Unit::Ohm), ("Z", Unit::Ohm)];
     let mut rows = Vec::new();
     let mut results = Vec::new();

@@ -6,7 +6,7 @@ use super::table::{
     pipe_cells, trim_tok, ws_tokens, CellRange,
 };
 use super::values::{undefined, ValueReader};
-use super::words::{list, suggest};
+use super::words::{list, one_of};
 use super::yaml::{kind_name, YamlLocator};
 use super::{
     line_text, required_columns, split_lines, Cell, Column, Named, Network, ReadingsBlock, Row,
@@ -108,26 +108,11 @@ pub(super) fn parse_block(
                         "network" => {
                             network_seen = true;
                             if let Some(s) = ex.text(&path, val) {
-                                let t = s.trim();
-                                network = match t {
-                                    "RC" => Some(Network::RC),
-                                    "RL" => Some(Network::RL),
-                                    "RLC" => Some(Network::RLC),
-                                    "Z" => Some(Network::Z),
-                                    _ => {
-                                        let mut dg = Diagnostic::new(
-                                            y.value_span(&path),
-                                            format!("unknown network `{t}`"),
-                                        )
-                                        .expected("one of `RC`, `RL`, `RLC`, `Z`")
-                                        .found(format!("`{t}`"));
-                                        if let Some(h) = suggest(t, &["RC", "RL", "RLC", "Z"]) {
-                                            dg = dg.help(h);
-                                        }
-                                        ex.err(dg);
-                                        None
-                                    }
-                                };
+                                let choices = Network::ALL.map(|n| (n.name(), n));
+                                let at = y.value_span(&path);
+                                network = one_of(s.trim(), &choices, "network", at)
+                                    .map_err(|dg| ex.err(dg))
+                                    .ok();
                             }
                         }
                         "parts" => {

@@ -2,7 +2,7 @@
 //! (kind, nominal, tolerance, measured values), sign-off.
 
 use super::values::ValueReader;
-use super::words::suggest;
+use super::words::one_of;
 use super::yaml::{kind_name, YamlLocator};
 use super::{
     Accuracy, Decision, Distribution, FrontMatter, Instrument, Part, PartKind, Signoff, Tolerance,
@@ -266,20 +266,10 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
             }
             "decision" => {
                 if let Some(s) = ex.text(&path, v) {
-                    match s.trim() {
-                        "simple" => fm.decision = Decision::Simple,
-                        "guarded" => fm.decision = Decision::Guarded,
-                        other => {
-                            let span = y.value_span(&path);
-                            let mut dg =
-                                Diagnostic::new(span, format!("unknown decision rule `{other}`"))
-                                    .expected("`simple` or `guarded`")
-                                    .found(format!("`{other}`"));
-                            if let Some(h) = suggest(other, &["simple", "guarded"]) {
-                                dg = dg.help(h);
-                            }
-                            ex.err(dg);
-                        }
+                    let rules = [("simple", Decision::Simple), ("guarded", Decision::Guarded)];
+                    match one_of(s.trim(), &rules, "decision rule", y.value_span(&path)) {
+                        Ok(rule) => fm.decision = rule,
+                        Err(dg) => ex.err(dg),
                     }
                 }
             }
@@ -473,8 +463,12 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
             _ => {}
         }
     }
-    match dist.as_ref().map(|(s, sp)| (s.as_str(), *sp)) {
-        None | Some(("rectangular", _)) => {
+    let normal = dist.map(|(s, sp)| {
+        let words = [("rectangular", false), ("normal", true)];
+        (one_of(&s, &words, "distribution", sp), sp)
+    });
+    match normal {
+        None | Some((Ok(false), _)) => {
             if let Some((_, sp)) = k {
                 ex.err(
                     Diagnostic::new(sp, "`k` applies only with `distribution: normal`")
@@ -482,7 +476,7 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
                 );
             }
         }
-        Some(("normal", sp)) => match k {
+        Some((Ok(true), sp)) => match k {
             Some((kv, _)) => ins.distribution = Distribution::Normal { k: kv },
             None => ex.err(
                 Diagnostic::new(sp, "a normal distribution needs its coverage factor")
@@ -490,15 +484,7 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
                     .found("no `k`"),
             ),
         },
-        Some((other, sp)) => {
-            let mut dg = Diagnostic::new(sp, format!("unknown distribution `{other}`"))
-                .expected("`rectangular` or `normal`")
-                .found(format!("`{other}`"));
-            if let Some(h) = suggest(other, &["rectangular", "normal"]) {
-                dg = dg.help(h);
-            }
-            ex.err(dg);
-        }
+        Some((Err(dg), _)) => ex.err(dg),
     }
     if let (Some(c), Some(du)) = (ins.calibrated, ins.due) {
         if du < c {
@@ -545,18 +531,14 @@ fn part(
         Some((_, kv)) => {
             let path = ["parts", name, "kind"];
             let t = ex.text(&path, kv)?;
-            match t.trim() {
-                "resistor" => PartKind::Resistor,
-                "capacitor" => PartKind::Capacitor,
-                "inductor" => PartKind::Inductor,
-                other => {
-                    let sp = ex.y.value_span(&path);
-                    let mut dg = Diagnostic::new(sp, format!("unknown part kind `{other}`"))
-                        .expected("`resistor`, `capacitor` or `inductor`")
-                        .found(format!("`{other}`"));
-                    if let Some(h) = suggest(other, &["resistor", "capacitor", "inductor"]) {
-                        dg = dg.help(h);
-                    }
+            let kinds = [
+                ("resistor", PartKind::Resistor),
+                ("capacitor", PartKind::Capacitor),
+                ("inductor", PartKind::Inductor),
+            ];
+            match one_of(t.trim(), &kinds, "part kind", ex.y.value_span(&path)) {
+                Ok(kind) => kind,
+                Err(dg) => {
                     ex.err(dg);
                     return None;
                 }

@@ -165,6 +165,9 @@ pub enum Network {
 }
 
 impl Network {
+    /// Every network, in the order messages list them.
+    pub const ALL: [Network; 4] = [Network::RC, Network::RL, Network::RLC, Network::Z];
+
     pub fn name(self) -> &'static str {
         match self {
             Network::RC => "RC",

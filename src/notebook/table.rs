@@ -1,6 +1,6 @@
 //! Readings tables: cells of pipe and whitespace tables, column headings, plausible ranges.
 
-use super::words::{list, suggest};
+use super::words::{list, unknown};
 use super::{line_text, symbol_unit, Column, Line, SYMBOLS};
 use crate::diag::{Diagnostic, Span};
 use crate::quantity::{self, dimension_name, parse_unit};
@@ -149,16 +149,9 @@ pub(super) fn parse_heading(
     let sym_span = Span::new(sym_tok.start, sym_tok.end);
     let known = SYMBOLS.contains(&sym);
     if !known {
-        let mut dg = Diagnostic::new(
-            if sym.is_empty() { span } else { sym_span },
-            format!("unknown column `{sym}`"),
-        )
-        .expected(format!("one of {} (case-sensitive)", list(SYMBOLS)))
-        .found(format!("`{text}`"));
-        if let Some(h) = suggest(sym, SYMBOLS) {
-            dg = dg.help(h);
-        }
-        d.push(dg);
+        let at = if sym.is_empty() { span } else { sym_span };
+        let expected = format!("one of {} (case-sensitive)", list(SYMBOLS));
+        d.push(unknown(at, "column", sym, SYMBOLS, expected).found(format!("`{text}`")));
     }
     let symbol = known.then(|| sym.to_string());
     let Some(ur) = unit_rel else {

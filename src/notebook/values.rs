@@ -2,7 +2,7 @@
 //! at its span.
 
 use super::front::parse_iso_date;
-use super::words::{list, short, suggest};
+use super::words::{list, short, suggest, unknown};
 use super::yaml::{kind_name, YamlLocator};
 use super::Named;
 use crate::diag::{Diagnostic, Span};
@@ -232,13 +232,8 @@ impl ValueReader<'_, '_> {
                     let mut p: Vec<&str> = path.to_vec();
                     p.push(&name);
                     let span = self.y.key_span(&p);
-                    let mut d = Diagnostic::new(span, format!("unknown key `{name}`"))
-                        .expected(format!("one of {}", list(known)))
-                        .found(format!("`{name}`"));
-                    if let Some(s) = suggest(&name, known) {
-                        d = d.help(s);
-                    }
-                    self.err(d);
+                    let expected = format!("one of {}", list(known));
+                    self.err(unknown(span, "key", &name, known, expected));
                     continue;
                 }
             }
