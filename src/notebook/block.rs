@@ -1,19 +1,13 @@
 //! One readings block: fences, the YAML header, the table, and the checks across them.
 
 use super::front::Defined;
-use super::table::{
-    content_end, is_separator_row, merge_headings, merge_units, out_of_range, parse_heading,
-    pipe_cells, trim_tok, ws_tokens, CellRange,
-};
+use super::table::{parse_table, Table};
 use super::values::{undefined, ValueReader};
 use super::words::{list, one_of};
 use super::yaml::{kind_name, YamlLocator};
-use super::{
-    line_text, required_columns, split_lines, Cell, Column, Named, Network, ReadingsBlock, Row,
-    MAX_HEADER,
-};
+use super::{line_text, required_columns, split_lines, Named, Network, ReadingsBlock, MAX_HEADER};
 use crate::diag::{line_col, Diagnostic, Span};
-use crate::quantity::{self, parse_in_unit, parse_quantity, Unit};
+use crate::quantity::Unit;
 use serde_yaml::Value;
 use std::collections::BTreeMap;
 
@@ -33,6 +27,52 @@ pub(super) fn parse_block(
     d: &mut Vec<Diagnostic>,
 ) -> Option<ReadingsBlock> {
     let src = cx.src;
+    let (open_span, body) = fenced_body(src, r, d)?;
+    let blines = split_lines(src, body.start, body.end);
+    let Some(sep) = blines
+        .iter()
+        .position(|l| line_text(src, l).trim() == "---")
+    else {
+        d.push(
+            Diagnostic::new(
+                open_span,
+                "readings block lacks the `---` line between header and table",
+            )
+            .expected("a YAML header (id, network, …), a line `---`, then the table")
+            .found("no `---` line"),
+        );
+        return None;
+    };
+    let sep_line = blines[sep];
+    let header = header(cx, Span::new(body.start, sep_line.start), open_span, d);
+    // Ids are unique even among blocks that fail elsewhere.
+    if let Some((name, span)) = &header.id {
+        unique_id(src, name, *span, ids, d);
+    }
+    let table = parse_table(src, &blines[sep + 1..], d);
+    let sep_span = Span::new(sep_line.start, sep_line.end);
+    check_table(&table, header.network, sep_span, d);
+    let (id, id_span) = header.id?;
+    Some(ReadingsBlock {
+        id,
+        id_span,
+        network: header.network?,
+        parts: header.parts,
+        meter: header.meter,
+        phase: header.phase,
+        counter: header.counter,
+        note: header.note,
+        source: header.source,
+        columns: table.columns,
+        rows: table.rows,
+        span: r,
+        body: src[body.start..body.end].to_string(),
+    })
+}
+
+/// The opening fence's span and the body between the fences; an unclosed block runs to the
+/// end of `r`.
+fn fenced_body(src: &str, r: Span, d: &mut Vec<Diagnostic>) -> Option<(Span, Span)> {
     let lines = split_lines(src, r.start, r.end);
     let open = *lines.first()?;
     let open_span = Span::new(open.start, open.end);
@@ -56,404 +96,226 @@ pub(super) fn parse_block(
         );
         Span::new(open.next.min(r.end), r.end)
     };
-    let blines = split_lines(src, body.start, body.end);
-    let Some(sep) = blines
-        .iter()
-        .position(|l| line_text(src, l).trim() == "---")
-    else {
-        d.push(
-            Diagnostic::new(
-                open_span,
-                "readings block lacks the `---` line between header and table",
-            )
-            .expected("a YAML header (id, network, …), a line `---`, then the table")
-            .found("no `---` line"),
-        );
-        return None;
-    };
-    let sep_line = blines[sep];
-    let header_end = sep_line.start;
+    Some((open_span, body))
+}
 
-    // Header.
-    let mut id: Option<(String, Span)> = None;
-    let mut network: Option<Network> = None;
-    let mut parts = Vec::new();
-    let (mut meter, mut phase, mut counter, mut note, mut source) = (None, None, None, None, None);
-    let mut network_seen = false;
-    if header_end - body.start > MAX_HEADER {
+/// What a block's header gives; a key that is absent or wrong leaves its field empty.
+#[derive(Default)]
+struct Header {
+    id: Option<(String, Span)>,
+    network: Option<Network>,
+    parts: Vec<Named>,
+    meter: Option<Named>,
+    phase: Option<Named>,
+    counter: Option<Named>,
+    note: Option<String>,
+    /// Stated source level (V).
+    source: Option<f64>,
+}
+
+/// The YAML header in `region` (between the opening fence and the `---` line).
+fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>) -> Header {
+    let mut h = Header::default();
+    let len = region.end - region.start;
+    if len > MAX_HEADER {
         d.push(
             Diagnostic::new(open_span, "readings block header is too long")
                 .expected(format!("at most {} KiB", MAX_HEADER >> 10))
-                .found(format!("{} bytes", header_end - body.start)),
+                .found(format!("{len} bytes")),
         );
-    } else {
-        let y = YamlLocator::new(src, body.start, header_end, open_span);
-        match y.load("block header") {
-            Err(e) => d.push(e),
-            Ok(v) => {
-                let mut ex = ValueReader {
-                    y: &y,
-                    d,
-                    what: "block header",
-                };
-                let entries = ex.entries(&[], &v, Some(HEADER_KEYS));
-                for (key, val) in &entries {
-                    let path = [key.as_str()];
-                    match key.as_str() {
-                        "id" => {
-                            if let Some(s) = ex.nonempty_text(&path, val) {
-                                id = Some((s.trim().to_string(), y.value_span(&path)));
-                            }
-                        }
-                        "network" => {
-                            network_seen = true;
-                            if let Some(s) = ex.text(&path, val) {
-                                let choices = Network::ALL.map(|n| (n.name(), n));
-                                let at = y.value_span(&path);
-                                network = one_of(s.trim(), &choices, "network", at)
-                                    .map_err(|dg| ex.err(dg))
-                                    .ok();
-                            }
-                        }
-                        "parts" => {
-                            let names: Vec<String> = match val {
-                                Value::Sequence(items) => items
-                                    .iter()
-                                    .filter_map(|it| {
-                                        let t = ex.text_of(&path, it);
-                                        if t.is_none() {
-                                            let sp = y.value_span(&path);
-                                            ex.err(
-                                                Diagnostic::new(sp, "`parts` lists part names")
-                                                    .expected("names, e.g. `[R1, C1]`")
-                                                    .found(kind_name(it)),
-                                            );
-                                        }
-                                        t
-                                    })
-                                    .collect(),
-                                Value::String(s) => s
-                                    .split(',')
-                                    .map(|x| x.trim().to_string())
-                                    .filter(|x| !x.is_empty())
-                                    .collect(),
-                                other => {
-                                    let sp = y.value_span(&path);
-                                    ex.err(
-                                        Diagnostic::new(sp, "`parts` lists part names")
-                                            .expected("a list, e.g. `[R1, C1]`")
-                                            .found(kind_name(other)),
-                                    );
-                                    Vec::new()
-                                }
-                            };
-                            for n in names {
-                                let sp = y.item_span(&path, &n);
-                                if cx.defined.known && !cx.defined.parts.contains(&n) {
-                                    ex.err(undefined("part", &n, sp, &cx.defined.parts, "parts"));
-                                }
-                                parts.push(Named { name: n, span: sp });
-                            }
-                        }
-                        "meter" => meter = ex.instrument_name(&path, val, cx.defined.checked()),
-                        "phase" => phase = ex.instrument_name(&path, val, cx.defined.checked()),
-                        "counter" => counter = ex.instrument_name(&path, val, cx.defined.checked()),
-                        "note" => note = ex.text(&path, val),
-                        "source" => {
-                            let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
-                            source = ex.positive(&path, q, "the source level").map(|q| q.value);
-                        }
-                        _ => {}
-                    }
-                }
-                if !entries.iter().any(|(k, _)| k == "id") {
-                    ex.err(
-                        Diagnostic::new(open_span, "readings block lacks `id`")
-                            .expected("a header line `id: <name>`")
-                            .found("no `id`"),
-                    );
-                }
-                if !network_seen {
-                    ex.err(
-                        Diagnostic::new(open_span, "readings block lacks `network`")
-                            .expected("a header line `network: RC` (or RL, RLC, Z)")
-                            .found("no `network`"),
-                    );
+        return h;
+    }
+    let y = YamlLocator::new(cx.src, region.start, region.end, open_span);
+    let v = match y.load("block header") {
+        Ok(v) => v,
+        Err(e) => {
+            d.push(e);
+            return h;
+        }
+    };
+    let mut ex = ValueReader {
+        y: &y,
+        d,
+        what: "block header",
+    };
+    let mut network_seen = false;
+    let entries = ex.entries(&[], &v, Some(HEADER_KEYS));
+    for (key, val) in &entries {
+        let path = [key.as_str()];
+        match key.as_str() {
+            "id" => {
+                if let Some(s) = ex.nonempty_text(&path, val) {
+                    h.id = Some((s.trim().to_string(), y.value_span(&path)));
                 }
             }
+            "network" => {
+                network_seen = true;
+                if let Some(s) = ex.text(&path, val) {
+                    let choices = Network::ALL.map(|n| (n.name(), n));
+                    let at = y.value_span(&path);
+                    h.network = one_of(s.trim(), &choices, "network", at)
+                        .map_err(|dg| ex.err(dg))
+                        .ok();
+                }
+            }
+            "parts" => h.parts = header_parts(cx, &mut ex, val),
+            "meter" => h.meter = ex.instrument_name(&path, val, cx.defined.checked()),
+            "phase" => h.phase = ex.instrument_name(&path, val, cx.defined.checked()),
+            "counter" => h.counter = ex.instrument_name(&path, val, cx.defined.checked()),
+            "note" => h.note = ex.text(&path, val),
+            "source" => {
+                let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
+                h.source = ex.positive(&path, q, "the source level").map(|q| q.value);
+            }
+            _ => {}
         }
     }
-
-    // Ids are unique even among blocks that fail elsewhere.
-    if let Some((name, span)) = &id {
-        match ids.get(name) {
-            Some(first) => {
-                let (l, c) = line_col(src, first.start);
-                d.push(
-                    Diagnostic::new(*span, format!("block id `{name}` is used twice"))
-                        .expected("an id unique in the notebook")
-                        .found(format!("`{name}` again"))
-                        .help(format!("first used at line {l}, column {c}")),
-                );
-            }
-            None => {
-                ids.insert(name.clone(), *span);
-            }
-        }
+    if !entries.iter().any(|(k, _)| k == "id") {
+        ex.err(
+            Diagnostic::new(open_span, "readings block lacks `id`")
+                .expected("a header line `id: <name>`")
+                .found("no `id`"),
+        );
     }
+    if !network_seen {
+        ex.err(
+            Diagnostic::new(open_span, "readings block lacks `network`")
+                .expected("a header line `network: RC` (or RL, RLC, Z)")
+                .found("no `network`"),
+        );
+    }
+    h
+}
 
-    // Table.
-    let mut heading: Option<(Vec<CellRange>, bool, Span)> = None;
-    let mut columns: Vec<Column> = Vec::new();
-    let mut colinfo: Vec<Option<(String, Unit, f64)>> = Vec::new();
-    let mut symbols: Vec<(String, Span)> = Vec::new();
-    let mut rows: Vec<Row> = Vec::new();
-    let mut ncols = 0usize;
-    for l in &blines[sep + 1..] {
-        let cend = content_end(src, l);
-        let t = &src[l.start..cend];
-        if t.trim().is_empty() {
-            continue;
-        }
-        let Some((_, pipe, _)) = heading.as_ref() else {
-            let pipe = t.contains('|');
-            let toks = if pipe {
-                pipe_cells(src, l.start, cend)
-            } else {
-                merge_headings(src, ws_tokens(src, l.start, cend))
-            };
-            let hspan = trim_tok(src, l.start, cend);
-            let hspan = Span::new(hspan.start, hspan.end);
-            ncols = toks.len();
-            for tok in &toks {
-                if tok.start == tok.end {
-                    d.push(
-                        Diagnostic::new(
-                            Span::new(tok.start, (tok.start + 1).min(cend)),
-                            "empty column heading",
-                        )
-                        .expected("`symbol/unit`, e.g. `f/Hz`"),
+/// The header's `parts`: a YAML list or comma-separated text, each name defined in the front
+/// matter (when it could be read).
+fn header_parts(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<Named> {
+    let path = ["parts"];
+    let y = ex.y;
+    let names: Vec<String> = match val {
+        Value::Sequence(items) => items
+            .iter()
+            .filter_map(|it| {
+                let t = ex.text_of(&path, it);
+                if t.is_none() {
+                    let sp = y.value_span(&path);
+                    ex.err(
+                        Diagnostic::new(sp, "`parts` lists part names")
+                            .expected("names, e.g. `[R1, C1]`")
+                            .found(kind_name(it)),
                     );
-                    colinfo.push(None);
-                    continue;
                 }
-                let (sym, col) = parse_heading(src, *tok, d);
-                if let Some(s) = &sym {
-                    if let Some((_, first)) = symbols.iter().find(|(x, _)| x == s) {
-                        let (fl, fc) = line_col(src, first.start);
-                        d.push(
-                            Diagnostic::new(
-                                Span::new(tok.start, tok.end),
-                                format!("column `{s}` appears twice"),
-                            )
-                            .expected("each column once")
-                            .found(format!("a second `{s}`"))
-                            .help(format!("first at line {fl}, column {fc}")),
-                        );
-                    } else {
-                        symbols.push((s.clone(), Span::new(tok.start, tok.end)));
-                    }
-                }
-                match col {
-                    Some((c, f)) => {
-                        colinfo.push(Some((c.symbol.clone(), c.unit, f)));
-                        columns.push(c);
-                    }
-                    None => colinfo.push(None),
-                }
-            }
-            heading = Some((toks, pipe, hspan));
-            continue;
-        };
-        let pipe = *pipe;
-        let cells_tok = if pipe {
-            pipe_cells(src, l.start, cend)
-        } else {
-            merge_units(src, ws_tokens(src, l.start, cend))
-        };
-        if pipe && is_separator_row(src, &cells_tok) {
-            continue;
-        }
-        let rs = trim_tok(src, l.start, cend);
-        let row_span = Span::new(rs.start, rs.end);
-        if cells_tok.len() > ncols && !pipe {
-            // A word right after a number in a whitespace table is most likely a unit that
-            // is not known, not an extra column: say so at the word.
-            let found = (1..cells_tok.len()).find(|&j| {
-                let w = &src[cells_tok[j].start..cells_tok[j].end];
-                let p = &src[cells_tok[j - 1].start..cells_tok[j - 1].end];
-                w.starts_with(|c: char| c.is_alphabetic()) && p.parse::<f64>().is_ok()
-            });
-            if let Some(j) = found {
-                let (prev, extra) = (cells_tok[j - 1], cells_tok[j]);
-                let word = &src[extra.start..extra.end];
-                let joined = format!("{} {word}", &src[prev.start..prev.end]);
-                if let Err(e) = parse_quantity(&joined) {
-                    d.push(
-                        Diagnostic::new(Span::new(extra.start, extra.end), e.message)
-                            .expected(e.expected)
-                            .found(format!("`{word}`")),
-                    );
-                    continue;
-                }
-            }
-        }
-        if cells_tok.len() != ncols {
-            // Too many cells: point at the first one the table has no column for.
-            let at = match cells_tok.get(ncols) {
-                Some(t) if cells_tok.len() > ncols => Span::new(t.start, t.end),
-                _ => row_span,
-            };
-            d.push(
-                Diagnostic::new(
-                    at,
-                    format!(
-                        "row has {} cells but the table has {} columns",
-                        cells_tok.len(),
-                        ncols
-                    ),
-                )
-                .expected(format!("{ncols} cells"))
-                .found(format!("{} cells", cells_tok.len())),
+                t
+            })
+            .collect(),
+        Value::String(s) => s
+            .split(',')
+            .map(|x| x.trim().to_string())
+            .filter(|x| !x.is_empty())
+            .collect(),
+        other => {
+            let sp = y.value_span(&path);
+            ex.err(
+                Diagnostic::new(sp, "`parts` lists part names")
+                    .expected("a list, e.g. `[R1, C1]`")
+                    .found(kind_name(other)),
             );
-            continue;
+            Vec::new()
         }
-        let mut cells = Vec::with_capacity(ncols);
-        for (j, tok) in cells_tok.iter().enumerate() {
-            let text = &src[tok.start..tok.end];
-            let cspan = Span::new(tok.start, tok.end);
-            let Some(Some((sym, unit, factor))) = colinfo.get(j) else {
-                continue;
-            };
-            if text.is_empty() {
-                d.push(
-                    Diagnostic::new(
-                        Span::new(tok.start, (tok.start + 1).min(cend)),
-                        format!("empty cell in column `{sym}`"),
-                    )
-                    .expected("a number")
-                    .found("nothing"),
-                );
-                continue;
-            }
-            match parse_in_unit(text, *unit, *factor) {
-                Ok(q) => {
-                    let problem = match sym.as_str() {
-                        "f" if q.value <= 0.0 => Some("a frequency must be greater than zero"),
-                        "period" if q.value <= 0.0 => Some("a period must be greater than zero"),
-                        "Vs" | "VR" | "VC" | "VL" | "V" | "I" if q.value < 0.0 => {
-                            Some("a meter magnitude cannot be negative")
-                        }
-                        _ => None,
-                    };
-                    if let Some(m) = problem {
-                        d.push(
-                            Diagnostic::new(cspan, m)
-                                .expected("a positive value")
-                                .found(format!("`{text}`")),
-                        );
-                    } else if let Some(dg) = out_of_range(sym, q.value, text, cspan) {
-                        d.push(dg);
-                    }
-                    cells.push(Cell {
-                        value: q.value,
-                        text: text.to_string(),
-                        span: cspan,
-                    });
-                }
-                Err(e) => {
-                    let s = tok.start + e.offset.min(text.len());
-                    let end = (s + e.len.max(1)).min(tok.end).max(s);
-                    let mut dg = Diagnostic::new(
-                        crate::diag::clamp_span(src, Span::new(s, end)),
-                        format!("column `{sym}`: {}", e.message),
-                    )
-                    .expected(e.expected.clone())
-                    .found(format!("`{}`", e.found));
-                    if let Some(h) = quantity::unit_help(&e.found) {
-                        dg = dg.help(h);
-                    }
-                    d.push(dg);
-                }
-            }
+    };
+    let mut parts = Vec::new();
+    for n in names {
+        let sp = y.item_span(&path, &n);
+        if cx.defined.known && !cx.defined.parts.contains(&n) {
+            ex.err(undefined("part", &n, sp, &cx.defined.parts, "parts"));
         }
-        rows.push(Row {
-            cells,
-            span: row_span,
-        });
+        parts.push(Named { name: n, span: sp });
     }
-    let sep_span = Span::new(sep_line.start, sep_line.end);
-    match &heading {
-        None => d.push(
+    parts
+}
+
+/// Records the block id, or reports it at its second use.
+fn unique_id(
+    src: &str,
+    name: &str,
+    span: Span,
+    ids: &mut BTreeMap<String, Span>,
+    d: &mut Vec<Diagnostic>,
+) {
+    match ids.get(name) {
+        Some(first) => {
+            let (l, c) = line_col(src, first.start);
+            d.push(
+                Diagnostic::new(span, format!("block id `{name}` is used twice"))
+                    .expected("an id unique in the notebook")
+                    .found(format!("`{name}` again"))
+                    .help(format!("first used at line {l}, column {c}")),
+            );
+        }
+        None => {
+            ids.insert(name.to_string(), span);
+        }
+    }
+}
+
+/// Checks across the header and the table: a heading and rows, the network's required
+/// columns, `shift` with `period`.
+fn check_table(table: &Table, network: Option<Network>, sep_span: Span, d: &mut Vec<Diagnostic>) {
+    let Some(hspan) = table.heading else {
+        d.push(
             Diagnostic::new(sep_span, "readings block has no table")
                 .expected("a heading row such as `f/Hz  VR/V  VC/V` after the `---` line")
                 .found("nothing"),
-        ),
-        Some((_, _, hspan)) => {
-            if rows.is_empty() {
-                d.push(
-                    Diagnostic::new(*hspan, "readings block has no rows")
-                        .expected("at least one row of readings under the heading")
-                        .found("no rows"),
-                );
-            }
-            if let Some(n) = network {
-                let missing: Vec<&str> = required_columns(n)
-                    .iter()
-                    .copied()
-                    .filter(|c| !symbols.iter().any(|(s, _)| s == c))
-                    .collect();
-                if !missing.is_empty() {
-                    let have: Vec<&str> = symbols.iter().map(|(s, _)| s.as_str()).collect();
-                    d.push(
-                        Diagnostic::new(
-                            *hspan,
-                            format!(
-                                "{} block lacks column{} {}",
-                                n.name(),
-                                if missing.len() > 1 { "s" } else { "" },
-                                list(&missing)
-                            ),
-                        )
-                        .expected(format!("columns {}", list(required_columns(n))))
-                        .found(if have.is_empty() {
-                            "no known columns".to_string()
-                        } else {
-                            list(&have)
-                        }),
-                    );
-                }
-            }
-            let has = |s: &str| symbols.iter().find(|(x, _)| x == s).map(|(_, sp)| *sp);
-            match (has("shift"), has("period")) {
-                (Some(sp), None) => d.push(
-                    Diagnostic::new(sp, "`shift` needs a `period` column")
-                        .expected("both `shift/div` and `period/div`")
-                        .found("`shift` alone"),
-                ),
-                (None, Some(sp)) => d.push(
-                    Diagnostic::new(sp, "`period` needs a `shift` column")
-                        .expected("both `shift/div` and `period/div`")
-                        .found("`period` alone"),
-                ),
-                _ => {}
-            }
+        );
+        return;
+    };
+    if table.rows.is_empty() {
+        d.push(
+            Diagnostic::new(hspan, "readings block has no rows")
+                .expected("at least one row of readings under the heading")
+                .found("no rows"),
+        );
+    }
+    let symbols = &table.symbols;
+    if let Some(n) = network {
+        let missing: Vec<&str> = required_columns(n)
+            .iter()
+            .copied()
+            .filter(|c| !symbols.iter().any(|(s, _)| s == c))
+            .collect();
+        if !missing.is_empty() {
+            let have: Vec<&str> = symbols.iter().map(|(s, _)| s.as_str()).collect();
+            d.push(
+                Diagnostic::new(
+                    hspan,
+                    format!(
+                        "{} block lacks column{} {}",
+                        n.name(),
+                        if missing.len() > 1 { "s" } else { "" },
+                        list(&missing)
+                    ),
+                )
+                .expected(format!("columns {}", list(required_columns(n))))
+                .found(if have.is_empty() {
+                    "no known columns".to_string()
+                } else {
+                    list(&have)
+                }),
+            );
         }
     }
-    let (id, id_span) = id?;
-    Some(ReadingsBlock {
-        id,
-        id_span,
-        network: network?,
-        parts,
-        meter,
-        phase,
-        counter,
-        note,
-        source,
-        columns,
-        rows,
-        span: r,
-        body: src[body.start..body.end].to_string(),
-    })
+    let has = |s: &str| symbols.iter().find(|(x, _)| x == s).map(|(_, sp)| *sp);
+    match (has("shift"), has("period")) {
+        (Some(sp), None) => d.push(
+            Diagnostic::new(sp, "`shift` needs a `period` column")
+                .expected("both `shift/div` and `period/div`")
+                .found("`shift` alone"),
+        ),
+        (None, Some(sp)) => d.push(
+            Diagnostic::new(sp, "`period` needs a `shift` column")
+                .expected("both `shift/div` and `period/div`")
+                .found("`period` alone"),
+        ),
+        _ => {}
+    }
 }

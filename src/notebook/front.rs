@@ -519,32 +519,7 @@ fn part(
     if !matches!(v, Value::Mapping(_)) {
         return None;
     }
-    let kind = match entries.iter().find(|(k, _)| k == "kind") {
-        None => {
-            ex.err(
-                Diagnostic::new(span, format!("part `{name}` lacks `kind`"))
-                    .expected("`kind: resistor`, `kind: capacitor` or `kind: inductor`")
-                    .found("no `kind`"),
-            );
-            return None;
-        }
-        Some((_, kv)) => {
-            let path = ["parts", name, "kind"];
-            let t = ex.text(&path, kv)?;
-            let kinds = [
-                ("resistor", PartKind::Resistor),
-                ("capacitor", PartKind::Capacitor),
-                ("inductor", PartKind::Inductor),
-            ];
-            match one_of(t.trim(), &kinds, "part kind", ex.y.value_span(&path)) {
-                Ok(kind) => kind,
-                Err(dg) => {
-                    ex.err(dg);
-                    return None;
-                }
-            }
-        }
-    };
+    let kind = part_kind(ex, name, span, entries.iter().find(|(k, _)| k == "kind"))?;
     let unit = part_unit(kind);
     let mut p = Part {
         name: name.to_string(),
@@ -587,31 +562,7 @@ fn part(
                 } else {
                     "a measured value"
                 };
-                let (q, inner_by) = match val {
-                    Value::Mapping(_) => {
-                        let mut q = None;
-                        let mut b = None;
-                        for (k2, v2) in ex.entries(&path, val, Some(MEASURED_KEYS)) {
-                            let p2 = [
-                                "parts",
-                                name,
-                                key.as_str(),
-                                if k2 == "value" { "value" } else { "by" },
-                            ];
-                            if k2 == "value" {
-                                let qq = ex.quantity(&p2, v2, &[want], None);
-                                q = ex.positive(&p2, qq, what);
-                            } else if let Some(n) = ex.instrument_name(&p2, v2, Some(instruments)) {
-                                b = Some(n.name);
-                            }
-                        }
-                        (q, b)
-                    }
-                    _ => {
-                        let qq = ex.quantity(&path, val, &[want], None);
-                        (ex.positive(&path, qq, what), None)
-                    }
-                };
+                let (q, inner_by) = measured(ex, &path, val, (want, what), instruments);
                 if is_dcr {
                     p.dcr = q;
                     if inner_by.is_some() {
@@ -664,6 +615,66 @@ fn part(
         p.tolerance = tolerance(ex, name, tv, kind, p.nominal);
     }
     Some(p)
+}
+
+/// The part's `kind`, reported at the part when it is missing.
+fn part_kind(
+    ex: &mut ValueReader,
+    name: &str,
+    span: Span,
+    entry: Option<&(String, &Value)>,
+) -> Option<PartKind> {
+    let Some((_, kv)) = entry else {
+        ex.err(
+            Diagnostic::new(span, format!("part `{name}` lacks `kind`"))
+                .expected("`kind: resistor`, `kind: capacitor` or `kind: inductor`")
+                .found("no `kind`"),
+        );
+        return None;
+    };
+    let path = ["parts", name, "kind"];
+    let t = ex.text(&path, kv)?;
+    let kinds = [
+        ("resistor", PartKind::Resistor),
+        ("capacitor", PartKind::Capacitor),
+        ("inductor", PartKind::Inductor),
+    ];
+    one_of(t.trim(), &kinds, "part kind", ex.y.value_span(&path))
+        .map_err(|dg| ex.err(dg))
+        .ok()
+}
+
+/// A part's `measured` or `dcr` at `path` (`parts.<name>.<key>`): a value in `want.0`
+/// (`want.1` names it in messages), or the map form `{value: …, by: instrument}`.
+fn measured(
+    ex: &mut ValueReader,
+    path: &[&str; 3],
+    val: &Value,
+    want: (Unit, &str),
+    instruments: &BTreeSet<String>,
+) -> (Option<Quantity>, Option<String>) {
+    let (unit, what) = want;
+    if !matches!(val, Value::Mapping(_)) {
+        let qq = ex.quantity(path, val, &[unit], None);
+        return (ex.positive(path, qq, what), None);
+    }
+    let mut q = None;
+    let mut b = None;
+    for (k2, v2) in ex.entries(path, val, Some(MEASURED_KEYS)) {
+        let p2 = [
+            path[0],
+            path[1],
+            path[2],
+            if k2 == "value" { "value" } else { "by" },
+        ];
+        if k2 == "value" {
+            let qq = ex.quantity(&p2, v2, &[unit], None);
+            q = ex.positive(&p2, qq, what);
+        } else if let Some(n) = ex.instrument_name(&p2, v2, Some(instruments)) {
+            b = Some(n.name);
+        }
+    }
+    (q, b)
 }
 
 fn kind_word(k: PartKind) -> &'static str {

@@ -1,17 +1,17 @@
 //! Readings tables: cells of pipe and whitespace tables, column headings, plausible ranges.
 
 use super::words::{list, unknown};
-use super::{line_text, symbol_unit, Column, Line, SYMBOLS};
-use crate::diag::{Diagnostic, Span};
-use crate::quantity::{self, dimension_name, parse_unit};
+use super::{line_text, symbol_unit, Cell, Column, Line, Row, SYMBOLS};
+use crate::diag::{line_col, Diagnostic, Span};
+use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse_unit, Unit};
 
 // ---------------------------------------------------------------------------------------------
 // Readings blocks.
 
 #[derive(Debug, Clone, Copy)]
-pub(super) struct CellRange {
-    pub(super) start: usize,
-    pub(super) end: usize,
+struct CellRange {
+    start: usize,
+    end: usize,
 }
 
 /// End of a table line's content: before `#` and trailing whitespace.
@@ -21,7 +21,7 @@ pub(super) fn content_end(src: &str, l: &Line) -> usize {
     l.start + t[..cut].trim_end().len()
 }
 
-pub(super) fn trim_tok(src: &str, a: usize, b: usize) -> CellRange {
+fn trim_tok(src: &str, a: usize, b: usize) -> CellRange {
     let t = &src[a..b];
     let lead = t.len() - t.trim_start().len();
     let s = a + lead;
@@ -31,7 +31,7 @@ pub(super) fn trim_tok(src: &str, a: usize, b: usize) -> CellRange {
     }
 }
 
-pub(super) fn pipe_cells(src: &str, start: usize, end: usize) -> Vec<CellRange> {
+fn pipe_cells(src: &str, start: usize, end: usize) -> Vec<CellRange> {
     let t = &src[start..end];
     let mut bounds = vec![start];
     for (i, c) in t.char_indices() {
@@ -55,7 +55,7 @@ pub(super) fn pipe_cells(src: &str, start: usize, end: usize) -> Vec<CellRange> 
     segs.into_iter().map(|(a, b)| trim_tok(src, a, b)).collect()
 }
 
-pub(super) fn ws_tokens(src: &str, start: usize, end: usize) -> Vec<CellRange> {
+fn ws_tokens(src: &str, start: usize, end: usize) -> Vec<CellRange> {
     let t = &src[start..end];
     let mut out = Vec::new();
     let mut cur: Option<usize> = None;
@@ -81,7 +81,7 @@ pub(super) fn ws_tokens(src: &str, start: usize, end: usize) -> Vec<CellRange> {
 }
 
 /// Whitespace headings: `VR (mV)` and `f / Hz` are one heading each.
-pub(super) fn merge_headings(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
+fn merge_headings(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
     let mut out: Vec<CellRange> = Vec::new();
     for t in toks {
         let text = &src[t.start..t.end];
@@ -100,7 +100,7 @@ pub(super) fn merge_headings(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> 
 }
 
 /// Whitespace rows: `12 mV` is one cell (a unit token joins the number before it).
-pub(super) fn merge_units(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
+fn merge_units(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
     let mut out: Vec<CellRange> = Vec::new();
     for t in toks {
         let text = &src[t.start..t.end];
@@ -120,7 +120,7 @@ pub(super) fn merge_units(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
     out
 }
 
-pub(super) fn is_separator_row(src: &str, cells: &[CellRange]) -> bool {
+fn is_separator_row(src: &str, cells: &[CellRange]) -> bool {
     !cells.is_empty()
         && cells.iter().all(|c| {
             let t = &src[c.start..c.end];
@@ -130,7 +130,7 @@ pub(super) fn is_separator_row(src: &str, cells: &[CellRange]) -> bool {
 }
 
 /// A column heading: (symbol if recognised, column and prefix factor if fully valid).
-pub(super) fn parse_heading(
+fn parse_heading(
     src: &str,
     tok: CellRange,
     d: &mut Vec<Diagnostic>,
@@ -247,7 +247,7 @@ const VOLT_WHY: &str =
 
 /// A reading outside its column's plausible range ([`RANGES`]), said at the cell. Zero passes:
 /// the networks refuse a zero where it matters, with their own reasons.
-pub(super) fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Diagnostic> {
+fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Diagnostic> {
     let &(_, lo, hi, lo_t, hi_t, what, why) = RANGES.iter().find(|r| r.0 == sym)?;
     let m = v.abs();
     let (msg, expected) = if m > hi {
@@ -271,6 +271,250 @@ pub(super) fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Di
                 "the limits are magnitudes; {why} (common practice)"
             )),
     )
+}
+
+/// A block's table as read.
+pub(super) struct Table {
+    pub(super) columns: Vec<Column>,
+    pub(super) rows: Vec<Row>,
+    /// Each recognised column symbol once, with its heading's span, in order.
+    pub(super) symbols: Vec<(String, Span)>,
+    /// The heading row, when the table has one.
+    pub(super) heading: Option<Span>,
+}
+
+/// The heading row as the rows below it need it.
+struct Heading {
+    pipe: bool,
+    /// Per heading cell: (symbol, SI unit, prefix factor) when the heading is valid.
+    columns: Vec<Option<(String, Unit, f64)>>,
+}
+
+/// The table in `lines` (after the `---` line): the first non-blank line is the heading,
+/// every other non-blank line a row.
+pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) -> Table {
+    let mut table = Table {
+        columns: Vec::new(),
+        rows: Vec::new(),
+        symbols: Vec::new(),
+        heading: None,
+    };
+    let mut heading: Option<Heading> = None;
+    for l in lines {
+        let cend = content_end(src, l);
+        if src[l.start..cend].trim().is_empty() {
+            continue;
+        }
+        match &heading {
+            None => heading = Some(heading_row(src, l, cend, &mut table, d)),
+            Some(h) => {
+                if let Some(row) = table_row(src, l, cend, h, d) {
+                    table.rows.push(row);
+                }
+            }
+        }
+    }
+    table
+}
+
+/// The heading row: its columns and symbols go into `table`.
+fn heading_row(
+    src: &str,
+    l: &Line,
+    cend: usize,
+    table: &mut Table,
+    d: &mut Vec<Diagnostic>,
+) -> Heading {
+    let pipe = src[l.start..cend].contains('|');
+    let toks = if pipe {
+        pipe_cells(src, l.start, cend)
+    } else {
+        merge_headings(src, ws_tokens(src, l.start, cend))
+    };
+    let hspan = trim_tok(src, l.start, cend);
+    table.heading = Some(Span::new(hspan.start, hspan.end));
+    let mut columns = Vec::with_capacity(toks.len());
+    for tok in &toks {
+        if tok.start == tok.end {
+            d.push(
+                Diagnostic::new(
+                    Span::new(tok.start, (tok.start + 1).min(cend)),
+                    "empty column heading",
+                )
+                .expected("`symbol/unit`, e.g. `f/Hz`"),
+            );
+            columns.push(None);
+            continue;
+        }
+        let (sym, col) = parse_heading(src, *tok, d);
+        if let Some(s) = &sym {
+            if let Some((_, first)) = table.symbols.iter().find(|(x, _)| x == s) {
+                let (fl, fc) = line_col(src, first.start);
+                d.push(
+                    Diagnostic::new(
+                        Span::new(tok.start, tok.end),
+                        format!("column `{s}` appears twice"),
+                    )
+                    .expected("each column once")
+                    .found(format!("a second `{s}`"))
+                    .help(format!("first at line {fl}, column {fc}")),
+                );
+            } else {
+                table
+                    .symbols
+                    .push((s.clone(), Span::new(tok.start, tok.end)));
+            }
+        }
+        match col {
+            Some((c, f)) => {
+                columns.push(Some((c.symbol.clone(), c.unit, f)));
+                table.columns.push(c);
+            }
+            None => columns.push(None),
+        }
+    }
+    Heading { pipe, columns }
+}
+
+/// One row: its cells in their columns' units. None for a separator row or a row reported
+/// whole (a cell count that does not match the heading, an unknown unit word).
+fn table_row(
+    src: &str,
+    l: &Line,
+    cend: usize,
+    h: &Heading,
+    d: &mut Vec<Diagnostic>,
+) -> Option<Row> {
+    let (pipe, ncols) = (h.pipe, h.columns.len());
+    let cells_tok = if pipe {
+        pipe_cells(src, l.start, cend)
+    } else {
+        merge_units(src, ws_tokens(src, l.start, cend))
+    };
+    if pipe && is_separator_row(src, &cells_tok) {
+        return None;
+    }
+    let rs = trim_tok(src, l.start, cend);
+    let row_span = Span::new(rs.start, rs.end);
+    if cells_tok.len() > ncols && !pipe {
+        // A word right after a number in a whitespace table is most likely a unit that
+        // is not known, not an extra column: say so at the word.
+        let found = (1..cells_tok.len()).find(|&j| {
+            let w = &src[cells_tok[j].start..cells_tok[j].end];
+            let p = &src[cells_tok[j - 1].start..cells_tok[j - 1].end];
+            w.starts_with(|c: char| c.is_alphabetic()) && p.parse::<f64>().is_ok()
+        });
+        if let Some(j) = found {
+            let (prev, extra) = (cells_tok[j - 1], cells_tok[j]);
+            let word = &src[extra.start..extra.end];
+            let joined = format!("{} {word}", &src[prev.start..prev.end]);
+            if let Err(e) = parse_quantity(&joined) {
+                d.push(
+                    Diagnostic::new(Span::new(extra.start, extra.end), e.message)
+                        .expected(e.expected)
+                        .found(format!("`{word}`")),
+                );
+                return None;
+            }
+        }
+    }
+    if cells_tok.len() != ncols {
+        // Too many cells: point at the first one the table has no column for.
+        let at = match cells_tok.get(ncols) {
+            Some(t) if cells_tok.len() > ncols => Span::new(t.start, t.end),
+            _ => row_span,
+        };
+        d.push(
+            Diagnostic::new(
+                at,
+                format!(
+                    "row has {} cells but the table has {} columns",
+                    cells_tok.len(),
+                    ncols
+                ),
+            )
+            .expected(format!("{ncols} cells"))
+            .found(format!("{} cells", cells_tok.len())),
+        );
+        return None;
+    }
+    let mut cells = Vec::with_capacity(ncols);
+    for (tok, col) in cells_tok.iter().zip(&h.columns) {
+        if let Some((sym, unit, factor)) = col {
+            cells.extend(cell(src, *tok, cend, sym, *unit, *factor, d));
+        }
+    }
+    Some(Row {
+        cells,
+        span: row_span,
+    })
+}
+
+/// One cell in column `sym` (heading unit `unit` times `factor`); None when it is empty or
+/// not a number. A reading out of range is reported and kept.
+fn cell(
+    src: &str,
+    tok: CellRange,
+    cend: usize,
+    sym: &str,
+    unit: Unit,
+    factor: f64,
+    d: &mut Vec<Diagnostic>,
+) -> Option<Cell> {
+    let text = &src[tok.start..tok.end];
+    let cspan = Span::new(tok.start, tok.end);
+    if text.is_empty() {
+        d.push(
+            Diagnostic::new(
+                Span::new(tok.start, (tok.start + 1).min(cend)),
+                format!("empty cell in column `{sym}`"),
+            )
+            .expected("a number")
+            .found("nothing"),
+        );
+        return None;
+    }
+    match parse_in_unit(text, unit, factor) {
+        Ok(q) => {
+            let problem = match sym {
+                "f" if q.value <= 0.0 => Some("a frequency must be greater than zero"),
+                "period" if q.value <= 0.0 => Some("a period must be greater than zero"),
+                "Vs" | "VR" | "VC" | "VL" | "V" | "I" if q.value < 0.0 => {
+                    Some("a meter magnitude cannot be negative")
+                }
+                _ => None,
+            };
+            if let Some(m) = problem {
+                d.push(
+                    Diagnostic::new(cspan, m)
+                        .expected("a positive value")
+                        .found(format!("`{text}`")),
+                );
+            } else if let Some(dg) = out_of_range(sym, q.value, text, cspan) {
+                d.push(dg);
+            }
+            Some(Cell {
+                value: q.value,
+                text: text.to_string(),
+                span: cspan,
+            })
+        }
+        Err(e) => {
+            let s = tok.start + e.offset.min(text.len());
+            let end = (s + e.len.max(1)).min(tok.end).max(s);
+            let mut dg = Diagnostic::new(
+                crate::diag::clamp_span(src, Span::new(s, end)),
+                format!("column `{sym}`: {}", e.message),
+            )
+            .expected(e.expected.clone())
+            .found(format!("`{}`", e.found));
+            if let Some(h) = quantity::unit_help(&e.found) {
+                dg = dg.help(h);
+            }
+            d.push(dg);
+            None
+        }
+    }
 }
 
 #[cfg(test)]
