@@ -11,7 +11,7 @@ use super::{AtBlock, BlockResult, Context, Flag, NamedResult, PlotData};
 use crate::diag::Diagnostic;
 use crate::notebook::{Network, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::propagate_sparse;
+use crate::uncertainty::{propagate_sparse, Measured};
 use std::f64::consts::PI;
 
 pub const SPEC: Spec<'static> = Spec {
@@ -54,43 +54,25 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         return Err(diags);
     }
     let mut flags: Vec<Flag> = bi.flags.clone();
+    reading_flags(block, &bi, &mut flags);
     let has_vs = bi.has("Vs");
     let has_phase = bi.has("shift") && bi.has("period");
-    if bi.has("shift") != bi.has("period") {
-        flags.push(Flag {
-            warn: false,
-            span: Some(block.span),
-            message: "shift and period are read together: the measured phase is not computed"
-                .into(),
-        });
-    }
-    // Each voltage of a series circuit is at most the source's (|VR|, |VC| ≤ |Vs|).
-    if let (Some(vs), Some(vr), Some(vc)) = (block.col("Vs"), block.col("VR"), block.col("VC")) {
-        for row in &block.rows {
-            let (Some(s), Some(r), Some(c)) =
-                (row.cells.get(vs), row.cells.get(vr), row.cells.get(vc))
-            else {
-                continue;
-            };
-            for (cell, name) in [(r, "VR"), (c, "VC")] {
-                if cell.value > s.value {
-                    flags.push(Flag {
-                        warn: true,
-                        span: Some(cell.span),
-                        message: format!(
-                            "{name} = {} V exceeds Vs = {} V, impossible in a series RC: check the readings",
-                            fmt_sig(cell.value, 6),
-                            fmt_sig(s.value, 6)
-                        ),
-                    });
-                }
-            }
-        }
-    }
 
     // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
     // (mean over groups) is then a linear combination of the groups' C.
-    let per = 4 + usize::from(has_phase) + usize::from(has_vs);
+    let mut names: Vec<(&str, Unit)> = vec![
+        ("I", Unit::A),
+        ("XC", Unit::Ohm),
+        ("C", Unit::F),
+        ("phase", Unit::Rad),
+    ];
+    if has_phase {
+        names.push(("phase_measured", Unit::Rad));
+    }
+    if has_vs {
+        names.push(("residual", Unit::V));
+    }
+    let per = names.len();
     let ng = bi.groups.len();
     let model = |x: &[f64]| -> Vec<f64> {
         let mut y = Vec::with_capacity(ng * per);
@@ -122,7 +104,70 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     // Block C = mean of the groups' C.
     let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
     let block_c = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
+    let (rows, plot) = per_frequency(&bi, &p.results, &names, &mut flags);
+    let mut results = Vec::new();
+    results.push(NamedResult {
+        name: "C".into(),
+        f: None,
+        unit: Unit::F,
+        m: block_c,
+    });
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: Network::RC,
+        rows,
+        results,
+        correlations: Vec::new(),
+        flags,
+        plot,
+    })
+}
 
+/// Flags on the readings themselves: shift without period, VR or VC above Vs.
+fn reading_flags(block: &ReadingsBlock, bi: &BlockInputs, flags: &mut Vec<Flag>) {
+    if bi.has("shift") != bi.has("period") {
+        flags.push(Flag {
+            warn: false,
+            span: Some(block.span),
+            message: "shift and period are read together: the measured phase is not computed"
+                .into(),
+        });
+    }
+    // Each voltage of a series circuit is at most the source's (|VR|, |VC| ≤ |Vs|).
+    if let (Some(vs), Some(vr), Some(vc)) = (block.col("Vs"), block.col("VR"), block.col("VC")) {
+        for row in &block.rows {
+            let (Some(s), Some(r), Some(c)) =
+                (row.cells.get(vs), row.cells.get(vr), row.cells.get(vc))
+            else {
+                continue;
+            };
+            for (cell, name) in [(r, "VR"), (c, "VC")] {
+                if cell.value > s.value {
+                    flags.push(Flag {
+                        warn: true,
+                        span: Some(cell.span),
+                        message: format!(
+                            "{name} = {} V exceeds Vs = {} V, impossible in a series RC: check the readings",
+                            fmt_sig(cell.value, 6),
+                            fmt_sig(s.value, 6)
+                        ),
+                    });
+                }
+            }
+        }
+    }
+}
+
+/// The per-frequency results (`names` per group, in the model's order), the plot series, and
+/// the flags of the measured phase and the Kirchhoff check.
+fn per_frequency(
+    bi: &BlockInputs,
+    results: &[Measured],
+    names: &[(&str, Unit)],
+    flags: &mut Vec<Flag>,
+) -> (Vec<NamedResult>, PlotData) {
+    let per = names.len();
+    let has_phase = names.iter().any(|(n, _)| *n == "phase_measured");
     let x0 = bi.estimates();
     let mut rows = Vec::new();
     let mut plot = PlotData::default();
@@ -130,22 +175,10 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let mut s_c = Vec::new();
     let mut s_ph = Vec::new();
     let mut s_pm = Vec::new();
-    let mut names: Vec<(&str, Unit)> = vec![
-        ("I", Unit::A),
-        ("XC", Unit::Ohm),
-        ("C", Unit::F),
-        ("phase", Unit::Rad),
-    ];
-    if has_phase {
-        names.push(("phase_measured", Unit::Rad));
-    }
-    if has_vs {
-        names.push(("residual", Unit::V));
-    }
     for (g, grp) in bi.groups.iter().enumerate() {
         let f = grp.f.unwrap_or(f64::NAN);
         for (k, (name, unit)) in names.iter().enumerate() {
-            let Some(m) = p.results.get(g * per + k) else {
+            let Some(m) = results.get(g * per + k) else {
                 continue;
             };
             let pt = (f, m.value, m.u);
@@ -199,22 +232,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     if has_phase {
         plot.series.push(("phase_measured".into(), s_pm));
     }
-    let mut results = Vec::new();
-    results.push(NamedResult {
-        name: "C".into(),
-        f: None,
-        unit: Unit::F,
-        m: block_c,
-    });
-    Ok(BlockResult {
-        id: block.id.clone(),
-        network: Network::RC,
-        rows,
-        results,
-        correlations: Vec::new(),
-        flags,
-        plot,
-    })
+    (rows, plot)
 }
 
 #[cfg(test)]
