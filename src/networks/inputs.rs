@@ -462,6 +462,11 @@ impl BlockInputs {
         };
         let Some((iname, i)) = inst else { return t };
         let s = c.symbol.as_str();
+        // Without counts, the quantisation half-width resolution/2 (rectangular).
+        let quantisation = |r: f64| {
+            let u = type_b(r / 2.0, Distribution::Rectangular);
+            (u, Dist::Rectangular, "res")
+        };
         let res = i
             .resolution
             .filter(|r| unit_ok(r, c.unit))
@@ -490,11 +495,7 @@ impl BlockInputs {
                         }),
                     }
                 } else if let Some(r) = res {
-                    t.count = Some((
-                        type_b(r / 2.0, Distribution::Rectangular),
-                        Dist::Rectangular,
-                        "res",
-                    ));
+                    t.count = Some(quantisation(r));
                 }
             }
             Some(Accuracy::Absolute(q)) => {
@@ -518,11 +519,7 @@ impl BlockInputs {
             }
             None => {
                 if let Some(r) = res {
-                    t.count = Some((
-                        type_b(r / 2.0, Distribution::Rectangular),
-                        Dist::Rectangular,
-                        "res",
-                    ));
+                    t.count = Some(quantisation(r));
                 }
             }
         }
