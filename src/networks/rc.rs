@@ -7,49 +7,47 @@
 //! same propagation so shared gains and R stay correlated.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{AtBlock, BlockResult, Context, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Descriptor, Flag, NamedResult, PlotData,
+    PlotKind,
+};
 use crate::diag::Diagnostic;
-use crate::notebook::{Network, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{propagate_sparse, Measured};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RC",
-    required: &["f", "VR", "VC"],
-    optional: &["Vs", "shift", "period"],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RC",
+        required: &["f", "VR", "VC"],
+        optional: &["Vs", "shift", "period"],
+        resistor: true,
+    },
+    positive: &[
+        (
+            "VR",
+            "with no voltage across R no current flows and C cannot be found",
+        ),
+        (
+            "VC",
+            "a zero voltage across the capacitor would mean an infinite C",
+        ),
+        ("Vs", "an amplitude must be positive"),
+        ("period", "a trace period must be positive"),
+    ],
+    judged: &[("C", PartKind::Capacitor)],
+    plot: PlotKind::PerFrequency {
+        main: &["C", "XC"],
+        beside: &[],
+        band: ("C", PartKind::Capacitor),
+    },
+    reduce,
 };
 
-/// Positive readings are required of these columns.
-fn check_positive(block: &ReadingsBlock, cols: &[&str]) -> Vec<Diagnostic> {
-    let mut d = Vec::new();
-    for s in cols {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    let why = match *s {
-                        "VR" => "with no voltage across R no current flows and C cannot be found",
-                        "VC" => "a zero voltage across the capacitor would mean an infinite C",
-                        "period" => "a trace period must be positive",
-                        _ => "an amplitude must be positive",
-                    };
-                    d.push(
-                        Diagnostic::new(c.span, format!("{s} must be positive: {why}"))
-                            .expected(format!("{s} > 0"))
-                            .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
-    d
-}
-
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let diags = check_positive(block, &["VR", "VC", "Vs", "period"]);
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    let diags = check_positive(block, NETWORK.positive);
     if !diags.is_empty() {
         return Err(diags);
     }
@@ -114,7 +112,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     });
     Ok(BlockResult {
         id: block.id.clone(),
-        network: Network::RC,
+        network: block.network,
         rows,
         results,
         correlations: Vec::new(),
@@ -239,6 +237,7 @@ fn per_frequency(
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
+    use crate::notebook::Network;
     use crate::notebook::{Accuracy, Tolerance};
     use crate::quantity::Quantity;
     use num_complex::Complex64;

@@ -13,10 +13,13 @@
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
 use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
-use super::{AtBlock, BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
+    PlotData, PlotKind,
+};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
-use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, McInterval, Measured,
@@ -26,12 +29,27 @@ use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RL",
-    required: &["f", "Vs", "VR", "VL"],
-    optional: &[],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RL",
+        required: &["f", "Vs", "VR", "VL"],
+        optional: &[],
+        resistor: true,
+    },
+    positive: &[
+        ("Vs", AMPLITUDE),
+        ("VR", AMPLITUDE),
+        ("VL", AMPLITUDE),
+    ],
+    judged: &[("L", PartKind::Inductor)],
+    plot: PlotKind::PerFrequency {
+        main: &["L", "XL"],
+        beside: &["L_dcr"],
+        band: ("L", PartKind::Inductor),
+    },
+    reduce,
 };
+const AMPLITUDE: &str = "an amplitude is never zero or negative here";
 
 /// Relative standard uncertainty above which a three-voltmeter L or Rac is flagged.
 pub const REL_U_LIMIT: f64 = 0.20;
@@ -267,30 +285,6 @@ fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<
     })
 }
 
-fn positive(block: &ReadingsBlock) -> Vec<Diagnostic> {
-    let mut d = Vec::new();
-    for s in ["Vs", "VR", "VL"] {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    d.push(
-                        Diagnostic::new(
-                            c.span,
-                            format!(
-                                "{s} must be positive: an amplitude is never zero or negative here"
-                            ),
-                        )
-                        .expected(format!("{s} > 0"))
-                        .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
-    d
-}
-
 /// What one output of the block model is.
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Out {
@@ -299,8 +293,8 @@ enum Out {
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let d = positive(block);
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    let d = check_positive(block, NETWORK.positive);
     if !d.is_empty() {
         return Err(d);
     }
@@ -425,7 +419,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let plot = plot_of(&rows);
     Ok(BlockResult {
         id: block.id.clone(),
-        network: Network::RL,
+        network: block.network,
         rows,
         results,
         correlations,
@@ -884,6 +878,7 @@ fn plot_of(rows: &[NamedResult]) -> PlotData {
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
+    use crate::notebook::Network;
     use crate::notebook::{Accuracy, Part, Tolerance};
     use crate::quantity::Quantity;
     use num_complex::Complex64;

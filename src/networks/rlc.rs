@@ -16,10 +16,13 @@
 //! of the readings' distributions.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{AtBlock, BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
+    PlotData, PlotKind,
+};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo};
-use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, propagate, propagate_sparse, Dist, Input, Model, Propagated,
@@ -29,11 +32,17 @@ use nalgebra::{Dyn, Matrix3, OMatrix, OVector, Owned, Vector3, U3};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RLC",
-    required: &["f", "VR"],
-    optional: &["Vs", "shift", "period", "phi"],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RLC",
+        required: &["f", "VR"],
+        optional: &["Vs", "shift", "period", "phi"],
+        resistor: true,
+    },
+    positive: &[("VR", ""), ("Vs", ""), ("period", "")],
+    judged: &[("L", PartKind::Inductor), ("C", PartKind::Capacitor)],
+    plot: PlotKind::Resonance,
+    reduce,
 };
 
 /// The series-resonance admittance magnitude at f.
@@ -411,12 +420,12 @@ fn part_value(
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
     check_readings(block, &bi)?;
     let has_vs = bi.has("Vs");
     let mut out = BlockResult {
         id: block.id.clone(),
-        network: Network::RLC,
+        network: block.network,
         rows: Vec::new(),
         results: Vec::new(),
         correlations: Vec::new(),
@@ -508,21 +517,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
 
 /// Positive VR, Vs and period; a source level from a Vs column or the header.
 fn check_readings(block: &ReadingsBlock, bi: &BlockInputs) -> Result<(), Vec<Diagnostic>> {
-    let mut diags = Vec::new();
-    for s in ["VR", "Vs", "period"] {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    diags.push(
-                        Diagnostic::new(c.span, format!("{s} must be positive"))
-                            .expected(format!("{s} > 0"))
-                            .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
+    let mut diags = check_positive(block, NETWORK.positive);
     if !bi.has("Vs") && block.source.is_none() {
         diags.push(
             Diagnostic::new(
@@ -910,6 +905,7 @@ fn prediction(ctx: &Context, block: &ReadingsBlock, bi: &BlockInputs) -> Option<
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::notebook::Network;
 
     fn sweep(f0: f64, q: f64, rt: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
         let f: Vec<f64> = (0..n)

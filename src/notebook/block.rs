@@ -151,7 +151,8 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
             "network" => {
                 network_seen = true;
                 if let Some(s) = ex.text(&path, val) {
-                    let choices = Network::ALL.map(|n| (n.name(), n));
+                    let choices: Vec<(&str, Network)> =
+                        Network::all().map(|n| (n.name(), n)).collect();
                     let at = y.value_span(&path);
                     h.network = one_of(s.trim(), &choices, "network", at)
                         .map_err(|dg| ex.err(dg))
@@ -178,9 +179,14 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
         );
     }
     if !network_seen {
+        let names: Vec<&str> = Network::all().map(|n| n.name()).collect();
+        let (first, rest) = names.split_first().map_or(("", &[][..]), |(f, r)| (*f, r));
         ex.err(
             Diagnostic::new(open_span, "readings block lacks `network`")
-                .expected("a header line `network: RC` (or RL, RLC, Z)")
+                .expected(format!(
+                    "a header line `network: {first}` (or {})",
+                    rest.join(", ")
+                ))
                 .found("no `network`"),
         );
     }

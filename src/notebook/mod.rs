@@ -24,6 +24,7 @@ mod yaml;
 pub use front::{parse_accuracy, parse_iso_date};
 
 use crate::diag::{Diagnostic, Span};
+use crate::networks::{Descriptor, NETWORKS};
 use crate::quantity::{Quantity, Unit};
 use block::{parse_block, BlockCtx};
 use chrono::NaiveDate;
@@ -156,25 +157,49 @@ pub struct Signoff {
     pub span: Span,
 }
 
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash)]
-pub enum Network {
-    RC,
-    RL,
-    RLC,
-    Z,
-}
+/// A network: a handle on its descriptor in [`crate::networks::NETWORKS`], compared by name.
+#[derive(Clone, Copy)]
+pub struct Network(&'static Descriptor);
 
 impl Network {
-    /// Every network, in the order messages list them.
-    pub const ALL: [Network; 4] = [Network::RC, Network::RL, Network::RLC, Network::Z];
+    pub const RC: Network = Network(&crate::networks::rc::NETWORK);
+    pub const RL: Network = Network(&crate::networks::rl::NETWORK);
+    pub const RLC: Network = Network(&crate::networks::rlc::NETWORK);
+    pub const Z: Network = Network(&crate::networks::z::NETWORK);
 
+    /// Every network, in the order messages list them.
+    pub fn all() -> impl Iterator<Item = Network> {
+        NETWORKS.iter().map(|d| Network(d))
+    }
+
+    /// The header's `network:` word.
     pub fn name(self) -> &'static str {
-        match self {
-            Network::RC => "RC",
-            Network::RL => "RL",
-            Network::RLC => "RLC",
-            Network::Z => "Z",
-        }
+        self.0.spec.network
+    }
+
+    /// Everything else about the network.
+    pub fn descriptor(self) -> &'static Descriptor {
+        self.0
+    }
+}
+
+impl PartialEq for Network {
+    fn eq(&self, other: &Network) -> bool {
+        self.name() == other.name()
+    }
+}
+
+impl Eq for Network {}
+
+impl std::hash::Hash for Network {
+    fn hash<H: std::hash::Hasher>(&self, h: &mut H) {
+        self.name().hash(h)
+    }
+}
+
+impl std::fmt::Debug for Network {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
     }
 }
 
@@ -279,12 +304,7 @@ pub fn symbol_unit(symbol: &str) -> Option<Unit> {
 
 /// Columns a network cannot do without.
 pub fn required_columns(n: Network) -> &'static [&'static str] {
-    match n {
-        Network::RC => &["f", "VR", "VC"],
-        Network::RL => &["f", "Vs", "VR", "VL"],
-        Network::RLC => &["f", "VR"],
-        Network::Z => &["V", "I", "phi"],
-    }
+    n.descriptor().spec.required
 }
 
 // ---------------------------------------------------------------------------------------------

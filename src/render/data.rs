@@ -8,7 +8,7 @@ use std::collections::BTreeMap;
 use serde_json::{json, Value};
 
 use crate::judge::{Outcome, Record, SignState};
-use crate::networks::{BlockResult, NamedResult};
+use crate::networks::{BlockResult, NamedResult, PlotKind};
 use crate::notebook::{Accuracy, Column, Decision, Item, Part, PartKind, ReadingsBlock, Tolerance};
 use crate::quantity::{Quantity, Unit};
 use crate::render::format::{self, dof_text, k_text, sci, sig};
@@ -508,10 +508,11 @@ fn band_for(
     rb: &ReadingsBlock,
     block: &BlockResult,
 ) -> Option<(&'static str, f64, f64)> {
-    let want: &'static str = match block.network {
-        crate::notebook::Network::RC => "C",
-        crate::notebook::Network::RL => "L",
-        _ => return None,
+    let PlotKind::PerFrequency {
+        band: (want, kind), ..
+    } = block.network.descriptor().plot
+    else {
+        return None;
     };
     if let Some(v) = record
         .verdicts
@@ -520,11 +521,6 @@ fn band_for(
     {
         return Some((want, v.low, v.high));
     }
-    let kind = if want == "C" {
-        PartKind::Capacitor
-    } else {
-        PartKind::Inductor
-    };
     rb.parts
         .iter()
         .filter_map(|n| record.notebook.front.parts.get(&n.name))
