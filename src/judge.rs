@@ -138,19 +138,16 @@ pub fn decide(value: f64, expanded: f64, low: f64, high: f64, rule: Decision) ->
     }
 }
 
-fn kind_for_result(name: &str) -> Option<PartKind> {
-    match name {
-        "C" => Some(PartKind::Capacitor),
-        "L" => Some(PartKind::Inductor),
-        "R" => Some(PartKind::Resistor),
-        _ => None,
-    }
+/// The kind of part a block result is judged against, as its network says.
+fn kind_for_result(res: &BlockResult, name: &str) -> Option<PartKind> {
+    let judged = res.network.descriptor().judged;
+    judged.iter().find(|(n, _)| *n == name).map(|(_, k)| *k)
 }
 
 fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<Verdict> {
     let mut out = Vec::new();
     for r in &res.results {
-        let Some(kind) = kind_for_result(&r.name) else {
+        let Some(kind) = kind_for_result(res, &r.name) else {
             continue;
         };
         let part = block

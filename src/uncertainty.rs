@@ -513,6 +513,69 @@ pub fn propagate_sparse(
 ) -> Result<Propagated, String> {
     let inputs = model.inputs;
     let n = inputs.len();
+    let pairs = checked_pairs(model)?;
+    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
+    let y0 = f(&x0);
+    let m = y0.len();
+    if let Some(k) = y0.iter().position(|v| !v.is_finite()) {
+        return Err(format!(
+            "output {k} of the model is not finite at the estimates"
+        ));
+    }
+    if let Some(p) = pattern {
+        if p.len() != m {
+            return Err(format!(
+                "the dependency pattern names {} outputs but the model gives {m}",
+                p.len()
+            ));
+        }
+    }
+    let jac = sensitivities(inputs, f, pattern, &x0, &y0)?;
+
+    // Σ J_kᵀ per output, sparse: most outputs depend on a handful of inputs, so
+    // cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
+    let nz = &jac;
+    let mut partners: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
+    for &(i, j, r) in &pairs {
+        partners[i].push((j, r));
+        partners[j].push((i, r));
+    }
+    let u_in: Vec<f64> = inputs.iter().map(|i| i.u).collect();
+    let mut scratch = vec![0.0; n];
+    let mut touched = vec![false; n];
+    let sigma_j: Vec<Vec<(usize, f64)>> = nz
+        .iter()
+        .map(|row| sigma_times(row, &u_in, &partners, &mut scratch, &mut touched))
+        .collect();
+    let var_of: Vec<f64> = (0..m).map(|k| sparse_dot(&nz[k], &sigma_j[k])).collect();
+    let (roots, pooled) = pooling(inputs, &pairs);
+
+    let mut results = Vec::with_capacity(m);
+    for k in 0..m {
+        let cl = Clusters {
+            pooled: &pooled,
+            roots: &roots,
+            partners: &partners,
+        };
+        results.push(measure(k, y0[k], &nz[k], var_of[k], inputs, &cl, coverage)?);
+    }
+    Ok(Propagated {
+        values: y0,
+        results,
+        jac,
+        sigma_j,
+        u: u_in,
+        partners,
+        pooled,
+        roots,
+    })
+}
+
+/// Checks the inputs (finite, u ≥ 0) and returns the correlations as sorted pairs (a < b),
+/// each clamped to [−1, 1] and given once.
+fn checked_pairs(model: &Model) -> Result<Vec<(usize, usize, f64)>, String> {
+    let inputs = model.inputs;
+    let n = inputs.len();
     for inp in inputs {
         if !inp.value.is_finite() || !inp.u.is_finite() || inp.u < 0.0 {
             return Err(format!(
@@ -546,23 +609,20 @@ pub fn propagate_sparse(
             w[0].0, w[0].1
         ));
     }
+    Ok(pairs)
+}
 
-    let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
-    let y0 = f(&x0);
+/// Nonzero sensitivities per output, (input, ∂y_k/∂x_i) in input order, by central
+/// differences; inputs that share no output (per `pattern`) are perturbed together.
+fn sensitivities(
+    inputs: &[Input],
+    f: &dyn Fn(&[f64]) -> Vec<f64>,
+    pattern: Option<&[Vec<usize>]>,
+    x0: &[f64],
+    y0: &[f64],
+) -> Result<Vec<Vec<(usize, f64)>>, String> {
+    let n = inputs.len();
     let m = y0.len();
-    if let Some(k) = y0.iter().position(|v| !v.is_finite()) {
-        return Err(format!(
-            "output {k} of the model is not finite at the estimates"
-        ));
-    }
-    if let Some(p) = pattern {
-        if p.len() != m {
-            return Err(format!(
-                "the dependency pattern names {} outputs but the model gives {m}",
-                p.len()
-            ));
-        }
-    }
     // Which input of colour group `c` output k depends on, through `owner[i] == c`.
     let groups: Vec<Vec<usize>> = match pattern {
         Some(p) => colour_inputs(n, p),
@@ -591,7 +651,7 @@ pub fn propagate_sparse(
     };
 
     let mut jac: Vec<Vec<(usize, f64)>> = vec![Vec::new(); m];
-    let mut x = x0.clone();
+    let mut x = x0.to_vec();
     for (c, g) in groups.iter().enumerate() {
         for &i in g {
             x[i] = x0[i] + step(i);
@@ -637,26 +697,14 @@ pub fn propagate_sparse(
     for row in &mut jac {
         row.sort_unstable_by_key(|e| e.0);
     }
+    Ok(jac)
+}
 
-    // Σ J_kᵀ per output, sparse: most outputs depend on a handful of inputs, so
-    // cov[a][b] = J_b · (Σ J_aᵀ) over nonzeros.
-    let nz = &jac;
-    let mut partners: Vec<Vec<(usize, f64)>> = vec![Vec::new(); n];
-    for &(i, j, r) in &pairs {
-        partners[i].push((j, r));
-        partners[j].push((i, r));
-    }
-    let u_in: Vec<f64> = inputs.iter().map(|i| i.u).collect();
-    let mut scratch = vec![0.0; n];
-    let mut touched = vec![false; n];
-    let sigma_j: Vec<Vec<(usize, f64)>> = nz
-        .iter()
-        .map(|row| sigma_times(row, &u_in, &partners, &mut scratch, &mut touched))
-        .collect();
-    let var_of: Vec<f64> = (0..m).map(|k| sparse_dot(&nz[k], &sigma_j[k])).collect();
-
-    // Clusters of inputs linked by nonzero correlations (union–find); a cluster is pooled in
-    // Welch–Satterthwaite when all its members share one finite dof.
+/// Clusters of inputs linked by nonzero correlations (union–find): each input's cluster root,
+/// and whether it is pooled in Welch–Satterthwaite (its cluster has several members that all
+/// share one finite dof).
+fn pooling(inputs: &[Input], pairs: &[(usize, usize, f64)]) -> (Vec<usize>, Vec<bool>) {
+    let n = inputs.len();
     let mut parent: Vec<usize> = (0..n).collect();
     fn root(p: &mut [usize], mut i: usize) -> usize {
         while p[i] != i {
@@ -665,7 +713,7 @@ pub fn propagate_sparse(
         }
         i
     }
-    for &(i, j, r) in &pairs {
+    for &(i, j, r) in pairs {
         if r != 0.0 {
             let (a, b) = (root(&mut parent, i), root(&mut parent, j));
             if a != b {
@@ -688,26 +736,7 @@ pub fn propagate_sparse(
             size > 1 && inputs[i].dof.is_some() && same
         })
         .collect();
-
-    let mut results = Vec::with_capacity(m);
-    for k in 0..m {
-        let cl = Clusters {
-            pooled: &pooled,
-            roots: &roots,
-            partners: &partners,
-        };
-        results.push(measure(k, y0[k], &nz[k], var_of[k], inputs, &cl, coverage)?);
-    }
-    Ok(Propagated {
-        values: y0,
-        results,
-        jac,
-        sigma_j,
-        u: u_in,
-        partners,
-        pooled,
-        roots,
-    })
+    (roots, pooled)
 }
 
 /// How inputs are pooled for Welch–Satterthwaite (see [`propagate`]).

@@ -27,7 +27,9 @@
 
 use super::{Context, Flag};
 use crate::diag::{Diagnostic, Span};
-use crate::notebook::{Accuracy, Instrument, Named, PartKind, ReadingsBlock, Tolerance};
+use crate::notebook::{
+    Accuracy, Column, Distribution, Instrument, Named, PartKind, ReadingsBlock, Tolerance,
+};
 use crate::quantity::Unit;
 use crate::uncertainty::{dist_of, type_a, type_a_correlation, type_b, Dist, Input, Model};
 use std::collections::BTreeMap;
@@ -220,6 +222,103 @@ pub fn accuracy_limit(inst: &Instrument, x: f64, unit: Unit) -> f64 {
     }
 }
 
+/// The Type B terms of one column read with its instrument.
+struct TypeBTerms<'i> {
+    /// Gain input shared by every row of the column.
+    gain: Option<usize>,
+    /// Per-reading counts, resolution or absolute-accuracy offset: (u, distribution, label).
+    count: Option<(f64, Dist, &'i str)>,
+    /// Per-reading scale-reading offset u (rectangular).
+    read: Option<f64>,
+}
+
+/// Block checks before any input is made: required columns, rows, groups, every used cell
+/// present and finite, the header's instruments defined. Returns the groups and the
+/// instruments (each once).
+fn check_block<'c>(
+    ctx: &Context<'c>,
+    block: &'c ReadingsBlock,
+    spec: &Spec,
+    used: &[&str],
+) -> Result<(Vec<Group>, Vec<(&'c Named, &'c Instrument)>), Vec<Diagnostic>> {
+    let mut diags = Vec::new();
+    let missing: Vec<&str> = spec
+        .required
+        .iter()
+        .copied()
+        .filter(|s| block.col(s).is_none())
+        .collect();
+    if !missing.is_empty() {
+        diags.push(
+            Diagnostic::new(
+                block.span,
+                format!(
+                    "network {} needs columns {}",
+                    spec.network,
+                    spec.required.join(", ")
+                ),
+            )
+            .expected(spec.required.join(", "))
+            .found(format!("no column {}", missing.join(", "))),
+        );
+    }
+    if block.rows.is_empty() {
+        diags.push(Diagnostic::new(block.span, "readings block has no rows"));
+    }
+    let groups = match groups(block) {
+        Ok(g) => g,
+        Err(d) => {
+            diags.extend(d);
+            Vec::new()
+        }
+    };
+    // Every used cell must exist and be finite.
+    for row in &block.rows {
+        for s in used {
+            if let Some(ci) = block.col(s) {
+                match row.cells.get(ci) {
+                    None => diags.push(Diagnostic::new(
+                        row.span,
+                        format!("row has no value in column {s}"),
+                    )),
+                    Some(c) if !c.value.is_finite() => diags.push(
+                        Diagnostic::new(
+                            c.span,
+                            format!("value in column {s} is not a finite number"),
+                        )
+                        .found(c.text.clone()),
+                    ),
+                    _ => {}
+                }
+            }
+        }
+    }
+    // Instruments named in the header must exist.
+    let mut insts: Vec<(&Named, &Instrument)> = Vec::new();
+    for n in [&block.meter, &block.phase, &block.counter]
+        .into_iter()
+        .flatten()
+    {
+        match ctx.instruments.get(&n.name) {
+            Some(i) => {
+                if !insts.iter().any(|(m, _)| m.name == n.name) {
+                    insts.push((n, i));
+                }
+            }
+            None => diags.push(
+                Diagnostic::new(n.span, format!("unknown instrument {}", n.name))
+                    .expected("a name under `instruments` in the front matter")
+                    .found(n.name.clone()),
+            ),
+        }
+    }
+    if diags.is_empty() {
+        Ok((groups, insts))
+    } else {
+        Err(diags)
+    }
+}
+
 impl BlockInputs {
     /// Builds the inputs of a block for a network's `spec`.
     pub fn build(
@@ -227,87 +326,13 @@ impl BlockInputs {
         block: &ReadingsBlock,
         spec: &Spec,
     ) -> Result<BlockInputs, Vec<Diagnostic>> {
-        let mut diags = Vec::new();
-        let missing: Vec<&str> = spec
-            .required
-            .iter()
-            .copied()
-            .filter(|s| block.col(s).is_none())
-            .collect();
-        if !missing.is_empty() {
-            diags.push(
-                Diagnostic::new(
-                    block.span,
-                    format!(
-                        "network {} needs columns {}",
-                        spec.network,
-                        spec.required.join(", ")
-                    ),
-                )
-                .expected(spec.required.join(", "))
-                .found(format!("no column {}", missing.join(", "))),
-            );
-        }
-        if block.rows.is_empty() {
-            diags.push(Diagnostic::new(block.span, "readings block has no rows"));
-        }
-        let groups = match groups(block) {
-            Ok(g) => g,
-            Err(d) => {
-                diags.extend(d);
-                Vec::new()
-            }
-        };
-        // Every used cell must exist and be finite.
         let used: Vec<&str> = spec
             .required
             .iter()
             .chain(spec.optional.iter())
             .copied()
             .collect();
-        for row in &block.rows {
-            for s in &used {
-                if let Some(ci) = block.col(s) {
-                    match row.cells.get(ci) {
-                        None => diags.push(Diagnostic::new(
-                            row.span,
-                            format!("row has no value in column {s}"),
-                        )),
-                        Some(c) if !c.value.is_finite() => diags.push(
-                            Diagnostic::new(
-                                c.span,
-                                format!("value in column {s} is not a finite number"),
-                            )
-                            .found(c.text.clone()),
-                        ),
-                        _ => {}
-                    }
-                }
-            }
-        }
-        // Instruments named in the header must exist.
-        let mut insts: Vec<(&Named, &Instrument)> = Vec::new();
-        for n in [&block.meter, &block.phase, &block.counter]
-            .into_iter()
-            .flatten()
-        {
-            match ctx.instruments.get(&n.name) {
-                Some(i) => {
-                    if !insts.iter().any(|(m, _)| m.name == n.name) {
-                        insts.push((n, i));
-                    }
-                }
-                None => diags.push(
-                    Diagnostic::new(n.span, format!("unknown instrument {}", n.name))
-                        .expected("a name under `instruments` in the front matter")
-                        .found(n.name.clone()),
-                ),
-            }
-        }
-        if !diags.is_empty() {
-            return Err(diags);
-        }
-
+        let (groups, insts) = check_block(ctx, block, spec, &used)?;
         let mut bi = BlockInputs {
             inputs: Vec::new(),
             corr: Vec::new(),
@@ -319,7 +344,6 @@ impl BlockInputs {
             source: block.source,
             normalise: vec![false; groups.len()],
         };
-
         for c in &block.columns {
             let s = c.symbol.as_str();
             if s != "f" && !used.contains(&s) {
@@ -330,56 +354,10 @@ impl BlockInputs {
                 });
             }
         }
-
-        // Calibration due dates.
-        for (n, i) in &insts {
-            if let Some(due) = i.due {
-                if ctx.date > due {
-                    bi.flags.push(Flag {
-                        warn: true,
-                        span: Some(n.span),
-                        message: format!(
-                            "readings dated {} were taken after the calibration of {} fell due ({})",
-                            ctx.date, n.name, due
-                        ),
-                    });
-                }
-            }
-        }
-        // Bandwidths.
-        if let Some(fc) = block.col("f") {
-            for (n, i) in &insts {
-                let Some(bw) = i.bandwidth else { continue };
-                let serves = block.columns.iter().any(|c| {
-                    (c.symbol == "f" || used.contains(&c.symbol.as_str()))
-                        && instrument_slot(block, &c.symbol)
-                            .map(|m| m.name == n.name)
-                            .unwrap_or(false)
-                });
-                if !serves {
-                    continue;
-                }
-                for row in &block.rows {
-                    if let Some(cell) = row.cells.get(fc) {
-                        if cell.value > bw {
-                            bi.flags.push(Flag {
-                                warn: true,
-                                span: Some(row.span),
-                                message: format!(
-                                    "reading at {} is above the bandwidth of {} ({})",
-                                    fmt_hz(cell.value),
-                                    n.name,
-                                    fmt_hz(bw)
-                                ),
-                            });
-                        }
-                    }
-                }
-            }
-        }
+        bi.due_flags(ctx, &insts);
+        bi.bandwidth_flags(block, &insts, &used);
 
         // Measured columns.
-        let gname = |g: &Group| g.f.map(|f| format!("@{}", fmt_hz(f))).unwrap_or_default();
         let mut col_inputs: BTreeMap<String, Vec<Option<usize>>> = BTreeMap::new();
         for c in &block.columns {
             let s = c.symbol.as_str();
@@ -398,156 +376,253 @@ impl BlockInputs {
                     ),
                 });
             }
-            // Gain shared by the whole column.
-            let mut gain = None;
-            let mut count_offset: Option<(f64, Dist, &str)> = None; // (u, dist, label)
-            let mut read_offset: Option<f64> = None;
-            if let Some((iname, i)) = inst {
-                let res = i
-                    .resolution
-                    .filter(|r| unit_ok(r, c.unit))
-                    .map(|r| r.value.abs());
-                match &i.accuracy {
-                    Some(Accuracy::Relative { fraction, counts }) => {
-                        if *fraction != 0.0 {
-                            bi.inputs.push(Input::type_b(
-                                format!("gain({iname},{s})"),
-                                1.0,
-                                type_b(*fraction, i.distribution),
-                                dist_of(i.distribution),
-                            ));
-                            gain = Some(bi.inputs.len() - 1);
-                        }
-                        if *counts > 0.0 {
-                            match res {
-                                Some(r) => count_offset = Some((type_b(counts * r, i.distribution), dist_of(i.distribution), "counts")),
-                                None => bi.flags.push(Flag {
-                                    warn: false,
-                                    span: Some(i.span),
-                                    message: format!(
-                                        "accuracy of {iname} has {counts} counts but no resolution in {}: the counts are not included for column {s}",
-                                        c.unit.symbol()
-                                    ),
-                                }),
-                            }
-                        } else if let Some(r) = res {
-                            count_offset = Some((
-                                type_b(r / 2.0, crate::notebook::Distribution::Rectangular),
-                                Dist::Rectangular,
-                                "res",
-                            ));
-                        }
-                    }
-                    Some(Accuracy::Absolute(q)) => {
-                        if unit_ok(q, c.unit) {
-                            count_offset = Some((
-                                type_b(q.value, i.distribution),
-                                dist_of(i.distribution),
-                                "acc",
-                            ));
-                        } else {
-                            bi.flags.push(Flag {
-                                warn: false,
-                                span: Some(i.span),
-                                message: format!(
-                                    "accuracy of {iname} is in {}, not {}: not applied to column {s}",
-                                    q.unit.symbol(),
-                                    c.unit.symbol()
-                                ),
-                            });
-                        }
-                    }
-                    None => {
-                        if let Some(r) = res {
-                            count_offset = Some((
-                                type_b(r / 2.0, crate::notebook::Distribution::Rectangular),
-                                Dist::Rectangular,
-                                "res",
-                            ));
-                        }
-                    }
+            let terms = bi.type_b_terms(c, inst);
+            let idx_per_group = bi.column_values(block, c, ci, inst, &terms);
+            col_inputs.insert(s.to_string(), idx_per_group);
+        }
+        bi.type_a_correlations(block, &used, &col_inputs);
+        bi.source_level(ctx, block);
+
+        // Series resistor.
+        if spec.resistor {
+            let (inp, name) = series_resistor(ctx, block, &mut bi.flags)?;
+            bi.inputs.push(inp);
+            bi.resistor = Some((bi.inputs.len() - 1, name));
+        }
+        Ok(bi)
+    }
+
+    /// Calibration due dates.
+    fn due_flags(&mut self, ctx: &Context, insts: &[(&Named, &Instrument)]) {
+        for (n, i) in insts {
+            if let Some(due) = i.due {
+                if ctx.date > due {
+                    self.flags.push(Flag {
+                        warn: true,
+                        span: Some(n.span),
+                        message: format!(
+                            "readings dated {} were taken after the calibration of {} fell due ({})",
+                            ctx.date, n.name, due
+                        ),
+                    });
                 }
-                if let Some(rd) = &i.reading {
-                    if unit_ok(rd, c.unit) {
-                        read_offset =
-                            Some(type_b(rd.value, crate::notebook::Distribution::Rectangular));
-                    } else if matches!(c.unit, Unit::Div) || matches!(rd.unit, Unit::Div) {
-                        bi.flags.push(Flag {
-                            warn: false,
-                            span: Some(i.span),
+            }
+        }
+    }
+
+    /// Readings above the bandwidth of an instrument that serves a used column.
+    fn bandwidth_flags(
+        &mut self,
+        block: &ReadingsBlock,
+        insts: &[(&Named, &Instrument)],
+        used: &[&str],
+    ) {
+        let Some(fc) = block.col("f") else { return };
+        for (n, i) in insts {
+            let Some(bw) = i.bandwidth else { continue };
+            let serves = block.columns.iter().any(|c| {
+                (c.symbol == "f" || used.contains(&c.symbol.as_str()))
+                    && instrument_slot(block, &c.symbol)
+                        .map(|m| m.name == n.name)
+                        .unwrap_or(false)
+            });
+            if !serves {
+                continue;
+            }
+            for row in &block.rows {
+                if let Some(cell) = row.cells.get(fc) {
+                    if cell.value > bw {
+                        self.flags.push(Flag {
+                            warn: true,
+                            span: Some(row.span),
                             message: format!(
-                                "reading half-width of {iname} is in {}, not {}: not applied to column {s}",
-                                rd.unit.symbol(),
-                                c.unit.symbol()
+                                "reading at {} is above the bandwidth of {} ({})",
+                                fmt_hz(cell.value),
+                                n.name,
+                                fmt_hz(bw)
                             ),
                         });
                     }
                 }
             }
-            let mut per_group = Vec::with_capacity(groups.len());
-            let mut idx_per_group = Vec::with_capacity(groups.len());
-            for (gi, g) in groups.iter().enumerate() {
-                let tag = format!("{s}{}", gname(g));
-                let samples: Vec<f64> = g
-                    .rows
-                    .iter()
-                    .filter_map(|&r| block.rows.get(r))
-                    .filter_map(|r| r.cells.get(ci))
-                    .map(|c| c.value)
-                    .collect();
-                let mut v = Value {
-                    base: 0.0,
-                    mean: None,
-                    gain,
-                    offsets: Vec::new(),
-                };
-                if s == "f" {
-                    v.base = g.f.unwrap_or(0.0);
-                    idx_per_group.push(None);
-                } else {
-                    let (mean, u, nu) = type_a(&samples);
-                    if samples.len() > 1 {
-                        bi.inputs.push(Input::type_a(tag.clone(), mean, u, nu));
-                    } else {
-                        bi.inputs
-                            .push(Input::type_b(tag.clone(), mean, 0.0, Dist::Rectangular));
-                    }
-                    v.mean = Some(bi.inputs.len() - 1);
-                    idx_per_group.push(Some(bi.inputs.len() - 1));
-                }
-                if let (Some((u, d, label)), Some((iname, _))) = (count_offset, inst) {
-                    bi.inputs
-                        .push(Input::type_b(format!("{label}({iname},{tag})"), 0.0, u, d));
-                    v.offsets.push(bi.inputs.len() - 1);
-                }
-                if let (Some(u), Some((iname, _))) = (read_offset, inst) {
-                    bi.inputs.push(Input::type_b(
-                        format!("read({iname},{tag})"),
-                        0.0,
-                        u,
-                        Dist::Rectangular,
-                    ));
-                    v.offsets.push(bi.inputs.len() - 1);
-                }
-                if s == "f" {
-                    if let Some(slot) = bi.freq.get_mut(gi) {
-                        *slot = Some(v.clone());
-                    }
-                }
-                per_group.push(v);
-            }
-            bi.values.insert(s.to_string(), per_group);
-            col_inputs.insert(s.to_string(), idx_per_group);
         }
+    }
 
-        // Type A correlations between columns' means from the same rows (GUM 5.2.3).
+    /// The Type B terms of column `c` read with `inst`: the gain input shared by the whole
+    /// column (pushed here), and the per-reading offsets' standard uncertainties.
+    fn type_b_terms<'i>(
+        &mut self,
+        c: &Column,
+        inst: Option<(&'i str, &Instrument)>,
+    ) -> TypeBTerms<'i> {
+        let mut t = TypeBTerms {
+            gain: None,
+            count: None,
+            read: None,
+        };
+        let Some((iname, i)) = inst else { return t };
+        let s = c.symbol.as_str();
+        // Without counts, the quantisation half-width resolution/2 (rectangular).
+        let quantisation = |r: f64| {
+            let u = type_b(r / 2.0, Distribution::Rectangular);
+            (u, Dist::Rectangular, "res")
+        };
+        let res = i
+            .resolution
+            .filter(|r| unit_ok(r, c.unit))
+            .map(|r| r.value.abs());
+        match &i.accuracy {
+            Some(Accuracy::Relative { fraction, counts }) => {
+                if *fraction != 0.0 {
+                    self.inputs.push(Input::type_b(
+                        format!("gain({iname},{s})"),
+                        1.0,
+                        type_b(*fraction, i.distribution),
+                        dist_of(i.distribution),
+                    ));
+                    t.gain = Some(self.inputs.len() - 1);
+                }
+                if *counts > 0.0 {
+                    match res {
+                        Some(r) => t.count = Some((type_b(counts * r, i.distribution), dist_of(i.distribution), "counts")),
+                        None => self.flags.push(Flag {
+                            warn: false,
+                            span: Some(i.span),
+                            message: format!(
+                                "accuracy of {iname} has {counts} counts but no resolution in {}: the counts are not included for column {s}",
+                                c.unit.symbol()
+                            ),
+                        }),
+                    }
+                } else if let Some(r) = res {
+                    t.count = Some(quantisation(r));
+                }
+            }
+            Some(Accuracy::Absolute(q)) => {
+                if unit_ok(q, c.unit) {
+                    t.count = Some((
+                        type_b(q.value, i.distribution),
+                        dist_of(i.distribution),
+                        "acc",
+                    ));
+                } else {
+                    self.flags.push(Flag {
+                        warn: false,
+                        span: Some(i.span),
+                        message: format!(
+                            "accuracy of {iname} is in {}, not {}: not applied to column {s}",
+                            q.unit.symbol(),
+                            c.unit.symbol()
+                        ),
+                    });
+                }
+            }
+            None => {
+                if let Some(r) = res {
+                    t.count = Some(quantisation(r));
+                }
+            }
+        }
+        if let Some(rd) = &i.reading {
+            if unit_ok(rd, c.unit) {
+                t.read = Some(type_b(rd.value, Distribution::Rectangular));
+            } else if matches!(c.unit, Unit::Div) || matches!(rd.unit, Unit::Div) {
+                self.flags.push(Flag {
+                    warn: false,
+                    span: Some(i.span),
+                    message: format!(
+                        "reading half-width of {iname} is in {}, not {}: not applied to column {s}",
+                        rd.unit.symbol(),
+                        c.unit.symbol()
+                    ),
+                });
+            }
+        }
+        t
+    }
+
+    /// Per group: the mean input of column `c` (cell index `ci`; Type A over the group's
+    /// repeats) and its offset inputs. Returns each group's mean input (None for `f`).
+    fn column_values(
+        &mut self,
+        block: &ReadingsBlock,
+        c: &Column,
+        ci: usize,
+        inst: Option<(&str, &Instrument)>,
+        terms: &TypeBTerms,
+    ) -> Vec<Option<usize>> {
+        let s = c.symbol.as_str();
+        let gname = |g: &Group| g.f.map(|f| format!("@{}", fmt_hz(f))).unwrap_or_default();
+        let mut per_group = Vec::with_capacity(self.groups.len());
+        let mut idx_per_group = Vec::with_capacity(self.groups.len());
+        for (gi, g) in self.groups.iter().enumerate() {
+            let tag = format!("{s}{}", gname(g));
+            let samples: Vec<f64> = g
+                .rows
+                .iter()
+                .filter_map(|&r| block.rows.get(r))
+                .filter_map(|r| r.cells.get(ci))
+                .map(|c| c.value)
+                .collect();
+            let mut v = Value {
+                base: 0.0,
+                mean: None,
+                gain: terms.gain,
+                offsets: Vec::new(),
+            };
+            if s == "f" {
+                v.base = g.f.unwrap_or(0.0);
+                idx_per_group.push(None);
+            } else {
+                let (mean, u, nu) = type_a(&samples);
+                if samples.len() > 1 {
+                    self.inputs.push(Input::type_a(tag.clone(), mean, u, nu));
+                } else {
+                    self.inputs
+                        .push(Input::type_b(tag.clone(), mean, 0.0, Dist::Rectangular));
+                }
+                v.mean = Some(self.inputs.len() - 1);
+                idx_per_group.push(Some(self.inputs.len() - 1));
+            }
+            if let (Some((u, d, label)), Some((iname, _))) = (terms.count, inst) {
+                self.inputs
+                    .push(Input::type_b(format!("{label}({iname},{tag})"), 0.0, u, d));
+                v.offsets.push(self.inputs.len() - 1);
+            }
+            if let (Some(u), Some((iname, _))) = (terms.read, inst) {
+                self.inputs.push(Input::type_b(
+                    format!("read({iname},{tag})"),
+                    0.0,
+                    u,
+                    Dist::Rectangular,
+                ));
+                v.offsets.push(self.inputs.len() - 1);
+            }
+            if s == "f" {
+                if let Some(slot) = self.freq.get_mut(gi) {
+                    *slot = Some(v.clone());
+                }
+            }
+            per_group.push(v);
+        }
+        self.values.insert(s.to_string(), per_group);
+        idx_per_group
+    }
+
+    /// Type A correlations between columns' means from the same rows (GUM 5.2.3).
+    fn type_a_correlations(
+        &mut self,
+        block: &ReadingsBlock,
+        used: &[&str],
+        col_inputs: &BTreeMap<String, Vec<Option<usize>>>,
+    ) {
         let measured: Vec<&str> = block
             .columns
             .iter()
             .map(|c| c.symbol.as_str())
             .filter(|s| *s != "f" && used.contains(s))
             .collect();
-        for (gi, g) in groups.iter().enumerate() {
+        for (gi, g) in self.groups.iter().enumerate() {
             if g.rows.len() < 2 {
                 continue;
             }
@@ -576,60 +651,52 @@ impl BlockInputs {
                         .and_then(|v| v.get(gi).copied().flatten());
                     if let (Some(ia), Some(ib)) = (ia, ib) {
                         if r != 0.0 {
-                            bi.corr.push((ia, ib, r));
+                            self.corr.push((ia, ib, r));
                         }
                     }
                 }
             }
         }
+    }
 
-        // Source level check and normalisation.
-        if let (Some(level), Some(vc)) = (block.source, block.col("Vs")) {
-            let meter = block
-                .meter
-                .as_ref()
-                .and_then(|n| ctx.instruments.get(&n.name));
-            for (gi, g) in groups.iter().enumerate() {
-                for &r in &g.rows {
-                    let Some(cell) = block.rows.get(r).and_then(|row| row.cells.get(vc)) else {
-                        continue;
-                    };
-                    let lim = meter
-                        .map(|m| accuracy_limit(m, cell.value, Unit::V))
-                        .unwrap_or(0.0);
-                    let tol = lim.max(1e-12 * level.abs());
-                    if (cell.value - level).abs() > tol {
-                        bi.flags.push(Flag {
-                            warn: true,
-                            span: Some(cell.span),
-                            message: format!(
-                                "Vs = {} V departs from the stated source level {} V by more than the meter's limit (±{} V): the voltages at {} are normalised to {} V",
-                                fmt_sig(cell.value, 6),
-                                fmt_sig(level, 6),
-                                fmt_sig(lim, 3),
-                                g.f.map(fmt_hz).unwrap_or_else(|| "this block".into()),
-                                fmt_sig(level, 6)
-                            ),
-                        });
-                        if let Some(n) = bi.normalise.get_mut(gi) {
-                            *n = true;
-                        }
+    /// Source level check: a group whose Vs departs from the stated level by more than the
+    /// meter's limit is flagged and normalised.
+    fn source_level(&mut self, ctx: &Context, block: &ReadingsBlock) {
+        let (Some(level), Some(vc)) = (block.source, block.col("Vs")) else {
+            return;
+        };
+        let meter = block
+            .meter
+            .as_ref()
+            .and_then(|n| ctx.instruments.get(&n.name));
+        for (gi, g) in self.groups.iter().enumerate() {
+            for &r in &g.rows {
+                let Some(cell) = block.rows.get(r).and_then(|row| row.cells.get(vc)) else {
+                    continue;
+                };
+                let lim = meter
+                    .map(|m| accuracy_limit(m, cell.value, Unit::V))
+                    .unwrap_or(0.0);
+                let tol = lim.max(1e-12 * level.abs());
+                if (cell.value - level).abs() > tol {
+                    self.flags.push(Flag {
+                        warn: true,
+                        span: Some(cell.span),
+                        message: format!(
+                            "Vs = {} V departs from the stated source level {} V by more than the meter's limit (±{} V): the voltages at {} are normalised to {} V",
+                            fmt_sig(cell.value, 6),
+                            fmt_sig(level, 6),
+                            fmt_sig(lim, 3),
+                            g.f.map(fmt_hz).unwrap_or_else(|| "this block".into()),
+                            fmt_sig(level, 6)
+                        ),
+                    });
+                    if let Some(n) = self.normalise.get_mut(gi) {
+                        *n = true;
                     }
                 }
             }
         }
-
-        // Series resistor.
-        if spec.resistor {
-            match series_resistor(ctx, block, &mut bi.flags) {
-                Ok((inp, name)) => {
-                    bi.inputs.push(inp);
-                    bi.resistor = Some((bi.inputs.len() - 1, name));
-                }
-                Err(d) => return Err(d),
-            }
-        }
-        Ok(bi)
     }
 
     /// Whether the block has this column.
@@ -798,7 +865,7 @@ fn series_resistor(
                 let d = if i.accuracy.is_some() {
                     i.distribution
                 } else {
-                    crate::notebook::Distribution::Rectangular
+                    Distribution::Rectangular
                 };
                 (r, type_b(a, d), dist_of(d))
             }
@@ -817,11 +884,7 @@ fn series_resistor(
                 0.0
             }
         };
-        (
-            r,
-            type_b(a, crate::notebook::Distribution::Rectangular),
-            Dist::Rectangular,
-        )
+        (r, type_b(a, Distribution::Rectangular), Dist::Rectangular)
     } else {
         return Err(vec![Diagnostic::new(
             part.span,

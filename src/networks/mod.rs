@@ -1,20 +1,93 @@
 //! Reduction: readings → results, one file per network. Pure maths, no I/O.
 //!
-//! Adding a network: one file here with `pub fn reduce(&Context, &ReadingsBlock) ->
-//! Result<BlockResult, Vec<Diagnostic>>` and one arm in [`reduce_block`].
+//! Adding a network: one file here with a `pub const NETWORK: Descriptor` (its name, columns,
+//! checks, judged results, figure and `reduce`), and its module's name in the list below.
 
 pub mod inputs;
-pub mod rc;
-pub mod rl;
-pub mod rlc;
-pub mod z;
 
 use crate::diag::{Diagnostic, Span};
-use crate::notebook::{Instrument, Item, Network, Notebook, Part, ReadingsBlock};
+use crate::notebook::{Instrument, Item, Network, Notebook, Part, PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{McInterval, Measured};
 use chrono::NaiveDate;
+use inputs::Spec;
 use std::collections::BTreeMap;
+
+/// Declares each network's module and lists its descriptor in [`NETWORKS`].
+macro_rules! networks {
+    ($($m:ident,)*) => {
+        $(pub mod $m;)*
+        /// Every network, in the order messages list them.
+        pub const NETWORKS: &[&Descriptor] = &[$(&$m::NETWORK),*];
+    };
+}
+
+// The list of networks: one line each.
+networks! {
+    rc,
+    rl,
+    rlc,
+    z,
+}
+
+/// Everything about one network that the stages read: the parser (name, required columns),
+/// the reduction (inputs, checks, `reduce`), judging (results held against a part's
+/// tolerance) and rendering (the figure).
+#[derive(Debug)]
+pub struct Descriptor {
+    /// The header's `network:` word, the columns required and read, the series resistor.
+    pub spec: Spec<'static>,
+    /// Columns whose every reading must be above zero, each with why (for the message; may
+    /// be empty).
+    pub positive: &'static [(&'static str, &'static str)],
+    /// Block results judged against the tolerance of the block's part of the kind given.
+    pub judged: &'static [(&'static str, PartKind)],
+    pub plot: PlotKind,
+    pub reduce: fn(&Context, &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>>,
+}
+
+/// How a block's figure is drawn (`render/plots.rs`).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum PlotKind {
+    /// Against frequency: the first series of `main` the block has (with the series of
+    /// `beside` when that is `main[0]`) and the tolerance band of the `band` result from the
+    /// block's part of that kind; then the predicted and measured phase.
+    PerFrequency {
+        main: &'static [&'static str],
+        beside: &'static [&'static str],
+        band: (&'static str, PartKind),
+    },
+    /// The admittance sweep with the fitted curve and markers, residuals below.
+    Resonance,
+    /// One panel per series of more than one point.
+    Series,
+}
+
+/// Every reading in the `positive` columns of a descriptor that is not above zero, said at
+/// its cell.
+pub fn check_positive(block: &ReadingsBlock, positive: &[(&str, &str)]) -> Vec<Diagnostic> {
+    let mut d = Vec::new();
+    for (s, why) in positive {
+        let Some(ci) = block.col(s) else { continue };
+        for row in &block.rows {
+            if let Some(c) = row.cells.get(ci) {
+                if !(c.value > 0.0) {
+                    let message = if why.is_empty() {
+                        format!("{s} must be positive")
+                    } else {
+                        format!("{s} must be positive: {why}")
+                    };
+                    d.push(
+                        Diagnostic::new(c.span, message)
+                            .expected(format!("{s} > 0"))
+                            .found(c.text.clone()),
+                    );
+                }
+            }
+        }
+    }
+    d
+}
 
 /// A named result, per frequency (`f` set) or for the whole block.
 #[derive(Debug, Clone, PartialEq)]
@@ -151,13 +224,23 @@ pub fn reduce(nb: &Notebook) -> Result<Reduction, Vec<Diagnostic>> {
     }
 }
 
-/// One block, dispatched on its network.
+/// One block, by its network's `reduce`.
 pub fn reduce_block(ctx: &Context, b: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    match b.network {
-        Network::RC => rc::reduce(ctx, b),
-        Network::Z => z::reduce(ctx, b),
-        Network::RL => rl::reduce(ctx, b),
-        Network::RLC => rlc::reduce(ctx, b),
+    (b.network.descriptor().reduce)(ctx, b)
+}
+
+/// Says a maths error that carries no span of its own (a singular fit, a non-finite output)
+/// at the whole block: "block <id> could not be reduced: …".
+pub trait AtBlock<T> {
+    fn at_block(self, block: &ReadingsBlock) -> Result<T, Vec<Diagnostic>>;
+}
+
+impl<T, E: std::fmt::Display> AtBlock<T> for Result<T, E> {
+    fn at_block(self, block: &ReadingsBlock) -> Result<T, Vec<Diagnostic>> {
+        self.map_err(|e| {
+            let message = format!("block {} could not be reduced: {e}", block.id);
+            vec![Diagnostic::new(block.span, message)]
+        })
     }
 }
 
@@ -233,4 +316,52 @@ pub fn fence(b: &mut BlockResult) {
     }
     b.plot.markers.retain(|m| m.1.is_finite());
     b.flags.extend(flags);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::notebook::SYMBOLS;
+
+    #[test]
+    fn every_descriptor_is_consistent() {
+        let mut names: Vec<&str> = NETWORKS.iter().map(|d| d.spec.network).collect();
+        names.sort_unstable();
+        names.dedup();
+        assert_eq!(names.len(), NETWORKS.len(), "network names must differ");
+        for d in NETWORKS {
+            let n = d.spec.network;
+            let read: Vec<&str> = d
+                .spec
+                .required
+                .iter()
+                .chain(d.spec.optional)
+                .copied()
+                .collect();
+            for c in &read {
+                assert!(SYMBOLS.contains(c), "{n}: column {c} is no column symbol");
+            }
+            for (c, _) in d.positive {
+                assert!(read.contains(c), "{n}: {c} is checked but not read");
+            }
+            if let PlotKind::PerFrequency { main, band, .. } = d.plot {
+                assert!(
+                    main.contains(&band.0),
+                    "{n}: band {} is not plotted",
+                    band.0
+                );
+                assert!(
+                    d.judged.contains(&band),
+                    "{n}: band {} is not judged",
+                    band.0
+                );
+            }
+            assert_eq!(
+                Network::all()
+                    .find(|x| x.name() == n)
+                    .map(|x| x.descriptor().spec.network),
+                Some(n)
+            );
+        }
+    }
 }

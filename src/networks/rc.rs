@@ -7,55 +7,122 @@
 //! same propagation so shared gains and R stay correlated.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{BlockResult, Context, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Descriptor, Flag, NamedResult, PlotData,
+    PlotKind,
+};
 use crate::diag::Diagnostic;
-use crate::notebook::{Network, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
-use crate::uncertainty::propagate_sparse;
+use crate::uncertainty::{propagate_sparse, Measured};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RC",
-    required: &["f", "VR", "VC"],
-    optional: &["Vs", "shift", "period"],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RC",
+        required: &["f", "VR", "VC"],
+        optional: &["Vs", "shift", "period"],
+        resistor: true,
+    },
+    positive: &[
+        (
+            "VR",
+            "with no voltage across R no current flows and C cannot be found",
+        ),
+        (
+            "VC",
+            "a zero voltage across the capacitor would mean an infinite C",
+        ),
+        ("Vs", "an amplitude must be positive"),
+        ("period", "a trace period must be positive"),
+    ],
+    judged: &[("C", PartKind::Capacitor)],
+    plot: PlotKind::PerFrequency {
+        main: &["C", "XC"],
+        beside: &[],
+        band: ("C", PartKind::Capacitor),
+    },
+    reduce,
 };
 
-/// Positive readings are required of these columns.
-fn check_positive(block: &ReadingsBlock, cols: &[&str]) -> Vec<Diagnostic> {
-    let mut d = Vec::new();
-    for s in cols {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    let why = match *s {
-                        "VR" => "with no voltage across R no current flows and C cannot be found",
-                        "VC" => "a zero voltage across the capacitor would mean an infinite C",
-                        "period" => "a trace period must be positive",
-                        _ => "an amplitude must be positive",
-                    };
-                    d.push(
-                        Diagnostic::new(c.span, format!("{s} must be positive: {why}"))
-                            .expected(format!("{s} > 0"))
-                            .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
-    d
-}
-
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let diags = check_positive(block, &["VR", "VC", "Vs", "period"]);
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    let diags = check_positive(block, NETWORK.positive);
     if !diags.is_empty() {
         return Err(diags);
     }
     let mut flags: Vec<Flag> = bi.flags.clone();
+    reading_flags(block, &bi, &mut flags);
     let has_vs = bi.has("Vs");
     let has_phase = bi.has("shift") && bi.has("period");
+
+    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
+    // (mean over groups) is then a linear combination of the groups' C.
+    let mut names: Vec<(&str, Unit)> = vec![
+        ("I", Unit::A),
+        ("XC", Unit::Ohm),
+        ("C", Unit::F),
+        ("phase", Unit::Rad),
+    ];
+    if has_phase {
+        names.push(("phase_measured", Unit::Rad));
+    }
+    if has_vs {
+        names.push(("residual", Unit::V));
+    }
+    let per = names.len();
+    let ng = bi.groups.len();
+    let model = |x: &[f64]| -> Vec<f64> {
+        let mut y = Vec::with_capacity(ng * per);
+        let r = bi.r(x);
+        for g in 0..ng {
+            let vr = bi.voltage("VR", g, x);
+            let vc = bi.voltage("VC", g, x);
+            let w = 2.0 * PI * bi.f(g, x);
+            let i = vr / r;
+            let c = i / (w * vc);
+            y.push(i);
+            y.push(vc / i);
+            y.push(c);
+            y.push((vc / vr).atan());
+            if has_phase {
+                y.push(2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x));
+            }
+            if has_vs {
+                y.push(bi.voltage("Vs", g, x) - vr.hypot(vc));
+            }
+        }
+        y
+    };
+    // Each group's outputs read that group's inputs and the shared ones only.
+    let pattern: Vec<Vec<usize>> = (0..ng)
+        .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), per))
+        .collect();
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
+    // Block C = mean of the groups' C.
+    let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
+    let block_c = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
+    let (rows, plot) = per_frequency(&bi, &p.results, &names, &mut flags);
+    let mut results = Vec::new();
+    results.push(NamedResult {
+        name: "C".into(),
+        f: None,
+        unit: Unit::F,
+        m: block_c,
+    });
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows,
+        results,
+        correlations: Vec::new(),
+        flags,
+        plot,
+    })
+}
+
+/// Flags on the readings themselves: shift without period, VR or VC above Vs.
+fn reading_flags(block: &ReadingsBlock, bi: &BlockInputs, flags: &mut Vec<Flag>) {
     if bi.has("shift") != bi.has("period") {
         flags.push(Flag {
             warn: false,
@@ -87,48 +154,18 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
     }
+}
 
-    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
-    // (mean over groups) is then a linear combination of the groups' C.
-    let per = 4 + usize::from(has_phase) + usize::from(has_vs);
-    let ng = bi.groups.len();
-    let model = |x: &[f64]| -> Vec<f64> {
-        let mut y = Vec::with_capacity(ng * per);
-        let r = bi.r(x);
-        for g in 0..ng {
-            let vr = bi.voltage("VR", g, x);
-            let vc = bi.voltage("VC", g, x);
-            let w = 2.0 * PI * bi.f(g, x);
-            let i = vr / r;
-            let c = i / (w * vc);
-            y.push(i);
-            y.push(vc / i);
-            y.push(c);
-            y.push((vc / vr).atan());
-            if has_phase {
-                y.push(2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x));
-            }
-            if has_vs {
-                y.push(bi.voltage("Vs", g, x) - vr.hypot(vc));
-            }
-        }
-        y
-    };
-    // Each group's outputs read that group's inputs and the shared ones only.
-    let pattern: Vec<Vec<usize>> = (0..ng)
-        .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), per))
-        .collect();
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
-    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(fail)?;
-    // Block C = mean of the groups' C.
-    let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
-    let block_c = p.linear(&bi.model(), &w, ctx.coverage).map_err(fail)?;
-
+/// The per-frequency results (`names` per group, in the model's order), the plot series, and
+/// the flags of the measured phase and the Kirchhoff check.
+fn per_frequency(
+    bi: &BlockInputs,
+    results: &[Measured],
+    names: &[(&str, Unit)],
+    flags: &mut Vec<Flag>,
+) -> (Vec<NamedResult>, PlotData) {
+    let per = names.len();
+    let has_phase = names.iter().any(|(n, _)| *n == "phase_measured");
     let x0 = bi.estimates();
     let mut rows = Vec::new();
     let mut plot = PlotData::default();
@@ -136,22 +173,10 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let mut s_c = Vec::new();
     let mut s_ph = Vec::new();
     let mut s_pm = Vec::new();
-    let mut names: Vec<(&str, Unit)> = vec![
-        ("I", Unit::A),
-        ("XC", Unit::Ohm),
-        ("C", Unit::F),
-        ("phase", Unit::Rad),
-    ];
-    if has_phase {
-        names.push(("phase_measured", Unit::Rad));
-    }
-    if has_vs {
-        names.push(("residual", Unit::V));
-    }
     for (g, grp) in bi.groups.iter().enumerate() {
         let f = grp.f.unwrap_or(f64::NAN);
         for (k, (name, unit)) in names.iter().enumerate() {
-            let Some(m) = p.results.get(g * per + k) else {
+            let Some(m) = results.get(g * per + k) else {
                 continue;
             };
             let pt = (f, m.value, m.u);
@@ -205,28 +230,14 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     if has_phase {
         plot.series.push(("phase_measured".into(), s_pm));
     }
-    let mut results = Vec::new();
-    results.push(NamedResult {
-        name: "C".into(),
-        f: None,
-        unit: Unit::F,
-        m: block_c,
-    });
-    Ok(BlockResult {
-        id: block.id.clone(),
-        network: Network::RC,
-        rows,
-        results,
-        correlations: Vec::new(),
-        flags,
-        plot,
-    })
+    (rows, plot)
 }
 
 #[cfg(test)]
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
+    use crate::notebook::Network;
     use crate::notebook::{Accuracy, Tolerance};
     use crate::quantity::Quantity;
     use num_complex::Complex64;

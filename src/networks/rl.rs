@@ -13,25 +13,43 @@
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
 use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
+    PlotData, PlotKind,
+};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
-use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, McInterval, Measured,
-    Model,
+    Model, Propagated,
 };
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RL",
-    required: &["f", "Vs", "VR", "VL"],
-    optional: &[],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RL",
+        required: &["f", "Vs", "VR", "VL"],
+        optional: &[],
+        resistor: true,
+    },
+    positive: &[
+        ("Vs", AMPLITUDE),
+        ("VR", AMPLITUDE),
+        ("VL", AMPLITUDE),
+    ],
+    judged: &[("L", PartKind::Inductor)],
+    plot: PlotKind::PerFrequency {
+        main: &["L", "XL"],
+        beside: &["L_dcr"],
+        band: ("L", PartKind::Inductor),
+    },
+    reduce,
 };
+const AMPLITUDE: &str = "an amplitude is never zero or negative here";
 
 /// Relative standard uncertainty above which a three-voltmeter L or Rac is flagged.
 pub const REL_U_LIMIT: f64 = 0.20;
@@ -267,30 +285,6 @@ fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<
     })
 }
 
-fn positive(block: &ReadingsBlock) -> Vec<Diagnostic> {
-    let mut d = Vec::new();
-    for s in ["Vs", "VR", "VL"] {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    d.push(
-                        Diagnostic::new(
-                            c.span,
-                            format!(
-                                "{s} must be positive: an amplitude is never zero or negative here"
-                            ),
-                        )
-                        .expected(format!("{s} > 0"))
-                        .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
-    d
-}
-
 /// What one output of the block model is.
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Out {
@@ -299,8 +293,8 @@ enum Out {
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let d = positive(block);
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    let d = check_positive(block, NETWORK.positive);
     if !d.is_empty() {
         return Err(d);
     }
@@ -311,12 +305,6 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         inputs.len() - 1
     });
     let dcr_value = dcr_idx.and_then(|i| inputs.get(i)).map(|i| i.value);
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
     let ng = bi.groups.len();
     let x0: Vec<f64> = inputs.iter().map(|i| i.value).collect();
 
@@ -340,14 +328,130 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         &cos_model,
         ctx.coverage,
     )
-    .map_err(fail)?;
+    .at_block(block)?;
+    let ok = row_checks(&bi, &pc, &x0, dcr_value, &mut flags);
+
+    // Row outputs.
+    let layout = row_layout(&ok);
+    let rows_model = |x: &[f64]| -> Vec<f64> {
+        layout
+            .iter()
+            .map(|o| match o {
+                Out::Row(g, n) => eval_row(&bi, dcr_idx, x, *g, n),
+                Out::Block(_) => f64::NAN,
+            })
+            .collect()
+    };
+    let p1 = propagate(
+        &Model {
+            inputs: &inputs,
+            corr: &bi.corr,
+        },
+        &rows_model,
+        ctx.coverage,
+    )
+    .at_block(block)?;
+
+    // Inverse-variance weights (fixed at the row uncertainties) for the block means.
+    let weights = block_weights(&layout, &p1.results);
+    let nrow_out = layout.len();
+    let mut full = layout.clone();
+    for (name, _) in &weights {
+        full.push(Out::Block(name));
+    }
+    let has_rac_mean = weights.iter().any(|(n, _)| *n == "Rac");
+    if has_rac_mean && dcr_idx.is_some() {
+        full.push(Out::Block("Rac-dcr"));
+    }
+    let full_model = |x: &[f64]| -> Vec<f64> {
+        let rows = rows_model(x);
+        let mut y = rows.clone();
+        let mut rac_mean = f64::NAN;
+        for (name, w) in &weights {
+            let m: f64 = w
+                .iter()
+                .map(|(i, wi)| wi * rows.get(*i).copied().unwrap_or(f64::NAN))
+                .sum();
+            if *name == "Rac" {
+                rac_mean = m;
+            }
+            y.push(m);
+        }
+        if has_rac_mean {
+            if let Some(i) = dcr_idx {
+                y.push(rac_mean - x.get(i).copied().unwrap_or(f64::NAN));
+            }
+        }
+        y
+    };
+    let p = propagate(
+        &Model {
+            inputs: &inputs,
+            corr: &bi.corr,
+        },
+        &full_model,
+        ctx.coverage,
+    )
+    .at_block(block)?;
+
+    // Results per row.
+    let mut rows: Vec<NamedResult> = Vec::new();
+    for (k, o) in layout.iter().enumerate() {
+        let Out::Row(g, name) = *o else { continue };
+        rows.push(NamedResult {
+            name: name.to_string(),
+            f: bi.groups.get(g).and_then(|gr| gr.f),
+            unit: unit_of(name),
+            m: p.results[k].clone(),
+        });
+    }
+    let run = Run {
+        ctx,
+        block,
+        bi: &bi,
+        inputs: &inputs,
+        layout: &layout,
+        p: &p,
+    };
+    monte_carlo_rows(&run, &ok.tri, &mut rows, &mut flags);
+    let correlations = row_flags(&run, &mut flags);
+    let results = block_results(&run, &full[nrow_out..], &weights, dcr_value, &mut flags);
+    let plot = plot_of(&rows);
+    Ok(BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows,
+        results,
+        correlations,
+        flags,
+        plot,
+    })
+}
+
+/// Which outputs each row group can have: the triangle closes (Rac, XL, L), cos θ > 0 (Q),
+/// VL is above the drop across dcr (XL_dcr, L_dcr).
+struct RowsOk {
+    tri: Vec<bool>,
+    q: Vec<bool>,
+    dc: Vec<bool>,
+}
+
+/// The row checks on cos θ (`pc`, one output per group) and on the dcr drop, with their flags.
+fn row_checks(
+    bi: &BlockInputs,
+    pc: &Propagated,
+    x0: &[f64],
+    dcr_value: Option<f64>,
+    flags: &mut Vec<Flag>,
+) -> RowsOk {
+    let ng = bi.groups.len();
     let mut tri_ok = vec![false; ng];
     let mut q_ok = vec![false; ng];
     let mut dc_ok = vec![false; ng];
     for (g, grp) in bi.groups.iter().enumerate() {
         let f = grp.f.unwrap_or(f64::NAN);
         let (c, uc) = (pc.values[g], pc.results[g].expanded);
-        if let Some(why) = open_triangle(c, &bi, g, &x0) {
+        if let Some(why) = open_triangle(c, bi, g, x0) {
             flags.push(Flag {
                 warn: true,
                 span: Some(grp.span),
@@ -394,9 +498,9 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
         if let Some(dcr) = dcr_value {
-            let vr = bi.voltage("VR", g, &x0);
-            let vl = bi.voltage("VL", g, &x0);
-            let drop = vr / bi.r(&x0) * dcr;
+            let vr = bi.voltage("VR", g, x0);
+            let vl = bi.voltage("VL", g, x0);
+            let drop = vr / bi.r(x0) * dcr;
             if vl > drop {
                 dc_ok[g] = true;
             } else {
@@ -413,8 +517,17 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
     }
+    RowsOk {
+        tri: tri_ok,
+        q: q_ok,
+        dc: dc_ok,
+    }
+}
 
-    // Row outputs.
+/// The row outputs, group by group, as far as [`RowsOk`] allows.
+fn row_layout(ok: &RowsOk) -> Vec<Out> {
+    let (tri_ok, q_ok, dc_ok) = (&ok.tri, &ok.q, &ok.dc);
+    let ng = tri_ok.len();
     let mut layout: Vec<Out> = Vec::new();
     for g in 0..ng {
         layout.push(Out::Row(g, "I"));
@@ -428,47 +541,45 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             layout.extend([Out::Row(g, "XL_dcr"), Out::Row(g, "L_dcr")]);
         }
     }
-    let eval_row = |x: &[f64], g: usize, name: &str| -> f64 {
-        let (vs, vr, vl) = (
-            bi.voltage("Vs", g, x),
-            bi.voltage("VR", g, x),
-            bi.voltage("VL", g, x),
-        );
-        let (r, f) = (bi.r(x), bi.f(g, x));
-        match name {
-            "I" => vr / r,
-            "Rac" => three_voltmeter(vs, vr, vl, r, f)[1],
-            "XL" => three_voltmeter(vs, vr, vl, r, f)[2],
-            "L" => three_voltmeter(vs, vr, vl, r, f)[3],
-            "Q" => three_voltmeter(vs, vr, vl, r, f)[4],
-            "XL_dcr" | "L_dcr" => {
-                let dcr = dcr_idx.and_then(|i| x.get(i).copied()).unwrap_or(f64::NAN);
-                dcr_method(vr, vl, r, dcr, f)[if name == "XL_dcr" { 0 } else { 1 }]
-            }
-            _ => f64::NAN,
-        }
-    };
-    let rows_model = |x: &[f64]| -> Vec<f64> {
-        layout
-            .iter()
-            .map(|o| match o {
-                Out::Row(g, n) => eval_row(x, *g, n),
-                Out::Block(_) => f64::NAN,
-            })
-            .collect()
-    };
-    let p1 = propagate(
-        &Model {
-            inputs: &inputs,
-            corr: &bi.corr,
-        },
-        &rows_model,
-        ctx.coverage,
-    )
-    .map_err(fail)?;
+    layout
+}
 
-    // Inverse-variance weights (fixed at the row uncertainties) for the block means.
-    let mut weights: Vec<(&'static str, Vec<(usize, f64)>)> = Vec::new();
+/// Row output `name` of group `g` at inputs `x` (`dcr_idx`: the dcr input, if any).
+fn eval_row(bi: &BlockInputs, dcr_idx: Option<usize>, x: &[f64], g: usize, name: &str) -> f64 {
+    let (vs, vr, vl) = (
+        bi.voltage("Vs", g, x),
+        bi.voltage("VR", g, x),
+        bi.voltage("VL", g, x),
+    );
+    let (r, f) = (bi.r(x), bi.f(g, x));
+    match name {
+        "I" => vr / r,
+        "Rac" => three_voltmeter(vs, vr, vl, r, f)[1],
+        "XL" => three_voltmeter(vs, vr, vl, r, f)[2],
+        "L" => three_voltmeter(vs, vr, vl, r, f)[3],
+        "Q" => three_voltmeter(vs, vr, vl, r, f)[4],
+        "XL_dcr" | "L_dcr" => {
+            let dcr = dcr_idx.and_then(|i| x.get(i).copied()).unwrap_or(f64::NAN);
+            dcr_method(vr, vl, r, dcr, f)[if name == "XL_dcr" { 0 } else { 1 }]
+        }
+        _ => f64::NAN,
+    }
+}
+
+fn unit_of(n: &str) -> Unit {
+    match n {
+        "I" => Unit::A,
+        "L" | "L_dcr" => Unit::H,
+        "Q" => Unit::One,
+        _ => Unit::Ohm,
+    }
+}
+
+/// Per block mean (L, L_dcr, Rac): its row outputs with normalised inverse-variance weights.
+type Weights = Vec<(&'static str, Vec<(usize, f64)>)>;
+
+fn block_weights(layout: &[Out], results: &[Measured]) -> Weights {
+    let mut weights: Weights = Vec::new();
     for name in ["L", "L_dcr", "Rac"] {
         let idx: Vec<usize> = layout
             .iter()
@@ -479,7 +590,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         if idx.is_empty() {
             continue;
         }
-        let us: Vec<f64> = idx.iter().map(|&i| p1.results[i].u).collect();
+        let us: Vec<f64> = idx.iter().map(|&i| results[i].u).collect();
         let w = weights_of(&us);
         let sw: f64 = w.iter().sum();
         weights.push((
@@ -487,65 +598,31 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             idx.into_iter().zip(w.into_iter().map(|v| v / sw)).collect(),
         ));
     }
-    let nrow_out = layout.len();
-    let mut full = layout.clone();
-    for (name, _) in &weights {
-        full.push(Out::Block(name));
-    }
-    let has_rac_mean = weights.iter().any(|(n, _)| *n == "Rac");
-    if has_rac_mean && dcr_idx.is_some() {
-        full.push(Out::Block("Rac-dcr"));
-    }
-    let full_model = |x: &[f64]| -> Vec<f64> {
-        let rows = rows_model(x);
-        let mut y = rows.clone();
-        let mut rac_mean = f64::NAN;
-        for (name, w) in &weights {
-            let m: f64 = w
-                .iter()
-                .map(|(i, wi)| wi * rows.get(*i).copied().unwrap_or(f64::NAN))
-                .sum();
-            if *name == "Rac" {
-                rac_mean = m;
-            }
-            y.push(m);
-        }
-        if has_rac_mean {
-            if let Some(i) = dcr_idx {
-                y.push(rac_mean - x.get(i).copied().unwrap_or(f64::NAN));
-            }
-        }
-        y
-    };
-    let p = propagate(
-        &Model {
-            inputs: &inputs,
-            corr: &bi.corr,
-        },
-        &full_model,
-        ctx.coverage,
-    )
-    .map_err(fail)?;
+    weights
+}
 
-    // Results per row.
-    let unit_of = |n: &str| match n {
-        "I" => Unit::A,
-        "L" | "L_dcr" => Unit::H,
-        "Q" => Unit::One,
-        _ => Unit::Ohm,
-    };
-    let mut rows: Vec<NamedResult> = Vec::new();
-    let mut correlations = Vec::new();
-    for (k, o) in layout.iter().enumerate() {
-        let Out::Row(g, name) = *o else { continue };
-        rows.push(NamedResult {
-            name: name.to_string(),
-            f: bi.groups.get(g).and_then(|gr| gr.f),
-            unit: unit_of(name),
-            m: p.results[k].clone(),
-        });
-    }
-    // Monte Carlo (JCGM 101) of each row's three-voltmeter results, and §8 validation.
+/// What the steps after the propagation read.
+struct Run<'a> {
+    ctx: &'a Context<'a>,
+    block: &'a ReadingsBlock,
+    bi: &'a BlockInputs,
+    inputs: &'a [Input],
+    layout: &'a [Out],
+    /// The propagation of the rows and the block means.
+    p: &'a Propagated,
+}
+
+/// Monte Carlo (JCGM 101) of each row's three-voltmeter results, and §8 validation.
+fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags: &mut Vec<Flag>) {
+    let Run {
+        ctx,
+        block,
+        bi,
+        inputs,
+        layout,
+        p,
+    } = *run;
+    let ng = bi.groups.len();
     let mut not_validated: Vec<String> = Vec::new();
     for g in (0..ng).filter(|&g| tri_ok[g]) {
         let names: Vec<&'static str> = layout
@@ -581,7 +658,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .collect();
         let used = p.inputs_of(&outs);
         let mc = monte_carlo_on(
-            &inputs,
+            inputs,
             &bi.corr,
             &used,
             &mc_model,
@@ -624,8 +701,13 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             ),
         });
     }
+}
 
-    // Row checks: relative uncertainties and the better-conditioned method.
+/// Row checks: relative uncertainties and the better-conditioned method; the Rac–XL
+/// correlation per row.
+fn row_flags(run: &Run, flags: &mut Vec<Flag>) -> Vec<Correlation> {
+    let (bi, layout, p) = (run.bi, run.layout, run.p);
+    let mut correlations = Vec::new();
     let get = |g: usize, n: &str| -> Option<&Measured> {
         layout
             .iter()
@@ -683,7 +765,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
                     correlations.push(Correlation {
                         a: "Rac".into(),
                         b: "XL".into(),
-                        r: correlation(&p, ia, ib),
+                        r: correlation(p, ia, ib),
                         f: grp.f,
                     });
                 }
@@ -691,9 +773,23 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
     }
 
-    // Block results and their consistency.
+    correlations
+}
+
+/// Block results and their consistency; `outs` are the block outputs, which follow the row
+/// outputs in the propagation. The Rac − dcr output becomes a flag, not a result.
+fn block_results(
+    run: &Run,
+    outs: &[Out],
+    weights: &Weights,
+    dcr_value: Option<f64>,
+    flags: &mut Vec<Flag>,
+) -> Vec<NamedResult> {
+    let (block, p) = (run.block, run.p);
+    let nrow_out = run.layout.len();
     let mut results = Vec::new();
-    for (k, o) in full.iter().enumerate().skip(nrow_out) {
+    for (k, o) in outs.iter().enumerate() {
+        let k = nrow_out + k;
         let Out::Block(name) = *o else { continue };
         let Some(m) = p.results.get(k) else { continue };
         if name == "Rac-dcr" {
@@ -761,7 +857,11 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
     }
 
-    // Plot series (f, y, u).
+    results
+}
+
+/// Plot series (f, y, u).
+fn plot_of(rows: &[NamedResult]) -> PlotData {
     let mut plot = PlotData::default();
     for name in ["XL", "L", "L_dcr", "Rac"] {
         let pts: Vec<(f64, f64, f64)> = rows
@@ -771,21 +871,14 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             .collect();
         plot.series.push((name.to_string(), pts));
     }
-    Ok(BlockResult {
-        id: block.id.clone(),
-        network: Network::RL,
-        rows,
-        results,
-        correlations,
-        flags,
-        plot,
-    })
+    plot
 }
 
 #[cfg(test)]
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
+    use crate::notebook::Network;
     use crate::notebook::{Accuracy, Part, Tolerance};
     use crate::quantity::Quantity;
     use num_complex::Complex64;

@@ -16,10 +16,13 @@
 //! of the readings' distributions.
 
 use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
+    PlotData, PlotKind,
+};
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo};
-use crate::notebook::{Network, PartKind, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, propagate, propagate_sparse, Dist, Input, Model, Propagated,
@@ -29,11 +32,17 @@ use nalgebra::{Dyn, Matrix3, OMatrix, OVector, Owned, Vector3, U3};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "RLC",
-    required: &["f", "VR"],
-    optional: &["Vs", "shift", "period", "phi"],
-    resistor: true,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "RLC",
+        required: &["f", "VR"],
+        optional: &["Vs", "shift", "period", "phi"],
+        resistor: true,
+    },
+    positive: &[("VR", ""), ("Vs", ""), ("period", "")],
+    judged: &[("L", PartKind::Inductor), ("C", PartKind::Capacitor)],
+    plot: PlotKind::Resonance,
+    reduce,
 };
 
 /// The series-resonance admittance magnitude at f.
@@ -411,51 +420,25 @@ fn part_value(
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let mut diags = Vec::new();
-    for s in ["VR", "Vs", "period"] {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    diags.push(
-                        Diagnostic::new(c.span, format!("{s} must be positive"))
-                            .expected(format!("{s} > 0"))
-                            .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    check_readings(block, &bi)?;
     let has_vs = bi.has("Vs");
-    if !has_vs && block.source.is_none() {
-        diags.push(
-            Diagnostic::new(
-                block.span,
-                "network RLC needs the source level: a Vs column or `source` in the header",
-            )
-            .expected("a column Vs or a header line like `source: 2 V`")
-            .found("neither"),
-        );
-    }
-    if !diags.is_empty() {
-        return Err(diags);
-    }
-    let mut flags = bi.flags.clone();
+    let mut out = BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows: Vec::new(),
+        results: Vec::new(),
+        correlations: Vec::new(),
+        flags: bi.flags.clone(),
+        plot: PlotData::default(),
+    };
     if !has_vs {
-        flags.push(Flag {
+        out.flags.push(Flag {
             warn: false,
             span: Some(block.span),
             message: "no Vs column: |Y| uses the stated source level, taken as exact".into(),
         });
     }
-    let level = block.source.unwrap_or(f64::NAN);
-    let fail = |e: String| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    };
     let ng = bi.groups.len();
     // Groups in order of frequency.
     let mut order: Vec<usize> = (0..ng).collect();
@@ -468,51 +451,144 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         .iter()
         .map(|&g| bi.groups[g].f.unwrap_or(f64::NAN))
         .collect();
-    let y_of = |x: &[f64], g: usize| -> f64 {
-        let vs = if has_vs {
-            bi.voltage("Vs", g, x)
-        } else {
-            level
-        };
-        bi.voltage("VR", g, x) / (bi.r(x) * vs)
-    };
-    let ys_model = |x: &[f64]| -> Vec<f64> { order.iter().map(|&g| y_of(x, g)).collect() };
-    let model = bi.model();
     // Each point reads its own group's inputs and the shared ones (resistor, gains).
     let own: Vec<Vec<usize>> = order.iter().map(|&g| bi.group_inputs(g)).collect();
-    let union_of = |pts: &[usize]| -> Vec<usize> {
-        let mut v: Vec<usize> = pts
-            .iter()
-            .filter_map(|&k| own.get(k))
-            .flatten()
-            .copied()
-            .collect();
-        v.sort_unstable();
-        v.dedup();
-        v
+    let sw = Sweep {
+        ctx,
+        block,
+        bi: &bi,
+        has_vs,
+        level: block.source.unwrap_or(f64::NAN),
+        order,
+        fs,
+        own,
     };
-    let py = propagate_sparse(&model, &ys_model, Some(&own), ctx.coverage).map_err(fail)?;
+    let model = bi.model();
+    let ys_model = |x: &[f64]| sw.ys(x);
+    let py = propagate_sparse(&model, &ys_model, Some(&sw.own), ctx.coverage).at_block(block)?;
     let ys = py.values.clone();
     let u_tot: Vec<f64> = py.results.iter().map(|m| m.u).collect();
+    let fs = &sw.fs;
 
     // Per-frequency current.
-    let mut rows = Vec::new();
     let i_model = |x: &[f64]| -> Vec<f64> {
-        order
+        sw.order
             .iter()
             .map(|&g| bi.voltage("VR", g, x) / bi.r(x))
             .collect()
     };
-    let pi = propagate_sparse(&model, &i_model, Some(&own), ctx.coverage).map_err(fail)?;
+    let pi = propagate_sparse(&model, &i_model, Some(&sw.own), ctx.coverage).at_block(block)?;
     for (k, m) in pi.results.iter().enumerate() {
-        rows.push(NamedResult {
+        out.rows.push(NamedResult {
             name: "I".into(),
             f: Some(fs[k]),
             unit: Unit::A,
             m: m.clone(),
         });
     }
+    let (u_w, weights_note) = fit_weights(&bi, &py, &ys, &u_tot);
+    out.plot.series.push((
+        "Y".into(),
+        (0..ng).map(|k| (fs[k], ys[k], u_tot[k])).collect(),
+    ));
+    read_offs(&sw, &ys, &mut out);
 
+    // The fit.
+    match fit_resonance(fs, &ys, &u_w) {
+        Err(e) => out.flags.push(Flag {
+            warn: true,
+            span: Some(block.span),
+            message: format!("RLC fit: {e}"),
+        }),
+        Ok(fit) => fit_results(&sw, &fit, &py, (&u_tot, weights_note), &mut out)?,
+    }
+    // Keep one marker per name, in a fixed order.
+    let mut markers = Vec::new();
+    for name in ["f0", "f_low", "f_high"] {
+        if let Some(m) = out.plot.markers.iter().find(|(n, _)| n == name) {
+            markers.push(m.clone());
+        }
+    }
+    out.plot.markers = markers;
+    phase_f0(&sw, &mut out);
+    out.flags.extend(prediction(ctx, block, &bi));
+    Ok(out)
+}
+
+/// Positive VR, Vs and period; a source level from a Vs column or the header.
+fn check_readings(block: &ReadingsBlock, bi: &BlockInputs) -> Result<(), Vec<Diagnostic>> {
+    let mut diags = check_positive(block, NETWORK.positive);
+    if !bi.has("Vs") && block.source.is_none() {
+        diags.push(
+            Diagnostic::new(
+                block.span,
+                "network RLC needs the source level: a Vs column or `source` in the header",
+            )
+            .expected("a column Vs or a header line like `source: 2 V`")
+            .found("neither"),
+        );
+    }
+    if diags.is_empty() {
+        Ok(())
+    } else {
+        Err(diags)
+    }
+}
+
+/// The sweep in order of frequency, and how |Y| is read from it.
+struct Sweep<'a> {
+    ctx: &'a Context<'a>,
+    block: &'a ReadingsBlock,
+    bi: &'a BlockInputs,
+    has_vs: bool,
+    /// The header's source level (V), used without a Vs column.
+    level: f64,
+    /// Group indices in order of frequency, and their frequencies.
+    order: Vec<usize>,
+    fs: Vec<f64>,
+    /// Per point, the inputs it reads.
+    own: Vec<Vec<usize>>,
+}
+
+impl Sweep<'_> {
+    /// |Y| = VR/(R·Vs) of group `g` at inputs `x`.
+    fn y_of(&self, x: &[f64], g: usize) -> f64 {
+        let bi = self.bi;
+        let vs = if self.has_vs {
+            bi.voltage("Vs", g, x)
+        } else {
+            self.level
+        };
+        bi.voltage("VR", g, x) / (bi.r(x) * vs)
+    }
+
+    /// |Y| at every point, in order of frequency.
+    fn ys(&self, x: &[f64]) -> Vec<f64> {
+        self.order.iter().map(|&g| self.y_of(x, g)).collect()
+    }
+
+    /// The inputs read by the points `pts`, sorted, each once.
+    fn union_of(&self, pts: &[usize]) -> Vec<usize> {
+        let mut v: Vec<usize> = pts
+            .iter()
+            .filter_map(|&k| self.own.get(k))
+            .flatten()
+            .copied()
+            .collect();
+        v.sort_unstable();
+        v.dedup();
+        v
+    }
+}
+
+/// Fit weights as standard uncertainties per point, and how they were chosen (for the flag).
+fn fit_weights(
+    bi: &BlockInputs,
+    py: &Propagated,
+    ys: &[f64],
+    u_tot: &[f64],
+) -> (Vec<f64>, &'static str) {
+    let ng = ys.len();
     // Weights from each point's own inputs (those no other point depends on).
     let n_in = bi.inputs.len();
     let mut u_w = vec![0.0; ng];
@@ -543,16 +619,17 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
     }
 
-    let mut plot = PlotData::default();
-    plot.series.push((
-        "Y".into(),
-        (0..ng).map(|k| (fs[k], ys[k], u_tot[k])).collect(),
-    ));
-    let mut results = Vec::new();
-    let mut correlations = Vec::new();
+    (u_w, weights_note)
+}
 
-    // Read-offs from the data, with uncertainty from the readings (indices fixed at the estimates).
-    let ro = read_off(&fs, &ys);
+/// Read-offs from the data, with uncertainty from the readings (indices fixed at the
+/// estimates): the peak and the half-power points.
+fn read_offs(sw: &Sweep, ys: &[f64], out: &mut BlockResult) {
+    let (ctx, block, fs) = (sw.ctx, sw.block, &sw.fs);
+    let model = sw.bi.model();
+    let ys_model = |x: &[f64]| sw.ys(x);
+    let (plot, results, flags) = (&mut out.plot, &mut out.results, &mut out.flags);
+    let ro = read_off(fs, ys);
     let ro_model = |x: &[f64]| -> Vec<f64> {
         let y = ys_model(x);
         let mut out = Vec::new();
@@ -581,7 +658,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         for side in [ro.low, ro.high].iter().flatten() {
             pts.extend([side.1, side.1 + 1]);
         }
-        let near = union_of(&pts);
+        let near = sw.union_of(&pts);
         let ro_pattern = vec![near; names.len()];
         match propagate_sparse(&model, &ro_model, Some(&ro_pattern), ctx.coverage) {
             Ok(p) => {
@@ -612,138 +689,147 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
     }
+}
 
-    // The fit.
-    match fit_resonance(&fs, &ys, &u_w) {
-        Err(e) => flags.push(Flag {
-            warn: true,
-            span: Some(block.span),
-            message: format!("RLC fit: {e}"),
-        }),
-        Ok(fit) => {
-            // Fitted (f0, Q, Rt) as correlated normal inputs: cov = D (A V Aᵀ) D, D = diag(e^θ).
-            let cov_log = fit.cov_from(&py);
-            let p0 = [fit.f0(), fit.q(), fit.rt()];
-            let names = ["f0 (fit)", "Q (fit)", "Rtotal (fit)"];
-            let fit_in: Vec<Input> = (0..3)
-                .map(|k| {
-                    Input::type_b(
-                        names[k],
-                        p0[k],
-                        p0[k] * cov_log[k][k].max(0.0).sqrt(),
-                        Dist::Normal,
-                    )
-                })
-                .collect();
-            let mut corr = Vec::new();
-            for a in 0..3 {
-                for b in a + 1..3 {
-                    let d = (cov_log[a][a] * cov_log[b][b]).sqrt();
-                    if d > 0.0 {
-                        corr.push((a, b, (cov_log[a][b] / d).clamp(-1.0, 1.0)));
-                    }
-                }
-            }
-            let pd = propagate(
-                &Model {
-                    inputs: &fit_in,
-                    corr: &corr,
-                },
-                &derived_lin,
-                ctx.coverage,
+/// The fitted (f0, Q, Rt) and what follows from them: derived results with Monte Carlo,
+/// their correlations, the χ² flag, the fitted curve and the residuals. `u` holds each
+/// point's total uncertainty and how the weights were chosen.
+fn fit_results(
+    sw: &Sweep,
+    fit: &ResonanceFit,
+    py: &Propagated,
+    u: (&[f64], &str),
+    out: &mut BlockResult,
+) -> Result<(), Vec<Diagnostic>> {
+    let (ctx, block, fs) = (sw.ctx, sw.block, &sw.fs);
+    let (u_tot, weights_note) = u;
+    let ng = fs.len();
+    let (plot, results, correlations, flags) = (
+        &mut out.plot,
+        &mut out.results,
+        &mut out.correlations,
+        &mut out.flags,
+    );
+    // Fitted (f0, Q, Rt) as correlated normal inputs: cov = D (A V Aᵀ) D, D = diag(e^θ).
+    let cov_log = fit.cov_from(py);
+    let p0 = [fit.f0(), fit.q(), fit.rt()];
+    let names = ["f0 (fit)", "Q (fit)", "Rtotal (fit)"];
+    let fit_in: Vec<Input> = (0..3)
+        .map(|k| {
+            Input::type_b(
+                names[k],
+                p0[k],
+                p0[k] * cov_log[k][k].max(0.0).sqrt(),
+                Dist::Normal,
             )
-            .map_err(fail)?;
-            let mc = monte_carlo(
-                &fit_in,
-                &corr,
-                &derived_lin,
-                ctx.coverage,
-                super::rl::seed_of(&block.id, 0x5eed),
-                None,
-            );
-            let mut unvalidated = Vec::new();
-            for (k, (name, unit)) in DERIVED.iter().enumerate() {
-                let mut m = pd.results[k].clone();
-                m.mc = mc.get(k).cloned();
-                if let Some(v) = attach_validation(&mut m) {
-                    if !v.validated && m.u > 0.0 {
-                        unvalidated.push(*name);
-                    }
-                }
-                results.push(NamedResult {
-                    name: name.to_string(),
-                    f: None,
-                    unit: *unit,
-                    m,
-                });
+        })
+        .collect();
+    let mut corr = Vec::new();
+    for a in 0..3 {
+        for b in a + 1..3 {
+            let d = (cov_log[a][a] * cov_log[b][b]).sqrt();
+            if d > 0.0 {
+                corr.push((a, b, (cov_log[a][b] / d).clamp(-1.0, 1.0)));
             }
-            for (a, b) in [(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)] {
-                correlations.push(Correlation {
-                    a: DERIVED[a].0.into(),
-                    b: DERIVED[b].0.into(),
-                    r: correlation(&pd, a, b),
-                    f: None,
-                });
-            }
-            if !unvalidated.is_empty() {
-                flags.push(Flag {
-                    warn: false,
-                    span: Some(block.span),
-                    message: format!(
-                        "the GUM intervals of {} differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo intervals",
-                        unvalidated.join(", ")
-                    ),
-                });
-            }
-            let nu = fit.dof;
-            let rc2 = fit.reduced_chi2();
-            let limit = ChiSquared::new(nu.max(1) as f64)
-                .map(|d| d.inverse_cdf(0.95) / nu.max(1) as f64)
-                .unwrap_or(f64::INFINITY);
-            flags.push(Flag {
-                warn: false,
-                span: Some(block.span),
-                message: format!(
-                    "RLC fit: χ²/ν = {} (ν = {nu}), weights from {weights_note}; the covariance is not scaled by χ²/ν{}",
-                    fmt_sig(rc2, 3),
-                    if rc2 > limit {
-                        format!(": the scatter exceeds the stated uncertainties (95 % limit {}), so the fit uncertainties may be understated by √(χ²/ν) = {}", fmt_sig(limit, 3), fmt_sig(rc2.sqrt(), 3))
-                    } else {
-                        String::new()
-                    }
-                ),
-            });
-            let (f0, q, rt) = (fit.f0(), fit.q(), fit.rt());
-            plot.markers.insert(0, ("f0".into(), f0));
-            let (lo, hi) = (
-                fs.first().copied().unwrap_or(f0),
-                fs.last().copied().unwrap_or(f0),
-            );
-            let curve: Vec<(f64, f64)> = (0..200)
-                .map(|k| {
-                    let fk = lo * (hi / lo).powf(k as f64 / 199.0);
-                    (fk, admittance(fk, f0, q, rt))
-                })
-                .collect();
-            plot.curves.push(("fit".into(), curve));
-            plot.series.push((
-                "residual".into(),
-                (0..ng)
-                    .map(|k| (fs[k], fit.residuals[k], u_tot[k]))
-                    .collect(),
-            ));
         }
     }
-    // Keep one marker per name, in a fixed order.
-    let mut markers = Vec::new();
-    for name in ["f0", "f_low", "f_high"] {
-        if let Some(m) = plot.markers.iter().find(|(n, _)| n == name) {
-            markers.push(m.clone());
+    let pd = propagate(
+        &Model {
+            inputs: &fit_in,
+            corr: &corr,
+        },
+        &derived_lin,
+        ctx.coverage,
+    )
+    .at_block(block)?;
+    let mc = monte_carlo(
+        &fit_in,
+        &corr,
+        &derived_lin,
+        ctx.coverage,
+        super::rl::seed_of(&block.id, 0x5eed),
+        None,
+    );
+    let mut unvalidated = Vec::new();
+    for (k, (name, unit)) in DERIVED.iter().enumerate() {
+        let mut m = pd.results[k].clone();
+        m.mc = mc.get(k).cloned();
+        if let Some(v) = attach_validation(&mut m) {
+            if !v.validated && m.u > 0.0 {
+                unvalidated.push(*name);
+            }
         }
+        results.push(NamedResult {
+            name: name.to_string(),
+            f: None,
+            unit: *unit,
+            m,
+        });
     }
-    plot.markers = markers;
+    for (a, b) in [(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)] {
+        correlations.push(Correlation {
+            a: DERIVED[a].0.into(),
+            b: DERIVED[b].0.into(),
+            r: correlation(&pd, a, b),
+            f: None,
+        });
+    }
+    if !unvalidated.is_empty() {
+        flags.push(Flag {
+            warn: false,
+            span: Some(block.span),
+            message: format!(
+                "the GUM intervals of {} differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8): prefer the Monte Carlo intervals",
+                unvalidated.join(", ")
+            ),
+        });
+    }
+    let nu = fit.dof;
+    let rc2 = fit.reduced_chi2();
+    let limit = ChiSquared::new(nu.max(1) as f64)
+        .map(|d| d.inverse_cdf(0.95) / nu.max(1) as f64)
+        .unwrap_or(f64::INFINITY);
+    flags.push(Flag {
+        warn: false,
+        span: Some(block.span),
+        message: format!(
+            "RLC fit: χ²/ν = {} (ν = {nu}), weights from {weights_note}; the covariance is not scaled by χ²/ν{}",
+            fmt_sig(rc2, 3),
+            if rc2 > limit {
+                format!(": the scatter exceeds the stated uncertainties (95 % limit {}), so the fit uncertainties may be understated by √(χ²/ν) = {}", fmt_sig(limit, 3), fmt_sig(rc2.sqrt(), 3))
+            } else {
+                String::new()
+            }
+        ),
+    });
+    let (f0, q, rt) = (fit.f0(), fit.q(), fit.rt());
+    plot.markers.insert(0, ("f0".into(), f0));
+    let (lo, hi) = (
+        fs.first().copied().unwrap_or(f0),
+        fs.last().copied().unwrap_or(f0),
+    );
+    let curve: Vec<(f64, f64)> = (0..200)
+        .map(|k| {
+            let fk = lo * (hi / lo).powf(k as f64 / 199.0);
+            (fk, admittance(fk, f0, q, rt))
+        })
+        .collect();
+    plot.curves.push(("fit".into(), curve));
+    plot.series.push((
+        "residual".into(),
+        (0..ng)
+            .map(|k| (fs[k], fit.residuals[k], u_tot[k]))
+            .collect(),
+    ));
+    Ok(())
+}
 
-    // Phase zero crossing as a further f0 estimate.
+/// Phase zero crossing as a further f0 estimate.
+fn phase_f0(sw: &Sweep, out: &mut BlockResult) {
+    let (ctx, block, bi, fs, order) = (sw.ctx, sw.block, sw.bi, &sw.fs, &sw.order);
+    let ng = fs.len();
+    let model = bi.model();
+    let (plot, results, flags) = (&mut out.plot, &mut out.results, &mut out.flags);
     let has_phi = bi.has("phi");
     let has_shift = bi.has("shift") && bi.has("period");
     if has_phi || has_shift {
@@ -760,13 +846,13 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             "phase_measured".into(),
             (0..ng).map(|k| (fs[k], phases[k], 0.0)).collect(),
         ));
-        match zero_crossing(&fs, &phases) {
+        match zero_crossing(fs, &phases) {
             Some((_, i)) => {
                 let zc = |x: &[f64]| -> Vec<f64> {
                     let (a, b) = (ph(x, order[i]), ph(x, order[i + 1]));
                     vec![fs[i] + (fs[i + 1] - fs[i]) * a / (a - b)]
                 };
-                let zc_pattern = vec![union_of(&[i, i + 1])];
+                let zc_pattern = vec![sw.union_of(&[i, i + 1])];
                 match propagate_sparse(&model, &zc, Some(&zc_pattern), ctx.coverage) {
                     Ok(p) => {
                         if let Some(m) = p.results.into_iter().next() {
@@ -794,43 +880,32 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }),
         }
     }
+}
 
-    // Prediction from the parts' values.
-    if let (Some((ln, l, dcr)), Some((cn, c, _))) = (
-        part_value(ctx, block, PartKind::Inductor),
-        part_value(ctx, block, PartKind::Capacitor),
-    ) {
-        let r = bi.r(&bi.estimates()) + dcr.unwrap_or(0.0);
-        let f0p = 1.0 / (2.0 * PI * (l * c).sqrt());
-        let qp = (l / c).sqrt() / r;
-        if f0p.is_finite() && qp.is_finite() {
-            flags.push(Flag {
-                warn: false,
-                span: Some(block.span),
-                message: format!(
-                    "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {} ohm)",
-                    fmt_hz(f0p),
-                    fmt_sig(qp, 3),
-                    if dcr.is_some() { " + dcr" } else { "" },
-                    fmt_sig(r, 4)
-                ),
-            });
-        }
-    }
-    Ok(BlockResult {
-        id: block.id.clone(),
-        network: Network::RLC,
-        rows,
-        results,
-        correlations,
-        flags,
-        plot,
+/// Prediction from the parts' values.
+fn prediction(ctx: &Context, block: &ReadingsBlock, bi: &BlockInputs) -> Option<Flag> {
+    let (ln, l, dcr) = part_value(ctx, block, PartKind::Inductor)?;
+    let (cn, c, _) = part_value(ctx, block, PartKind::Capacitor)?;
+    let r = bi.r(&bi.estimates()) + dcr.unwrap_or(0.0);
+    let f0p = 1.0 / (2.0 * PI * (l * c).sqrt());
+    let qp = (l / c).sqrt() / r;
+    (f0p.is_finite() && qp.is_finite()).then(|| Flag {
+        warn: false,
+        span: Some(block.span),
+        message: format!(
+            "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {} ohm)",
+            fmt_hz(f0p),
+            fmt_sig(qp, 3),
+            if dcr.is_some() { " + dcr" } else { "" },
+            fmt_sig(r, 4)
+        ),
     })
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::notebook::Network;
 
     fn sweep(f0: f64, q: f64, rt: f64, n: usize) -> (Vec<f64>, Vec<f64>) {
         let f: Vec<f64> = (0..n)

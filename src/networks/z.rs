@@ -5,17 +5,29 @@
 //! column there is one set per distinct f (per-frequency results); without, one block set.
 
 use super::inputs::{fmt_hz, BlockInputs, Group, Spec};
-use super::{BlockResult, Context, Correlation, Flag, NamedResult, PlotData};
+use super::{
+    check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
+    PlotData, PlotKind,
+};
 use crate::diag::Diagnostic;
-use crate::notebook::{Network, ReadingsBlock};
+use crate::notebook::{PartKind, ReadingsBlock};
 use crate::quantity::Unit;
 use crate::uncertainty::{correlation, propagate_sparse, Measured};
 
-pub const SPEC: Spec<'static> = Spec {
-    network: "Z",
-    required: &["V", "I", "phi"],
-    optional: &[],
-    resistor: false,
+pub const NETWORK: Descriptor = Descriptor {
+    spec: Spec {
+        network: "Z",
+        required: &["V", "I", "phi"],
+        optional: &[],
+        resistor: false,
+    },
+    positive: &[
+        ("V", "it is the amplitude of a sinusoid"),
+        ("I", "it is the amplitude of a sinusoid"),
+    ],
+    judged: &[("R", PartKind::Resistor)],
+    plot: PlotKind::Series,
+    reduce,
 };
 
 /// A passive part has R = |Z| cos φ ≥ 0, i.e. |φ| ≤ 90°. Flags a group whose R is negative:
@@ -53,25 +65,8 @@ fn passive_check(block: &ReadingsBlock, grp: &Group, r: &Measured, flags: &mut V
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
-    let bi = BlockInputs::build(ctx, block, &SPEC)?;
-    let mut diags = Vec::new();
-    for s in ["V", "I"] {
-        let Some(ci) = block.col(s) else { continue };
-        for row in &block.rows {
-            if let Some(c) = row.cells.get(ci) {
-                if !(c.value > 0.0) {
-                    diags.push(
-                        Diagnostic::new(
-                            c.span,
-                            format!("{s} must be positive: it is the amplitude of a sinusoid"),
-                        )
-                        .expected(format!("{s} > 0"))
-                        .found(c.text.clone()),
-                    );
-                }
-            }
-        }
-    }
+    let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
+    let diags = check_positive(block, NETWORK.positive);
     if !diags.is_empty() {
         return Err(diags);
     }
@@ -90,12 +85,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let pattern: Vec<Vec<usize>> = (0..ng)
         .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), 3))
         .collect();
-    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).map_err(|e| {
-        vec![Diagnostic::new(
-            block.span,
-            format!("block {} could not be reduced: {e}", block.id),
-        )]
-    })?;
+    let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     let names = [("R", Unit::Ohm), ("X", Unit::Ohm), ("Z", Unit::Ohm)];
     let mut rows = Vec::new();
     let mut results = Vec::new();
@@ -152,7 +142,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     }
     Ok(BlockResult {
         id: block.id.clone(),
-        network: Network::Z,
+        network: block.network,
         rows,
         results,
         correlations,
@@ -165,6 +155,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
+    use crate::notebook::Network;
 
     // Single reading, exact: R = |Z| cos φ by trigonometry (handbook).
     #[test]

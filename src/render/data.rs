@@ -8,7 +8,7 @@ use std::collections::BTreeMap;
 use serde_json::{json, Value};
 
 use crate::judge::{Outcome, Record, SignState};
-use crate::networks::{BlockResult, NamedResult};
+use crate::networks::{BlockResult, NamedResult, PlotKind};
 use crate::notebook::{Accuracy, Column, Decision, Item, Part, PartKind, ReadingsBlock, Tolerance};
 use crate::quantity::{Quantity, Unit};
 use crate::render::format::{self, dof_text, k_text, sci, sig};
@@ -586,10 +586,11 @@ fn band_for(
     rb: &ReadingsBlock,
     block: &BlockResult,
 ) -> Option<(&'static str, f64, f64)> {
-    let want: &'static str = match block.network {
-        crate::notebook::Network::RC => "C",
-        crate::notebook::Network::RL => "L",
-        _ => return None,
+    let PlotKind::PerFrequency {
+        band: (want, kind), ..
+    } = block.network.descriptor().plot
+    else {
+        return None;
     };
     if let Some(v) = record
         .verdicts
@@ -598,11 +599,6 @@ fn band_for(
     {
         return Some((want, v.low, v.high));
     }
-    let kind = if want == "C" {
-        PartKind::Capacitor
-    } else {
-        PartKind::Inductor
-    };
     rb.parts
         .iter()
         .filter_map(|n| record.notebook.front.parts.get(&n.name))
@@ -662,6 +658,87 @@ fn image_ext(path: &str, bytes: &[u8]) -> &'static str {
     }
 }
 
+/// The verdicts table.
+fn verdicts_json(record: &Record) -> Vec<Value> {
+    // Blocks with warnings: their verdicts are marked in the summary.
+    let warned_blocks: std::collections::BTreeSet<&str> = record
+        .reduction
+        .blocks
+        .iter()
+        .filter(|b| b.flags.iter().any(|f| f.warn))
+        .map(|b| b.id.as_str())
+        .collect();
+    record
+        .verdicts
+        .iter()
+        .map(|v| {
+            json!({
+                "block": v.block,
+                "name": v.name,
+                "symbol": symbol_json(&v.name),
+                "part": v.part,
+                "nominal": format::quantity(v.nominal, v.unit),
+                "interval": format::interval(v.low, v.high, v.unit),
+                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "outcome": outcome_word(v.outcome),
+                "warned": warned_blocks.contains(v.block.as_str()),
+            })
+        })
+        .collect()
+}
+
+/// The safety checks.
+fn safety_json(record: &Record) -> Vec<Value> {
+    record
+        .safety
+        .iter()
+        .map(|s| {
+            json!({
+                "block": s.block,
+                "part": s.part,
+                "what": s.what,
+                "value": format::quantity(s.value, s.unit),
+                "rating": format::quantity(s.rating, s.unit),
+                "limit": format::quantity(s.limit, s.unit),
+                "ok": s.ok,
+            })
+        })
+        .collect()
+}
+
+/// The sign-off state.
+fn sign_json(sign: &SignState) -> Value {
+    match sign {
+        SignState::Unsigned => json!({ "state": "unsigned", "reason": "not signed" }),
+        SignState::NameOnly {
+            by,
+            on,
+            digest,
+            accepted,
+        } => json!({
+            "state": "name-only", "by": by, "on": on, "digest": digest, "accepted": accepted,
+        }),
+        SignState::Keyed {
+            by,
+            on,
+            digest,
+            key,
+            accepted,
+        } => json!({
+            "state": "keyed", "by": by, "on": on, "digest": digest, "key": key,
+            "accepted": accepted,
+        }),
+        SignState::Void { by, on, recorded } => json!({
+            "state": "void", "by": by, "on": on, "recorded": recorded,
+            "reason": format!("signed by {by} on {on}, but the readings changed after signing"),
+        }),
+        SignState::Forged { by, on, reason } => json!({
+            "state": "forged", "by": by, "on": on,
+            "reason": format!("the sign-off as {by} is not authentic: {reason}"),
+        }),
+    }
+}
+
 /// Build the template's data and every generated file.
 pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
     let nb = &record.notebook;
@@ -709,75 +786,9 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         }
     }
 
-    // Blocks with warnings: their verdicts are marked in the summary.
-    let warned_blocks: std::collections::BTreeSet<&str> = record
-        .reduction
-        .blocks
-        .iter()
-        .filter(|b| b.flags.iter().any(|f| f.warn))
-        .map(|b| b.id.as_str())
-        .collect();
-    let verdicts: Vec<Value> = record
-        .verdicts
-        .iter()
-        .map(|v| {
-            json!({
-                "block": v.block,
-                "name": v.name,
-                "symbol": symbol_json(&v.name),
-                "part": v.part,
-                "nominal": format::quantity(v.nominal, v.unit),
-                "interval": format::interval(v.low, v.high, v.unit),
-                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
-                "outcome": outcome_word(v.outcome),
-                "warned": warned_blocks.contains(v.block.as_str()),
-            })
-        })
-        .collect();
-    let safety: Vec<Value> = record
-        .safety
-        .iter()
-        .map(|s| {
-            json!({
-                "block": s.block,
-                "part": s.part,
-                "what": s.what,
-                "value": format::quantity(s.value, s.unit),
-                "rating": format::quantity(s.rating, s.unit),
-                "limit": format::quantity(s.limit, s.unit),
-                "ok": s.ok,
-            })
-        })
-        .collect();
-    let sign = match &record.sign {
-        SignState::Unsigned => json!({ "state": "unsigned", "reason": "not signed" }),
-        SignState::NameOnly {
-            by,
-            on,
-            digest,
-            accepted,
-        } => json!({
-            "state": "name-only", "by": by, "on": on, "digest": digest, "accepted": accepted,
-        }),
-        SignState::Keyed {
-            by,
-            on,
-            digest,
-            key,
-            accepted,
-        } => json!({
-            "state": "keyed", "by": by, "on": on, "digest": digest, "key": key,
-            "accepted": accepted,
-        }),
-        SignState::Void { by, on, recorded } => json!({
-            "state": "void", "by": by, "on": on, "recorded": recorded,
-            "reason": format!("signed by {by} on {on}, but the readings changed after signing"),
-        }),
-        SignState::Forged { by, on, reason } => json!({
-            "state": "forged", "by": by, "on": on,
-            "reason": format!("the sign-off as {by} is not authentic: {reason}"),
-        }),
-    };
+    let verdicts = verdicts_json(record);
+    let safety = safety_json(record);
+    let sign = sign_json(&record.sign);
     let attachment = format!("/{}", attachment_name(&assets.source_name));
     let bytes = if assets.source.is_empty() {
         nb.source.as_bytes().to_vec()

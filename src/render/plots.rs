@@ -6,8 +6,7 @@ use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
-use crate::networks::{BlockResult, PlotData};
-use crate::notebook::Network;
+use crate::networks::{BlockResult, PlotData, PlotKind};
 use crate::render::format;
 use crate::render::labels::{self, Label};
 
@@ -136,20 +135,16 @@ pub fn block_plots(
         residual_name: String::new(),
         y,
     };
-    match block.network {
-        Network::RC | Network::RL => {
-            let main: Vec<&str> = if block.network == Network::RC {
-                vec!["C", "XC"]
-            } else {
-                vec!["L", "XL"]
-            };
+    let kind = block.network.descriptor().plot;
+    match kind {
+        PlotKind::PerFrequency { main, beside, .. } => {
             if let Some(first) = main.iter().find_map(|n| find(p, n)) {
                 let mut panel = empty(ykind(&first.0));
                 panel.series.push(first);
-                if first.0 == "L" {
-                    if let Some(s) = find(p, "L_dcr") {
-                        panel.series.push(s);
-                    }
+                if main.first() == Some(&first.0.as_str()) {
+                    panel
+                        .series
+                        .extend(beside.iter().filter_map(|n| find(p, n)));
                 }
                 if let Some((q, lo, hi)) = band {
                     if q == first.0 {
@@ -168,7 +163,7 @@ pub fn block_plots(
                 panels.push(panel);
             }
         }
-        Network::RLC => {
+        PlotKind::Resonance => {
             let first = find(p, "Y").or_else(|| p.series.iter().find(|(_, v)| !v.is_empty()));
             if let Some(first) = first {
                 let mut panel = empty(ykind(&first.0));
@@ -193,7 +188,7 @@ pub fn block_plots(
                 }
             }
         }
-        Network::Z => {
+        PlotKind::Series => {
             for s in p.series.iter().filter(|(_, v)| v.len() > 1) {
                 let mut panel = empty(ykind(&s.0));
                 panel.series.push(s);
@@ -204,17 +199,17 @@ pub fn block_plots(
     if panels.is_empty() {
         return Ok(Vec::new());
     }
-    let caption = match block.network {
-        Network::RC | Network::RL => format!(
+    let caption = match kind {
+        PlotKind::PerFrequency { .. } => format!(
             "Block {}: {} against frequency with expanded uncertainties (k as in the results), and phase.",
             block.id,
             panels.first().map(|p| p.y.symbol).unwrap_or("result")
         ),
-        Network::RLC => format!(
+        PlotKind::Resonance => format!(
             "Block {}: admittance sweep with the fitted series model, resonance and half-power markers; residuals below.",
             block.id
         ),
-        Network::Z => format!("Block {}: results.", block.id),
+        PlotKind::Series => format!("Block {}: results.", block.id),
     };
     let (svg, height) = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
     let (drawing, labels) = labels::split(&svg);
@@ -609,6 +604,7 @@ fn log_ticks(lo: f64, hi: f64) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::notebook::Network;
 
     fn block(network: Network, plot: PlotData) -> BlockResult {
         BlockResult {

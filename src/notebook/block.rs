@@ -1,0 +1,327 @@
+//! One readings block: fences, the YAML header, the table, and the checks across them.
+
+use super::front::Defined;
+use super::table::{parse_table, Table};
+use super::values::{undefined, ValueReader};
+use super::words::{list, one_of};
+use super::yaml::{kind_name, YamlLocator};
+use super::{line_text, required_columns, split_lines, Named, Network, ReadingsBlock, MAX_HEADER};
+use crate::diag::{line_col, Diagnostic, Span};
+use crate::quantity::Unit;
+use serde_yaml::Value;
+use std::collections::BTreeMap;
+
+const HEADER_KEYS: &[&str] = &[
+    "id", "network", "parts", "meter", "phase", "counter", "note", "source",
+];
+
+pub(super) struct BlockCtx<'a> {
+    pub(super) src: &'a str,
+    pub(super) defined: &'a Defined,
+}
+
+pub(super) fn parse_block(
+    cx: &BlockCtx,
+    r: Span,
+    ids: &mut BTreeMap<String, Span>,
+    d: &mut Vec<Diagnostic>,
+) -> Option<ReadingsBlock> {
+    let src = cx.src;
+    let (open_span, body) = fenced_body(src, r, d)?;
+    let blines = split_lines(src, body.start, body.end);
+    let Some(sep) = blines
+        .iter()
+        .position(|l| line_text(src, l).trim() == "---")
+    else {
+        d.push(
+            Diagnostic::new(
+                open_span,
+                "readings block lacks the `---` line between header and table",
+            )
+            .expected("a YAML header (id, network, …), a line `---`, then the table")
+            .found("no `---` line"),
+        );
+        return None;
+    };
+    let sep_line = blines[sep];
+    let header = header(cx, Span::new(body.start, sep_line.start), open_span, d);
+    // Ids are unique even among blocks that fail elsewhere.
+    if let Some((name, span)) = &header.id {
+        unique_id(src, name, *span, ids, d);
+    }
+    let table = parse_table(src, &blines[sep + 1..], d);
+    let sep_span = Span::new(sep_line.start, sep_line.end);
+    check_table(&table, header.network, sep_span, d);
+    let (id, id_span) = header.id?;
+    Some(ReadingsBlock {
+        id,
+        id_span,
+        network: header.network?,
+        parts: header.parts,
+        meter: header.meter,
+        phase: header.phase,
+        counter: header.counter,
+        note: header.note,
+        source: header.source,
+        columns: table.columns,
+        rows: table.rows,
+        span: r,
+        body: src[body.start..body.end].to_string(),
+    })
+}
+
+/// The opening fence's span and the body between the fences; an unclosed block runs to the
+/// end of `r`.
+fn fenced_body(src: &str, r: Span, d: &mut Vec<Diagnostic>) -> Option<(Span, Span)> {
+    let lines = split_lines(src, r.start, r.end);
+    let open = *lines.first()?;
+    let open_span = Span::new(open.start, open.end);
+    let otext = line_text(src, &open);
+    let ot = otext.trim_start();
+    let fch = ot.chars().next().unwrap_or('`');
+    let flen = ot.chars().take_while(|c| *c == fch).count();
+    let closed = lines.len() >= 2
+        && lines.last().is_some_and(|l| {
+            let t = line_text(src, l).trim();
+            t.chars().take_while(|c| *c == fch).count() >= flen && t.chars().all(|c| c == fch)
+        });
+    let body = if closed {
+        let last = lines[lines.len() - 1];
+        Span::new(open.next.min(last.start), last.start)
+    } else {
+        d.push(
+            Diagnostic::new(open_span, "this readings block is never closed")
+                .expected(format!("a closing `{}` line", fch.to_string().repeat(flen)))
+                .found("end of file"),
+        );
+        Span::new(open.next.min(r.end), r.end)
+    };
+    Some((open_span, body))
+}
+
+/// What a block's header gives; a key that is absent or wrong leaves its field empty.
+#[derive(Default)]
+struct Header {
+    id: Option<(String, Span)>,
+    network: Option<Network>,
+    parts: Vec<Named>,
+    meter: Option<Named>,
+    phase: Option<Named>,
+    counter: Option<Named>,
+    note: Option<String>,
+    /// Stated source level (V).
+    source: Option<f64>,
+}
+
+/// The YAML header in `region` (between the opening fence and the `---` line).
+fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>) -> Header {
+    let mut h = Header::default();
+    let len = region.end - region.start;
+    if len > MAX_HEADER {
+        d.push(
+            Diagnostic::new(open_span, "readings block header is too long")
+                .expected(format!("at most {} KiB", MAX_HEADER >> 10))
+                .found(format!("{len} bytes")),
+        );
+        return h;
+    }
+    let y = YamlLocator::new(cx.src, region.start, region.end, open_span);
+    let v = match y.load("block header") {
+        Ok(v) => v,
+        Err(e) => {
+            d.push(e);
+            return h;
+        }
+    };
+    let mut ex = ValueReader {
+        y: &y,
+        d,
+        what: "block header",
+    };
+    let mut network_seen = false;
+    let entries = ex.entries(&[], &v, Some(HEADER_KEYS));
+    for (key, val) in &entries {
+        let path = [key.as_str()];
+        match key.as_str() {
+            "id" => {
+                if let Some(s) = ex.nonempty_text(&path, val) {
+                    h.id = Some((s.trim().to_string(), y.value_span(&path)));
+                }
+            }
+            "network" => {
+                network_seen = true;
+                if let Some(s) = ex.text(&path, val) {
+                    let choices: Vec<(&str, Network)> =
+                        Network::all().map(|n| (n.name(), n)).collect();
+                    let at = y.value_span(&path);
+                    h.network = one_of(s.trim(), &choices, "network", at)
+                        .map_err(|dg| ex.err(dg))
+                        .ok();
+                }
+            }
+            "parts" => h.parts = header_parts(cx, &mut ex, val),
+            "meter" => h.meter = ex.instrument_name(&path, val, cx.defined.checked()),
+            "phase" => h.phase = ex.instrument_name(&path, val, cx.defined.checked()),
+            "counter" => h.counter = ex.instrument_name(&path, val, cx.defined.checked()),
+            "note" => h.note = ex.text(&path, val),
+            "source" => {
+                let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
+                h.source = ex.positive(&path, q, "the source level").map(|q| q.value);
+            }
+            _ => {}
+        }
+    }
+    if !entries.iter().any(|(k, _)| k == "id") {
+        ex.err(
+            Diagnostic::new(open_span, "readings block lacks `id`")
+                .expected("a header line `id: <name>`")
+                .found("no `id`"),
+        );
+    }
+    if !network_seen {
+        let names: Vec<&str> = Network::all().map(|n| n.name()).collect();
+        let (first, rest) = names.split_first().map_or(("", &[][..]), |(f, r)| (*f, r));
+        ex.err(
+            Diagnostic::new(open_span, "readings block lacks `network`")
+                .expected(format!(
+                    "a header line `network: {first}` (or {})",
+                    rest.join(", ")
+                ))
+                .found("no `network`"),
+        );
+    }
+    h
+}
+
+/// The header's `parts`: a YAML list or comma-separated text, each name defined in the front
+/// matter (when it could be read).
+fn header_parts(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<Named> {
+    let path = ["parts"];
+    let y = ex.y;
+    let names: Vec<String> = match val {
+        Value::Sequence(items) => items
+            .iter()
+            .filter_map(|it| {
+                let t = ex.text_of(&path, it);
+                if t.is_none() {
+                    let sp = y.value_span(&path);
+                    ex.err(
+                        Diagnostic::new(sp, "`parts` lists part names")
+                            .expected("names, e.g. `[R1, C1]`")
+                            .found(kind_name(it)),
+                    );
+                }
+                t
+            })
+            .collect(),
+        Value::String(s) => s
+            .split(',')
+            .map(|x| x.trim().to_string())
+            .filter(|x| !x.is_empty())
+            .collect(),
+        other => {
+            let sp = y.value_span(&path);
+            ex.err(
+                Diagnostic::new(sp, "`parts` lists part names")
+                    .expected("a list, e.g. `[R1, C1]`")
+                    .found(kind_name(other)),
+            );
+            Vec::new()
+        }
+    };
+    let mut parts = Vec::new();
+    for n in names {
+        let sp = y.item_span(&path, &n);
+        if cx.defined.known && !cx.defined.parts.contains(&n) {
+            ex.err(undefined("part", &n, sp, &cx.defined.parts, "parts"));
+        }
+        parts.push(Named { name: n, span: sp });
+    }
+    parts
+}
+
+/// Records the block id, or reports it at its second use.
+fn unique_id(
+    src: &str,
+    name: &str,
+    span: Span,
+    ids: &mut BTreeMap<String, Span>,
+    d: &mut Vec<Diagnostic>,
+) {
+    match ids.get(name) {
+        Some(first) => {
+            let (l, c) = line_col(src, first.start);
+            d.push(
+                Diagnostic::new(span, format!("block id `{name}` is used twice"))
+                    .expected("an id unique in the notebook")
+                    .found(format!("`{name}` again"))
+                    .help(format!("first used at line {l}, column {c}")),
+            );
+        }
+        None => {
+            ids.insert(name.to_string(), span);
+        }
+    }
+}
+
+/// Checks across the header and the table: a heading and rows, the network's required
+/// columns, `shift` with `period`.
+fn check_table(table: &Table, network: Option<Network>, sep_span: Span, d: &mut Vec<Diagnostic>) {
+    let Some(hspan) = table.heading else {
+        d.push(
+            Diagnostic::new(sep_span, "readings block has no table")
+                .expected("a heading row such as `f/Hz  VR/V  VC/V` after the `---` line")
+                .found("nothing"),
+        );
+        return;
+    };
+    if table.rows.is_empty() {
+        d.push(
+            Diagnostic::new(hspan, "readings block has no rows")
+                .expected("at least one row of readings under the heading")
+                .found("no rows"),
+        );
+    }
+    let symbols = &table.symbols;
+    if let Some(n) = network {
+        let missing: Vec<&str> = required_columns(n)
+            .iter()
+            .copied()
+            .filter(|c| !symbols.iter().any(|(s, _)| s == c))
+            .collect();
+        if !missing.is_empty() {
+            let have: Vec<&str> = symbols.iter().map(|(s, _)| s.as_str()).collect();
+            d.push(
+                Diagnostic::new(
+                    hspan,
+                    format!(
+                        "{} block lacks column{} {}",
+                        n.name(),
+                        if missing.len() > 1 { "s" } else { "" },
+                        list(&missing)
+                    ),
+                )
+                .expected(format!("columns {}", list(required_columns(n))))
+                .found(if have.is_empty() {
+                    "no known columns".to_string()
+                } else {
+                    list(&have)
+                }),
+            );
+        }
+    }
+    let has = |s: &str| symbols.iter().find(|(x, _)| x == s).map(|(_, sp)| *sp);
+    match (has("shift"), has("period")) {
+        (Some(sp), None) => d.push(
+            Diagnostic::new(sp, "`shift` needs a `period` column")
+                .expected("both `shift/div` and `period/div`")
+                .found("`shift` alone"),
+        ),
+        (None, Some(sp)) => d.push(
+            Diagnostic::new(sp, "`period` needs a `shift` column")
+                .expected("both `shift/div` and `period/div`")
+                .found("`period` alone"),
+        ),
+        _ => {}
+    }
+}

@@ -1,0 +1,541 @@
+//! Readings tables: cells of pipe and whitespace tables, column headings, plausible ranges.
+
+use super::words::{list, unknown};
+use super::{line_text, symbol_unit, Cell, Column, Line, Row, SYMBOLS};
+use crate::diag::{line_col, Diagnostic, Span};
+use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse_unit, Unit};
+
+// ---------------------------------------------------------------------------------------------
+// Readings blocks.
+
+#[derive(Debug, Clone, Copy)]
+struct CellRange {
+    start: usize,
+    end: usize,
+}
+
+/// End of a table line's content: before `#` and trailing whitespace.
+pub(super) fn content_end(src: &str, l: &Line) -> usize {
+    let t = line_text(src, l);
+    let cut = t.find('#').unwrap_or(t.len());
+    l.start + t[..cut].trim_end().len()
+}
+
+fn trim_tok(src: &str, a: usize, b: usize) -> CellRange {
+    let t = &src[a..b];
+    let lead = t.len() - t.trim_start().len();
+    let s = a + lead;
+    CellRange {
+        start: s,
+        end: s + t.trim().len(),
+    }
+}
+
+fn pipe_cells(src: &str, start: usize, end: usize) -> Vec<CellRange> {
+    let t = &src[start..end];
+    let mut bounds = vec![start];
+    for (i, c) in t.char_indices() {
+        if c == '|' {
+            bounds.push(start + i);
+        }
+    }
+    bounds.push(end);
+    let mut segs: Vec<(usize, usize)> = Vec::new();
+    for w in 0..bounds.len() - 1 {
+        let a = if w == 0 { bounds[0] } else { bounds[w] + 1 };
+        segs.push((a, bounds[w + 1].max(a)));
+    }
+    let trimmed = t.trim();
+    if trimmed.starts_with('|') && !segs.is_empty() {
+        segs.remove(0);
+    }
+    if trimmed.ends_with('|') && trimmed.len() > 1 && !segs.is_empty() {
+        segs.pop();
+    }
+    segs.into_iter().map(|(a, b)| trim_tok(src, a, b)).collect()
+}
+
+fn ws_tokens(src: &str, start: usize, end: usize) -> Vec<CellRange> {
+    let t = &src[start..end];
+    let mut out = Vec::new();
+    let mut cur: Option<usize> = None;
+    for (i, c) in t.char_indices() {
+        if c.is_whitespace() {
+            if let Some(s) = cur.take() {
+                out.push(CellRange {
+                    start: start + s,
+                    end: start + i,
+                });
+            }
+        } else if cur.is_none() {
+            cur = Some(i);
+        }
+    }
+    if let Some(s) = cur {
+        out.push(CellRange {
+            start: start + s,
+            end,
+        });
+    }
+    out
+}
+
+/// Whitespace headings: `VR (mV)` and `f / Hz` are one heading each.
+fn merge_headings(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
+    let mut out: Vec<CellRange> = Vec::new();
+    for t in toks {
+        let text = &src[t.start..t.end];
+        let joins = out.last().is_some_and(|p| {
+            let prev = &src[p.start..p.end];
+            text.starts_with('(')
+                || text.starts_with('/')
+                || (prev.ends_with('/') && !prev.contains('('))
+        });
+        match out.last_mut() {
+            Some(p) if joins => p.end = t.end,
+            _ => out.push(t),
+        }
+    }
+    out
+}
+
+/// Whitespace rows: `12 mV` is one cell (a unit token joins the number before it).
+fn merge_units(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
+    let mut out: Vec<CellRange> = Vec::new();
+    for t in toks {
+        let text = &src[t.start..t.end];
+        let unit_like = !text
+            .starts_with(|c: char| c.is_ascii_digit() || c == '+' || c == '-' || c == '.')
+            && parse_unit(text).is_some();
+        let joins = unit_like
+            && out.last().is_some_and(|p| {
+                let prev = &src[p.start..p.end];
+                quantity::number_len(prev) == Some(prev.len())
+            });
+        match out.last_mut() {
+            Some(p) if joins => p.end = t.end,
+            _ => out.push(t),
+        }
+    }
+    out
+}
+
+fn is_separator_row(src: &str, cells: &[CellRange]) -> bool {
+    !cells.is_empty()
+        && cells.iter().all(|c| {
+            let t = &src[c.start..c.end];
+            let core = t.trim_start_matches(':').trim_end_matches(':');
+            !core.is_empty() && core.chars().all(|ch| ch == '-')
+        })
+}
+
+/// A column heading: (symbol if recognised, column and prefix factor if fully valid).
+fn parse_heading(
+    src: &str,
+    tok: CellRange,
+    d: &mut Vec<Diagnostic>,
+) -> (Option<String>, Option<(Column, f64)>) {
+    let text = &src[tok.start..tok.end];
+    let span = Span::new(tok.start, tok.end);
+    let (sym_rel, unit_rel) = if let Some(p) = text.find('/') {
+        ((0, p), Some((p + 1, text.len())))
+    } else if let (Some(p), true) = (text.find('('), text.ends_with(')')) {
+        ((0, p), Some((p + 1, text.len() - 1)))
+    } else {
+        ((0, text.len()), None)
+    };
+    let sym_tok = trim_tok(src, tok.start + sym_rel.0, tok.start + sym_rel.1);
+    let sym = &src[sym_tok.start..sym_tok.end];
+    let sym_span = Span::new(sym_tok.start, sym_tok.end);
+    let known = SYMBOLS.contains(&sym);
+    if !known {
+        let at = if sym.is_empty() { span } else { sym_span };
+        let expected = format!("one of {} (case-sensitive)", list(SYMBOLS));
+        d.push(unknown(at, "column", sym, SYMBOLS, expected).found(format!("`{text}`")));
+    }
+    let symbol = known.then(|| sym.to_string());
+    let Some(ur) = unit_rel else {
+        if known {
+            let u = symbol_unit(sym).map_or("V", |u| u.symbol());
+            d.push(
+                Diagnostic::new(span, format!("column heading `{text}` has no unit"))
+                    .expected(format!("`symbol/unit`, e.g. `{sym}/{u}`"))
+                    .found(format!("`{text}`")),
+            );
+        }
+        return (symbol, None);
+    };
+    let utok = trim_tok(src, tok.start + ur.0, tok.start + ur.1);
+    let utext = &src[utok.start..utok.end];
+    let uspan = if utext.is_empty() {
+        span
+    } else {
+        Span::new(utok.start, utok.end)
+    };
+    let Some((factor, unit)) = parse_unit(utext) else {
+        let mut dg = Diagnostic::new(
+            uspan,
+            if utext.is_empty() {
+                format!("column heading `{text}` has no unit")
+            } else {
+                let p = quantity::unit_problem(utext);
+                if p.contains("prefix") {
+                    format!("{p} in `{utext}`")
+                } else {
+                    p
+                }
+            },
+        )
+        .expected("a unit such as Hz, V, mV, mA, deg or div")
+        .found(format!("`{utext}`"));
+        if let Some(h) = quantity::unit_help(utext) {
+            dg = dg.help(h);
+        }
+        d.push(dg);
+        return (symbol, None);
+    };
+    let Some((symbol_s, want)) = symbol.clone().and_then(|s| symbol_unit(&s).map(|u| (s, u)))
+    else {
+        return (symbol, None);
+    };
+    if unit != want {
+        d.push(
+            Diagnostic::new(uspan, format!("column `{symbol_s}` cannot be in `{utext}`"))
+                .expected(format!("{} for `{symbol_s}`", dimension_name(want)))
+                .found(format!("`{utext}`")),
+        );
+        return (symbol, None);
+    }
+    (
+        symbol,
+        Some((
+            Column {
+                symbol: symbol_s,
+                unit,
+                heading: text.to_string(),
+                span,
+            },
+            factor,
+        )),
+    )
+}
+
+/// The plausible range of each column's readings (SI): (symbol, smallest nonzero magnitude,
+/// largest magnitude, both as text, what the column is, why). A reading outside is a typo or
+/// a unit slip, and inside these every reduction stays well within f64 (products of four
+/// extremes stay between 1e-100 and 1e100). The limits are common practice for bench AC work
+/// with a signal generator, a true-RMS meter and a display, set wide.
+const RANGES: &[(&str, f64, f64, &str, &str, &str, &str)] = &[
+    ("f", 1e-3, 1e10, "1 mHz", "10 GHz", "a frequency",
+     "below 1 mHz one period lasts over a quarter of an hour and no RMS meter settles; above 10 GHz parts are no longer lumped"),
+    ("Vs", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VR", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VC", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VL", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("V", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("I", 1e-12, 1e4, "1 pA", "10 kA", "a current",
+     "no bench meter resolves less than a picoampere, and 10 kA is beyond any bench source"),
+    ("phi", 0.0, 2.0 * std::f64::consts::PI, "", "360°", "a phase angle",
+     "one turn is the most a phase can differ by"),
+    ("shift", 1e-6, 1e3, "1e-6 div", "1000 div", "a trace shift",
+     "a display has tens of divisions, read to a tenth or so"),
+    ("period", 1e-3, 1e3, "0.001 div", "1000 div", "a trace period",
+     "a display has tens of divisions, read to a tenth or so"),
+];
+const VOLT_WHY: &str =
+    "no bench voltmeter resolves less than a picovolt, and a megavolt is beyond any bench source";
+
+/// A reading outside its column's plausible range ([`RANGES`]), said at the cell. Zero passes:
+/// the networks refuse a zero where it matters, with their own reasons.
+fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Diagnostic> {
+    let &(_, lo, hi, lo_t, hi_t, what, why) = RANGES.iter().find(|r| r.0 == sym)?;
+    let m = v.abs();
+    let (msg, expected) = if m > hi {
+        (
+            format!("`{text}` is too large to compute with: {what} must be at most {hi_t}"),
+            format!("{what} of at most {hi_t}"),
+        )
+    } else if m != 0.0 && m < lo {
+        (
+            format!("`{text}` is too small to compute with: {what} must be at least {lo_t}"),
+            format!("{what} of at least {lo_t}"),
+        )
+    } else {
+        return None;
+    };
+    Some(
+        Diagnostic::new(at, format!("column `{sym}`: {msg}"))
+            .expected(expected)
+            .found(format!("`{text}`"))
+            .help(format!(
+                "the limits are magnitudes; {why} (common practice)"
+            )),
+    )
+}
+
+/// A block's table as read.
+pub(super) struct Table {
+    pub(super) columns: Vec<Column>,
+    pub(super) rows: Vec<Row>,
+    /// Each recognised column symbol once, with its heading's span, in order.
+    pub(super) symbols: Vec<(String, Span)>,
+    /// The heading row, when the table has one.
+    pub(super) heading: Option<Span>,
+}
+
+/// The heading row as the rows below it need it.
+struct Heading {
+    pipe: bool,
+    /// Per heading cell: (symbol, SI unit, prefix factor) when the heading is valid.
+    columns: Vec<Option<(String, Unit, f64)>>,
+}
+
+/// The table in `lines` (after the `---` line): the first non-blank line is the heading,
+/// every other non-blank line a row.
+pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) -> Table {
+    let mut table = Table {
+        columns: Vec::new(),
+        rows: Vec::new(),
+        symbols: Vec::new(),
+        heading: None,
+    };
+    let mut heading: Option<Heading> = None;
+    for l in lines {
+        let cend = content_end(src, l);
+        if src[l.start..cend].trim().is_empty() {
+            continue;
+        }
+        match &heading {
+            None => heading = Some(heading_row(src, l, cend, &mut table, d)),
+            Some(h) => {
+                if let Some(row) = table_row(src, l, cend, h, d) {
+                    table.rows.push(row);
+                }
+            }
+        }
+    }
+    table
+}
+
+/// The heading row: its columns and symbols go into `table`.
+fn heading_row(
+    src: &str,
+    l: &Line,
+    cend: usize,
+    table: &mut Table,
+    d: &mut Vec<Diagnostic>,
+) -> Heading {
+    let pipe = src[l.start..cend].contains('|');
+    let toks = if pipe {
+        pipe_cells(src, l.start, cend)
+    } else {
+        merge_headings(src, ws_tokens(src, l.start, cend))
+    };
+    let hspan = trim_tok(src, l.start, cend);
+    table.heading = Some(Span::new(hspan.start, hspan.end));
+    let mut columns = Vec::with_capacity(toks.len());
+    for tok in &toks {
+        if tok.start == tok.end {
+            d.push(
+                Diagnostic::new(
+                    Span::new(tok.start, (tok.start + 1).min(cend)),
+                    "empty column heading",
+                )
+                .expected("`symbol/unit`, e.g. `f/Hz`"),
+            );
+            columns.push(None);
+            continue;
+        }
+        let (sym, col) = parse_heading(src, *tok, d);
+        if let Some(s) = &sym {
+            if let Some((_, first)) = table.symbols.iter().find(|(x, _)| x == s) {
+                let (fl, fc) = line_col(src, first.start);
+                d.push(
+                    Diagnostic::new(
+                        Span::new(tok.start, tok.end),
+                        format!("column `{s}` appears twice"),
+                    )
+                    .expected("each column once")
+                    .found(format!("a second `{s}`"))
+                    .help(format!("first at line {fl}, column {fc}")),
+                );
+            } else {
+                table
+                    .symbols
+                    .push((s.clone(), Span::new(tok.start, tok.end)));
+            }
+        }
+        match col {
+            Some((c, f)) => {
+                columns.push(Some((c.symbol.clone(), c.unit, f)));
+                table.columns.push(c);
+            }
+            None => columns.push(None),
+        }
+    }
+    Heading { pipe, columns }
+}
+
+/// One row: its cells in their columns' units. None for a separator row or a row reported
+/// whole (a cell count that does not match the heading, an unknown unit word).
+fn table_row(
+    src: &str,
+    l: &Line,
+    cend: usize,
+    h: &Heading,
+    d: &mut Vec<Diagnostic>,
+) -> Option<Row> {
+    let (pipe, ncols) = (h.pipe, h.columns.len());
+    let cells_tok = if pipe {
+        pipe_cells(src, l.start, cend)
+    } else {
+        merge_units(src, ws_tokens(src, l.start, cend))
+    };
+    if pipe && is_separator_row(src, &cells_tok) {
+        return None;
+    }
+    let rs = trim_tok(src, l.start, cend);
+    let row_span = Span::new(rs.start, rs.end);
+    if cells_tok.len() > ncols && !pipe {
+        // A word right after a number in a whitespace table is most likely a unit that
+        // is not known, not an extra column: say so at the word.
+        let found = (1..cells_tok.len()).find(|&j| {
+            let w = &src[cells_tok[j].start..cells_tok[j].end];
+            let p = &src[cells_tok[j - 1].start..cells_tok[j - 1].end];
+            w.starts_with(|c: char| c.is_alphabetic()) && p.parse::<f64>().is_ok()
+        });
+        if let Some(j) = found {
+            let (prev, extra) = (cells_tok[j - 1], cells_tok[j]);
+            let word = &src[extra.start..extra.end];
+            let joined = format!("{} {word}", &src[prev.start..prev.end]);
+            if let Err(e) = parse_quantity(&joined) {
+                d.push(
+                    Diagnostic::new(Span::new(extra.start, extra.end), e.message)
+                        .expected(e.expected)
+                        .found(format!("`{word}`")),
+                );
+                return None;
+            }
+        }
+    }
+    if cells_tok.len() != ncols {
+        // Too many cells: point at the first one the table has no column for.
+        let at = match cells_tok.get(ncols) {
+            Some(t) if cells_tok.len() > ncols => Span::new(t.start, t.end),
+            _ => row_span,
+        };
+        d.push(
+            Diagnostic::new(
+                at,
+                format!(
+                    "row has {} cells but the table has {} columns",
+                    cells_tok.len(),
+                    ncols
+                ),
+            )
+            .expected(format!("{ncols} cells"))
+            .found(format!("{} cells", cells_tok.len())),
+        );
+        return None;
+    }
+    let mut cells = Vec::with_capacity(ncols);
+    for (tok, col) in cells_tok.iter().zip(&h.columns) {
+        if let Some((sym, unit, factor)) = col {
+            cells.extend(cell(src, *tok, cend, sym, *unit, *factor, d));
+        }
+    }
+    Some(Row {
+        cells,
+        span: row_span,
+    })
+}
+
+/// One cell in column `sym` (heading unit `unit` times `factor`); None when it is empty or
+/// not a number. A reading out of range is reported and kept.
+fn cell(
+    src: &str,
+    tok: CellRange,
+    cend: usize,
+    sym: &str,
+    unit: Unit,
+    factor: f64,
+    d: &mut Vec<Diagnostic>,
+) -> Option<Cell> {
+    let text = &src[tok.start..tok.end];
+    let cspan = Span::new(tok.start, tok.end);
+    if text.is_empty() {
+        d.push(
+            Diagnostic::new(
+                Span::new(tok.start, (tok.start + 1).min(cend)),
+                format!("empty cell in column `{sym}`"),
+            )
+            .expected("a number")
+            .found("nothing"),
+        );
+        return None;
+    }
+    match parse_in_unit(text, unit, factor) {
+        Ok(q) => {
+            let problem = match sym {
+                "f" if q.value <= 0.0 => Some("a frequency must be greater than zero"),
+                "period" if q.value <= 0.0 => Some("a period must be greater than zero"),
+                "Vs" | "VR" | "VC" | "VL" | "V" | "I" if q.value < 0.0 => {
+                    Some("a meter magnitude cannot be negative")
+                }
+                _ => None,
+            };
+            if let Some(m) = problem {
+                d.push(
+                    Diagnostic::new(cspan, m)
+                        .expected("a positive value")
+                        .found(format!("`{text}`")),
+                );
+            } else if let Some(dg) = out_of_range(sym, q.value, text, cspan) {
+                d.push(dg);
+            }
+            Some(Cell {
+                value: q.value,
+                text: text.to_string(),
+                span: cspan,
+            })
+        }
+        Err(e) => {
+            let s = tok.start + e.offset.min(text.len());
+            let end = (s + e.len.max(1)).min(tok.end).max(s);
+            let mut dg = Diagnostic::new(
+                crate::diag::clamp_span(src, Span::new(s, end)),
+                format!("column `{sym}`: {}", e.message),
+            )
+            .expected(e.expected.clone())
+            .found(format!("`{}`", e.found));
+            if let Some(h) = quantity::unit_help(&e.found) {
+                dg = dg.help(h);
+            }
+            d.push(dg);
+            None
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn table_cells() {
+        let src = "| f/Hz |  VR (mV) | |\n";
+        let cells = pipe_cells(src, 0, src.len() - 1);
+        let texts: Vec<&str> = cells.iter().map(|t| &src[t.start..t.end]).collect();
+        assert_eq!(texts, ["f/Hz", "VR (mV)", ""]);
+        let src = "f / Hz\tVR (mV)  VC/V";
+        let toks = merge_headings(src, ws_tokens(src, 0, src.len()));
+        let texts: Vec<&str> = toks.iter().map(|t| &src[t.start..t.end]).collect();
+        assert_eq!(texts, ["f / Hz", "VR (mV)", "VC/V"]);
+        let src = "1.5 kHz  12 mV 3  x V -2 V";
+        let toks = merge_units(src, ws_tokens(src, 0, src.len()));
+        let texts: Vec<&str> = toks.iter().map(|t| &src[t.start..t.end]).collect();
+        assert_eq!(texts, ["1.5 kHz", "12 mV", "3", "x", "V", "-2 V"]);
+        let src = "|:---|---:|";
+        assert!(is_separator_row(src, &pipe_cells(src, 0, src.len())));
+    }
+}
