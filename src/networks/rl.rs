@@ -632,23 +632,25 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
                 _ => None,
             })
             .collect();
+        // Lookups resolved once: the model runs for every Monte Carlo trial.
+        let (vs_of, vr_of, vl_of) = (
+            bi.voltage_of("Vs", g),
+            bi.voltage_of("VR", g),
+            bi.voltage_of("VL", g),
+        );
+        let pick: Vec<usize> = names
+            .iter()
+            .map(|n| match *n {
+                "I" => 0,
+                "Rac" => 1,
+                "XL" => 2,
+                "L" => 3,
+                _ => 4,
+            })
+            .collect();
         let mc_model = |x: &[f64]| -> Vec<f64> {
-            let (vs, vr, vl) = (
-                bi.voltage("Vs", g, x),
-                bi.voltage("VR", g, x),
-                bi.voltage("VL", g, x),
-            );
-            let y = three_voltmeter(vs, vr, vl, bi.r(x), bi.f(g, x));
-            names
-                .iter()
-                .map(|n| match *n {
-                    "I" => y[0],
-                    "Rac" => y[1],
-                    "XL" => y[2],
-                    "L" => y[3],
-                    _ => y[4],
-                })
-                .collect()
+            let y = three_voltmeter(vs_of(x), vr_of(x), vl_of(x), bi.r(x), bi.f(g, x));
+            pick.iter().map(|&k| y[k]).collect()
         };
         let outs: Vec<usize> = layout
             .iter()
