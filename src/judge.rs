@@ -592,4 +592,86 @@ mod tests {
             "{cool:?}"
         );
     }
+
+    /// Guarded acceptance when U touches a limit from outside (ILAC-G8 §4.2.3, from memory):
+    /// touching is not wholly outside, so the outcome is inconclusive, on both sides. The
+    /// numbers are exact in binary.
+    #[test]
+    fn guarded_touching_from_outside_is_inconclusive() {
+        use Outcome::*;
+        assert_eq!(decide(8.5, 0.5, LO, HI, Decision::Guarded), Inconclusive);
+        assert_eq!(decide(11.5, 0.5, LO, HI, Decision::Guarded), Inconclusive);
+        assert_eq!(decide(8.25, 0.5, LO, HI, Decision::Guarded), Fail);
+        assert_eq!(decide(11.75, 0.5, LO, HI, Decision::Guarded), Fail);
+    }
+
+    /// The worst row is the largest, wherever it stands, and its value is reported exactly:
+    /// dissipation VR²/R (Joule's law, handbook) with R = 100 Ω.
+    #[test]
+    fn the_worst_row_is_the_largest_wherever_it_stands() {
+        let worst = |rows: &str| {
+            let nb = notebook(rows);
+            let Some(Item::Readings(block)) =
+                nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+            else {
+                panic!("no block")
+            };
+            let c = safety_checks(&nb, block, &Derating::default());
+            let d = c
+                .iter()
+                .find(|c| c.what.starts_with("dissipation"))
+                .unwrap();
+            (
+                d.value,
+                crate::diag::line_col(&nb.source, d.span.unwrap().start).0,
+            )
+        };
+        // Rows start at line 30 of the test notebook.
+        assert_eq!(
+            worst("1000 1.0 1.0\n1000 3.0 1.0\n1000 2.0 1.0\n"),
+            (0.09, 31)
+        );
+        assert_eq!(worst("1000 3.0 1.0\n1000 1.0 1.0\n"), (0.09, 30));
+        // A tie keeps the first row.
+        assert_eq!(worst("1000 2.0 1.0\n1000 2.0 1.0\n").1, 30);
+    }
+
+    /// Without a VC column the capacitor's peak voltage is √2·I·XC with I = VR/R and
+    /// XC = 1/(2πfC) (Ohm's law for a capacitor, handbook), from the measured C when there is
+    /// one, and the check says which.
+    #[test]
+    fn capacitor_peak_voltage_without_vc_uses_the_measured_c() {
+        let src = |measured: &str| {
+            format!(
+                "---\nrecord: T-2\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n  C:\n    kind: capacitor\n    nominal: 1 uF\n{measured}    rating: 10 V\n  L:\n    kind: inductor\n    nominal: 10 mH\n---\n\n```readings\nid: b\nnetwork: RLC\nparts: [R, L, C]\n---\nf/Hz Vs/V VR/V\n1000 2.0 1.0\n2000 2.0 1.5\n```\n"
+            )
+        };
+        for (measured, c, word) in [
+            ("", 1e-6, "C nominal"),
+            ("    measured: 0.5 uF\n", 0.5e-6, "C measured"),
+        ] {
+            let nb = crate::notebook::parse(&src(measured)).expect("parses");
+            let Some(Item::Readings(block)) =
+                nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+            else {
+                panic!("no block")
+            };
+            let checks = safety_checks(&nb, block, &Derating::default());
+            let pk = checks
+                .iter()
+                .find(|c| c.what.starts_with("peak voltage"))
+                .unwrap();
+            assert!(pk.what.ends_with(word), "{}", pk.what);
+            let tau = 2.0 * std::f64::consts::PI;
+            let want = [(1000.0, 1.0), (2000.0, 1.5)]
+                .iter()
+                .map(|(f, vr)| std::f64::consts::SQRT_2 * (vr / 100.0) / (tau * f * c))
+                .fold(0.0, f64::max);
+            assert!(
+                (pk.value - want).abs() < 1e-12 * want,
+                "{} vs {want}",
+                pk.value
+            );
+        }
+    }
 }
