@@ -356,6 +356,11 @@ pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedRe
 
 /// Printed form of a cited result: value ± U unit, digits per GUM 7.2.6.
 pub fn cite_text(r: &NamedResult) -> String {
+    // Phases in degrees, as the record's tables print them.
+    if r.unit == Unit::Rad {
+        let (v, u) = (r.m.value.to_degrees(), r.m.expanded.to_degrees());
+        return format!("({})°", format_value_u(v, u, Unit::One));
+    }
     format_value_u(r.m.value, r.m.expanded, r.unit)
 }
 

@@ -580,7 +580,8 @@ pub fn format_value_u(value: f64, expanded_u: f64, unit: Unit) -> String {
         return fallback();
     }
     let decimals = (-last).max(0) as usize;
-    let num = format!("{} ± {}", fixed(vr, decimals), fixed(ur, decimals));
+    // The minus sign of ISO 80000-1 (U+2212), as the record's tables print it.
+    let num = format!("{} ± {}", fixed(vr, decimals), fixed(ur, decimals)).replace('-', "−");
     match unit {
         Unit::One => num,
         Unit::Percent => format!("({num}) %"),
@@ -590,7 +591,8 @@ pub fn format_value_u(value: f64, expanded_u: f64, unit: Unit) -> String {
             } else {
                 ""
             };
-            format!("{num} {p}{}", unit.display_symbol())
+            // GUM 7.2.4's form: the unit applies to both, so the pair is bracketed.
+            format!("({num}) {p}{}", unit.display_symbol())
         }
     }
 }
@@ -760,29 +762,29 @@ mod tests {
     fn gum_7_2_6_digits_and_prefix() {
         assert_eq!(
             format_value_u(47.1312e-9, 0.2468e-9, Unit::F),
-            "47.13 ± 0.25 nF"
+            "(47.13 ± 0.25) nF"
         );
         assert_eq!(
             format_value_u(1234.5678, 12.3, Unit::Ohm),
-            "1.235 ± 0.012 kΩ"
+            "(1.235 ± 0.012) kΩ"
         );
         assert_eq!(
             format_value_u(2.71828e-3, 0.0000161, Unit::H),
-            "2.718 ± 0.016 mH"
+            "(2.718 ± 0.016) mH"
         );
-        assert_eq!(format_value_u(468.72, 23.4, Unit::Hz), "469 ± 23 Hz");
-        assert_eq!(format_value_u(523.0, 147.0, Unit::V), "520 ± 150 V");
+        assert_eq!(format_value_u(468.72, 23.4, Unit::Hz), "(469 ± 23) Hz");
+        assert_eq!(format_value_u(523.0, 147.0, Unit::V), "(520 ± 150) V");
         // Carry of U to the next decade: 0.996 → 1.0.
-        assert_eq!(format_value_u(5.4321, 0.996, Unit::A), "5.4 ± 1.0 A");
+        assert_eq!(format_value_u(5.4321, 0.996, Unit::A), "(5.4 ± 1.0) A");
         // The prefix follows the unrounded value; no carry into the next prefix.
         assert_eq!(
             format_value_u(999.9996, 0.012, Unit::Hz),
-            "1000.000 ± 0.012 Hz"
+            "(1000.000 ± 0.012) Hz"
         );
-        assert_eq!(format_value_u(0.0, 3.3e-6, Unit::V), "0.0 ± 3.3 µV");
+        assert_eq!(format_value_u(0.0, 3.3e-6, Unit::V), "(0.0 ± 3.3) µV");
         assert_eq!(
             format_value_u(-0.61, 0.034, Unit::Rad),
-            "-0.610 ± 0.034 rad"
+            "(−0.610 ± 0.034) rad"
         );
         assert_eq!(
             format_value_u(0.0123, 0.00456, Unit::Percent),

@@ -44,6 +44,31 @@ fn squash(s: &str) -> String {
     s.chars().filter(|c| !c.is_whitespace()).collect()
 }
 
+/// A capacitance and its expanded uncertainty printed by GUM 7.2.6 as written here, apart
+/// from the tool's own printer: U to two significant digits, the value to the same decimal
+/// place, an SI prefix that puts the value in [1, 1000) (ISO 80000-1), `(v ± U) unit`.
+fn gum_726_farad(value: f64, expanded: f64) -> String {
+    let (div, prefix) = [
+        (1e-12, "p"),
+        (1e-9, "n"),
+        (1e-6, "µ"),
+        (1e-3, "m"),
+        (1.0, ""),
+    ]
+    .into_iter()
+    .rev()
+    .find(|(d, _)| value.abs() / d >= 1.0)
+    .unwrap_or((1e-12, "p"));
+    let (v, u) = (value / div, expanded / div);
+    let mut e = u.log10().floor() as i32;
+    let step = 10f64.powi(e - 1);
+    if (u / step).round() * step >= 10f64.powi(e + 1) {
+        e += 1;
+    }
+    let dec = (1 - e).max(0) as usize;
+    format!("({v:.dec$} ± {u:.dec$}) {prefix}F")
+}
+
 #[test]
 fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
     let (dir, nb) = copy_demo("snubber-caps.md");
@@ -56,7 +81,7 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
         text.contains("snub-c1") && text.contains("snub-pair-z"),
         "block ids missing"
     );
-    // The block C as the results export gives it, printed the way the report prints it.
+    // The block C as the results export gives it, printed by GUM 7.2.6 (independently here).
     let json: serde_json::Value =
         serde_json::from_str(&stdout(&run(&["results", nb.to_str().unwrap()]))).unwrap();
     let c = json["blocks"][0]["results"]
@@ -66,11 +91,7 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
         .find(|r| r["name"] == "C" && r.get("f").is_none())
         .expect("block C")
         .clone();
-    let printed = benchrec::quantity::format_value_u(
-        c["value"].as_f64().unwrap(),
-        c["U"].as_f64().unwrap(),
-        benchrec::quantity::Unit::F,
-    );
+    let printed = gum_726_farad(c["value"].as_f64().unwrap(), c["U"].as_f64().unwrap());
     assert!(
         text.contains(&squash(&printed)),
         "computed C `{printed}` not in the PDF text"
@@ -558,15 +579,12 @@ fn prose_citations_print_the_result_and_unknown_ones_are_errors_at_their_line() 
         .find(|r| r["name"] == "C" && r.get("f").is_none())
         .unwrap()
         .clone();
-    let printed = benchrec::quantity::format_value_u(
-        c["value"].as_f64().unwrap(),
-        c["U"].as_f64().unwrap(),
-        benchrec::quantity::Unit::F,
-    );
+    let printed = gum_726_farad(c["value"].as_f64().unwrap(), c["U"].as_f64().unwrap());
     let pdf = squash(&pdf_text(&dir.path().join("cite.pdf")));
     assert!(
         pdf.contains(&format!("OPEN{}SHUT", squash(&printed))),
-        "citation not printed as {printed}"
+        "citation not printed as {printed}: {}",
+        &pdf[pdf.find("OPEN").unwrap_or(0)..][..60.min(pdf.len())]
     );
 
     let bad = text.replace("`=cx-sweep.XC@800Hz`", "`=cx-sweep.XL`");

@@ -54,3 +54,41 @@ fn check_prints_warnings_at_their_row_and_strict_fails_on_them() {
         String::from_utf8_lossy(&o.stdout)
     );
 }
+
+/// A phase cited in prose is printed in degrees, as the tables print it, with U to two
+/// significant digits (GUM 7.2.6) and the pair bracketed before the unit (GUM 7.2.4).
+#[test]
+fn a_cited_phase_prints_in_degrees() {
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("snub.md");
+    let text = std::fs::read_to_string(demo("snubber-caps.md")).unwrap();
+    std::fs::write(&nb, format!("{text}\nCITE `=snub-c1.phase@2400Hz` END\n")).unwrap();
+    let o = run(&["build", nb.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let json: serde_json::Value =
+        serde_json::from_slice(&run(&["results", nb.to_str().unwrap()]).stdout).unwrap();
+    let r = json["blocks"][0]["results"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|r| r["name"] == "phase" && r["f"] == 2400.0)
+        .expect("phase at 2.4 kHz")
+        .clone();
+    assert_eq!(r["unit"], "rad");
+    let (v, u) = (
+        r["value"].as_f64().unwrap().to_degrees(),
+        r["U"].as_f64().unwrap().to_degrees(),
+    );
+    // U between 0.1° and 1°: two decimals.
+    assert!((0.1..1.0).contains(&u), "{u}");
+    let want = format!("({v:.2}±{u:.2})°");
+    let pdf =
+        pdf_extract::extract_text_from_mem(&std::fs::read(dir.path().join("snub.pdf")).unwrap())
+            .unwrap();
+    let flat: String = pdf.split_whitespace().collect();
+    assert!(
+        flat.contains(&format!("CITE{want}END")),
+        "{want} not in {}",
+        &flat[flat.find("CITE").unwrap_or(0)..][..40]
+    );
+}

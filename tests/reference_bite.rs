@@ -81,7 +81,7 @@ fn jcgm101_9_2_3_validates_at_two_digits_not_at_three() {
 fn gum_7_2_6_the_standards_own_example() {
     assert_eq!(
         format_value_u(10.05762, 0.027, Unit::Ohm),
-        "10.058 ± 0.027 Ω"
+        "(10.058 ± 0.027) Ω"
     );
     assert_eq!(
         benchrec::render::format::value_and_u(10.05762, 0.027),
