@@ -679,4 +679,46 @@ mod tests {
             );
         }
     }
+
+    fn parse_one(src: &str) -> (Notebook, ReadingsBlock) {
+        let nb = crate::notebook::parse(src).expect("test notebook parses");
+        let Some(Item::Readings(b)) = nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+        else {
+            panic!("no block")
+        };
+        let b = b.clone();
+        (nb, b)
+    }
+
+    /// A coil rated in watts is checked for winding dissipation I²·dcr (Joule's law) with
+    /// I = VR/R: VR = 1 V over 100 Ω and dcr = 10 Ω give 1 mW; the worst of two rows.
+    #[test]
+    fn coil_rated_in_watts_is_checked_for_winding_dissipation() {
+        let (nb, b) = parse_one("---\nrecord: T-3\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n  L:\n    kind: inductor\n    nominal: 10 mH\n    dcr: 10 ohm\n    rating: 0.5 W\n---\n\n```readings\nid: b\nnetwork: RL\nparts: [R, L]\n---\nf/Hz Vs/V VR/V VL/V\n1000 2.0 0.5 1.8\n2000 2.0 1.0 1.6\n```\n");
+        let c = safety_checks(&nb, &b, &Derating::default());
+        let w = c
+            .iter()
+            .find(|c| c.what.starts_with("winding dissipation"))
+            .expect("checked");
+        assert!((w.value - 1e-3).abs() < 1e-15, "{}", w.value);
+        assert_eq!(w.rating, 0.5);
+        assert!(w.ok);
+    }
+
+    /// `=block.result@f` finds the row at the frequency written, in any spelling of it, and
+    /// refuses a frequency the block does not have or a quantity that is not a frequency.
+    #[test]
+    fn citations_find_the_row_at_the_frequency_written() {
+        let (nb, _) = parse_one("---\nrecord: T-4\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 1 kohm\n  C:\n    kind: capacitor\n    nominal: 100 nF\n---\n\n```readings\nid: b\nnetwork: RC\nparts: [R, C]\n---\nf/Hz Vs/V VR/V VC/V\n1000 2.0 1.073 1.688\n2000 2.0 1.562 1.243\n```\n");
+        let red = crate::networks::reduce(&nb).expect("reduces");
+        let at = |k: &str| resolve_citation(&red, k).map(|r| (r.f, r.m.value));
+        let a = at("b.XC@2000Hz").unwrap();
+        assert_eq!(a.0, Some(2000.0));
+        assert_eq!(at("b.XC@2kHz").unwrap(), a);
+        assert_eq!(at("b.XC@2000").unwrap(), a);
+        assert_ne!(at("b.XC@1000Hz").unwrap().1, a.1);
+        assert!(at("b.XC@1500Hz").is_err());
+        assert!(at("b.XC@2000V").is_err());
+        assert!(at("b.C").is_ok() && at("b.XC").is_err() && at("c.C").is_err());
+    }
 }
