@@ -721,4 +721,36 @@ mod tests {
         assert!(at("b.XC@2000V").is_err());
         assert!(at("b.C").is_ok() && at("b.XC").is_err() && at("c.C").is_err());
     }
+
+    /// A safety check over its limit is a reservation; one within it is not.
+    #[test]
+    fn safety_checks_over_their_limit_are_reservations() {
+        for (rows, over) in [("1000 3.536 1.0\n", true), ("1000 3.0 1.0\n", false)] {
+            let nb = notebook(rows);
+            let Some(Item::Readings(block)) =
+                nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+            else {
+                panic!("no block")
+            };
+            let safety = safety_checks(&nb, block, &Derating::default());
+            let rec = Record {
+                reduction: Reduction { blocks: Vec::new() },
+                verdicts: Vec::new(),
+                safety,
+                sign: SignState::Unsigned,
+                digest: String::new(),
+                source_digest: String::new(),
+                citations: BTreeMap::new(),
+                derating: Derating::default(),
+                notebook: nb,
+            };
+            let r = reservations(&rec);
+            assert_eq!(
+                r.iter()
+                    .any(|m| m.contains("dissipation") && m.contains("exceeds")),
+                over,
+                "{r:?}"
+            );
+        }
+    }
 }
