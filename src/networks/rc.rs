@@ -102,6 +102,14 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     // Block C = mean of the groups' C.
     let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
     let block_c = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
+    // Do the frequencies agree on C? The same χ² test as the RL block means.
+    let idx: Vec<usize> = w.iter().map(|(i, _)| *i).collect();
+    let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
+    let cov: Vec<Vec<f64>> = idx
+        .iter()
+        .map(|&i| idx.iter().map(|&j| p.cov(i, j)).collect())
+        .collect();
+    flags.extend(super::rl::consistency_flag("C", &xs, &cov, block.span));
     let (rows, plot) = per_frequency(&bi, &p.results, &names, &mut flags);
     let mut results = Vec::new();
     results.push(NamedResult {
@@ -303,7 +311,30 @@ mod tests {
         assert!(((out.results[0].m.value - c) / c).abs() < 1e-9);
         assert!(!out.flags.iter().any(|f| f.message.starts_with("Kirchhoff")));
         assert_eq!(out.plot.series.len(), 4);
+        // Exact readings agree across frequencies (χ² test, note); 5 % more VC at one
+        // frequency makes them disagree (warning).
+        let agree = |o: &BlockResult| {
+            o.flags
+                .iter()
+                .find(|f| f.message.starts_with("C: the "))
+                .map(|f| (f.warn, f.message.contains("agree (")))
+        };
+        assert_eq!(agree(&out), Some((false, true)));
+        data[1][3] *= 1.05;
+        let mut b2 = block(Network::RC, &FULL_RC6, &data);
+        b2.parts = vec![named("R7")];
+        let out2 = reduce(&env.ctx(), &b2).unwrap();
+        assert_eq!(agree(&out2), Some((true, false)));
     }
+
+    const FULL_RC6: [(&str, Unit); 6] = [
+        ("f", Unit::Hz),
+        ("Vs", Unit::V),
+        ("VR", Unit::V),
+        ("VC", Unit::V),
+        ("shift", Unit::Div),
+        ("period", Unit::Div),
+    ];
 
     // The 3-4-5 series RC of the textbooks (from memory, common in electrical-technology
     // texts): R = 30 Ω, XC = 40 Ω on 100 V: Z = 50 Ω, I = 2 A, VR = 60 V, VC = 80 V,

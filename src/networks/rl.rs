@@ -91,6 +91,33 @@ pub struct Consistency {
     pub generalised: bool,
 }
 
+/// The χ² agreement of a block value's row estimates as a flag: a note when they agree, a
+/// warning when they disagree beyond their uncertainties (then the mean hides a frequency
+/// dependence). `None` when the test cannot be computed (fewer than two rows).
+pub fn consistency_flag(name: &str, xs: &[f64], cov: &[Vec<f64>], span: crate::diag::Span) -> Option<Flag> {
+    let c = consistency(xs, cov)?;
+    let basis = if c.generalised {
+        "with the row covariance"
+    } else {
+        "from the row uncertainties"
+    };
+    Some(Flag {
+        warn: !c.consistent,
+        span: Some(span),
+        message: if c.consistent {
+            format!(
+                "{name}: the {} frequencies agree (χ² = {} ≤ {} at 95 %, ν = {}, Birge ratio {}, {basis})",
+                xs.len(), fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+            )
+        } else {
+            format!(
+                "{name}: the frequencies disagree beyond their uncertainties (χ² = {} > {} at 95 %, ν = {}, Birge ratio {}, {basis}): the weighted mean hides a frequency dependence",
+                fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+            )
+        },
+    })
+}
+
 pub fn consistency(x: &[f64], cov: &[Vec<f64>]) -> Option<Consistency> {
     let n = x.len();
     if n < 2 || cov.len() != n || cov.iter().any(|r| r.len() != n) {
@@ -835,28 +862,7 @@ fn block_results(
             .iter()
             .map(|&i| idx.iter().map(|&j| p.cov(i, j)).collect())
             .collect();
-        if let Some(c) = consistency(&xs, &cov) {
-            let basis = if c.generalised {
-                "with the row covariance"
-            } else {
-                "from the row uncertainties"
-            };
-            flags.push(Flag {
-                warn: !c.consistent,
-                span: Some(block.span),
-                message: if c.consistent {
-                    format!(
-                        "{name}: the {} frequencies agree (χ² = {} ≤ {} at 95 %, ν = {}, Birge ratio {}, {basis})",
-                        xs.len(), fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
-                    )
-                } else {
-                    format!(
-                        "{name}: the frequencies disagree beyond their uncertainties (χ² = {} > {} at 95 %, ν = {}, Birge ratio {}, {basis}): the weighted mean hides a frequency dependence",
-                        fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
-                    )
-                },
-            });
-        }
+        flags.extend(consistency_flag(name, &xs, &cov, block.span));
     }
 
     results
