@@ -159,34 +159,56 @@ pub fn entry_range(raw: &str) -> Result<std::ops::Range<usize>, String> {
             i + 1
         ));
     }
-    let mut found = Vec::new();
-    for (n, &i) in top.iter().enumerate() {
-        match top_key(text(i)) {
-            Some(k) if k == "signoff" => found.push((i, top.get(n + 1).copied().unwrap_or(close))),
-            Some(_) => {}
-            None => {
-                return Err(format!(
-                    "line {} of the front matter has no key that sign can read",
-                    i + 1
-                ))
+    // A column-0 line that is not a key is the continuation of a multi-line scalar, not an
+    // entry; it is skipped.
+    let keys: Vec<(usize, String)> = top
+        .iter()
+        .filter_map(|&i| top_key(text(i)).map(|k| (i, k)))
+        .collect();
+    let found: Vec<usize> = keys
+        .iter()
+        .filter(|(_, k)| k == "signoff")
+        .map(|(i, _)| *i)
+        .collect();
+    match found.as_slice() {
+        [] => Ok(ls[close].0..ls[close].0),
+        [i] => {
+            // The entry ends at the first later key where what precedes reads, on its own,
+            // as the one `signoff` entry (a quoted scalar may run on at column 0).
+            let ends = keys
+                .iter()
+                .map(|(j, _)| *j)
+                .filter(|j| j > i)
+                .chain([close]);
+            for next in ends {
+                // Keep blank lines and comments that sit between the entry and the next key.
+                let mut j = next;
+                while j > i + 1 && {
+                    let t = text(j - 1).trim();
+                    t.is_empty() || t.starts_with('#')
+                } {
+                    j -= 1;
+                }
+                let range = ls[*i].0..ls[j].0;
+                if reads_as_signoff_entry(&raw[range.clone()]) {
+                    return Ok(range);
+                }
             }
+            Err(format!(
+                "sign cannot tell where the `signoff` entry of line {} ends; write it in block style, one key per line",
+                i + 1
+            ))
         }
+        _ => Err("the front matter has more than one `signoff` entry".into()),
     }
-    Ok(match found.as_slice() {
-        [] => ls[close].0..ls[close].0,
-        [(i, next)] => {
-            // Keep blank lines and comments that sit between the entry and the next key.
-            let mut j = *next;
-            while j > i + 1 && {
-                let t = text(j - 1).trim();
-                t.is_empty() || t.starts_with('#')
-            } {
-                j -= 1;
-            }
-            ls[*i].0..ls[j].0
-        }
-        _ => return Err("the front matter has more than one `signoff` entry".into()),
-    })
+}
+
+/// Whether `text` alone is YAML for a mapping with the single key `signoff`.
+fn reads_as_signoff_entry(text: &str) -> bool {
+    matches!(
+        serde_yaml::from_str::<serde_yaml::Value>(text),
+        Ok(serde_yaml::Value::Mapping(m)) if m.len() == 1 && m.contains_key("signoff")
+    )
 }
 
 #[cfg(test)]
@@ -213,5 +235,17 @@ mod tests {
     fn a_flow_style_front_matter_is_refused() {
         let e = Entry::default();
         assert!(set_signoff("---\n{record: a}\n---\n", &e).is_err());
+    }
+
+    /// Found by the `sign_edit` fuzz target: a double-quoted scalar inside the entry runs on
+    /// to a line at column 0 that looks like a key; the entry ends after it.
+    #[test]
+    fn a_quoted_scalar_running_on_at_column_0_stays_inside_the_entry() {
+        let raw = "---\nrecord: r\nsignoff:\n  by: \"a\n\nlot: b\"\n  on: x\n  digest: y\ntitle: t\n---\n";
+        let r = entry_range(raw).unwrap();
+        assert_eq!(
+            &raw[r],
+            "signoff:\n  by: \"a\n\nlot: b\"\n  on: x\n  digest: y\n"
+        );
     }
 }
