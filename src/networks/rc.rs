@@ -105,10 +105,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     // Do the frequencies agree on C? The same χ² test as the RL block means.
     let idx: Vec<usize> = w.iter().map(|(i, _)| *i).collect();
     let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
-    let cov: Vec<Vec<f64>> = idx
-        .iter()
-        .map(|&i| idx.iter().map(|&j| p.cov(i, j)).collect())
-        .collect();
+    let cov = |a: usize, b: usize| p.cov(idx[a], idx[b]);
     flags.extend(super::rl::consistency_flag("C", &xs, &cov, block.span));
     let (rows, plot) = per_frequency(&bi, &p.results, &names, &mut flags);
     let mut results = Vec::new();

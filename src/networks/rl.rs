@@ -94,8 +94,22 @@ pub struct Consistency {
 /// The χ² agreement of a block value's row estimates as a flag: a note when they agree, a
 /// warning when they disagree beyond their uncertainties (then the mean hides a frequency
 /// dependence). `None` when the test cannot be computed (fewer than two rows).
-pub fn consistency_flag(name: &str, xs: &[f64], cov: &[Vec<f64>], span: crate::diag::Span) -> Option<Flag> {
-    let c = consistency(xs, cov)?;
+pub fn consistency_flag(
+    name: &str,
+    xs: &[f64],
+    cov: &dyn Fn(usize, usize) -> f64,
+    span: crate::diag::Span,
+) -> Option<Flag> {
+    let n = xs.len();
+    // The generalised test solves with the n × n covariance (O(n³)); a long sweep (5 000
+    // rows took minutes) uses the row uncertainties alone, and the flag says so.
+    let c = if n <= GENERALISED_MAX_ROWS {
+        let m: Vec<Vec<f64>> = (0..n).map(|i| (0..n).map(|j| cov(i, j)).collect()).collect();
+        consistency(xs, &m)?
+    } else {
+        let var: Vec<f64> = (0..n).map(|i| cov(i, i)).collect();
+        consistency_uncorrelated(xs, &var)?
+    };
     let basis = if c.generalised {
         "with the row covariance"
     } else {
@@ -115,6 +129,40 @@ pub fn consistency_flag(name: &str, xs: &[f64], cov: &[Vec<f64>], span: crate::d
                 fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
             )
         },
+    })
+}
+
+/// Above this many rows the agreement test uses the row variances only.
+pub const GENERALISED_MAX_ROWS: usize = 200;
+
+/// [`consistency`] with a diagonal covariance (`var`, the row variances): the weighted mean
+/// and χ² = Σ (xᵢ − x̄)² / u²(xᵢ).
+pub fn consistency_uncorrelated(x: &[f64], var: &[f64]) -> Option<Consistency> {
+    let n = x.len();
+    if n < 2 || var.len() != n || var.iter().any(|v| !(*v > 0.0)) {
+        return None;
+    }
+    let sw: f64 = var.iter().map(|v| 1.0 / v).sum();
+    let m = x.iter().zip(var).map(|(x, v)| x / v).sum::<f64>() / sw;
+    let chi2: f64 = x.iter().zip(var).map(|(x, v)| (x - m).powi(2) / v).sum();
+    finish_consistency(chi2, n, false)
+}
+
+fn finish_consistency(chi2: f64, n: usize, generalised: bool) -> Option<Consistency> {
+    if !chi2.is_finite() {
+        return None;
+    }
+    let dof = n - 1;
+    let chi2_95 = ChiSquared::new(dof as f64)
+        .map(|d| d.inverse_cdf(0.95))
+        .ok()?;
+    Some(Consistency {
+        chi2,
+        dof,
+        birge: (chi2 / dof as f64).sqrt(),
+        chi2_95,
+        consistent: chi2 <= chi2_95,
+        generalised,
     })
 }
 
@@ -151,18 +199,7 @@ pub fn consistency(x: &[f64], cov: &[Vec<f64>]) -> Option<Consistency> {
             (chi2_of(&diag)?, false)
         }
     };
-    let dof = n - 1;
-    let chi2_95 = ChiSquared::new(dof as f64)
-        .map(|d| d.inverse_cdf(0.95))
-        .ok()?;
-    Some(Consistency {
-        chi2,
-        dof,
-        birge: (chi2 / dof as f64).sqrt(),
-        chi2_95,
-        consistent: chi2 <= chi2_95,
-        generalised,
-    })
+    finish_consistency(chi2, n, generalised)
 }
 
 /// Stable 64-bit seed from a block id (FNV-1a), so Monte Carlo output is reproducible.
@@ -858,10 +895,7 @@ fn block_results(
             .map(|(_, w)| w.iter().map(|(i, _)| *i).collect())
             .unwrap_or_default();
         let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
-        let cov: Vec<Vec<f64>> = idx
-            .iter()
-            .map(|&i| idx.iter().map(|&j| p.cov(i, j)).collect())
-            .collect();
+        let cov = |a: usize, b: usize| p.cov(idx[a], idx[b]);
         flags.extend(consistency_flag(name, &xs, &cov, block.span));
     }
 
@@ -1100,6 +1134,10 @@ mod tests {
         let c = consistency(&[1.0, 1.5], &[vec![0.01, 0.0], vec![0.0, 0.01]]).unwrap();
         // (0.5)²/(0.02) = 12.5
         assert!(!c.consistent && (c.chi2 - 12.5).abs() < 1e-9);
+        // The same from the variances alone (the path of long sweeps).
+        let d = consistency_uncorrelated(&[1.0, 1.5], &[0.01, 0.01]).unwrap();
+        assert!((d.chi2 - 12.5).abs() < 1e-9 && !d.consistent && !d.generalised);
+        assert_eq!(d.chi2_95, c.chi2_95);
         // A large common component (correlation) does not hide the disagreement.
         let c = consistency(&[1.0, 1.5], &[vec![1.01, 1.0], vec![1.0, 1.01]]).unwrap();
         assert!(!c.consistent && c.generalised);
