@@ -259,7 +259,14 @@ fn pages_mismatch(pdf: &[u8], name: &str, source: &[u8], rec: &Record) -> Option
             source: source.to_vec(),
             ..Assets::default()
         };
-        match render::render_pdf(rec, &assets) {
+        let again = render::render_pdf(rec, &assets);
+        // As in `pipeline::render_file`: drop typst's memoised layout now and then, or a
+        // folder of records keeps every one's in memory.
+        static BUILDS: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+        if BUILDS.fetch_add(1, std::sync::atomic::Ordering::Relaxed) % 4 == 3 {
+            typst::comemo::evict(2);
+        }
+        match again {
             Ok(again) if again == pdf => {}
             Ok(_) => return Some("rebuilt from the attachment, the record differs".into()),
             Err(e) => return Some(format!("the attachment does not typeset: {e}")),
@@ -321,7 +328,6 @@ pub fn read_signers(path: &Path) -> Result<Signers, Failure> {
 
 /// Every PDF under `dir`, in path order, verified in parallel.
 pub fn verify_tree(dir: &Path, signers: Option<&Signers>) -> Vec<Report> {
-    use rayon::prelude::*;
     let mut pdfs: Vec<PathBuf> = walkdir::WalkDir::new(dir)
         .follow_links(false)
         .into_iter()
@@ -335,13 +341,14 @@ pub fn verify_tree(dir: &Path, signers: Option<&Signers>) -> Vec<Report> {
         })
         .collect();
     pdfs.sort();
-    pdfs.par_iter()
-        .map(|p| {
-            std::panic::catch_unwind(|| verify_file(p, signers)).unwrap_or_else(|_| Report {
-                path: p.clone(),
-                status: Status::Error,
-                detail: "verification failed unexpectedly (a defect of benchrec)".into(),
-            })
-        })
-        .collect()
+    // Plain workers with a large stack: verifying may typeset the record again.
+    crate::batch::on_workers(
+        &pdfs,
+        &|p: &PathBuf| verify_file(p, signers),
+        &|p: &PathBuf| Report {
+            path: p.clone(),
+            status: Status::Error,
+            detail: "verification failed unexpectedly (a defect of benchrec)".into(),
+        },
+    )
 }

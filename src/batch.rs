@@ -427,6 +427,53 @@ pub fn run_all_with(
 /// Stack of each build worker thread.
 pub const WORKER_STACK: usize = 16 * 1024 * 1024;
 
+/// `f` over `items` on one plain worker thread per core with [`WORKER_STACK`] (typesetting
+/// recurses deeply; rayon's workers have 2 MiB and steal work while typst waits), results in
+/// item order. A panic in `f` for one item gives `on_panic` for that item.
+pub fn on_workers<T: Sync, R: Send>(
+    items: &[T],
+    f: &(dyn Fn(&T) -> R + Sync),
+    on_panic: &(dyn Fn(&T) -> R + Sync),
+) -> Vec<R> {
+    let _ = rayon::ThreadPoolBuilder::new()
+        .stack_size(WORKER_STACK)
+        .build_global();
+    let workers = rayon::current_num_threads().clamp(1, items.len().max(1));
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let done: Vec<std::sync::Mutex<Option<R>>> =
+        items.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    let work = || loop {
+        let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+        let Some(it) = items.get(i) else { break };
+        let r = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| f(it)))
+            .unwrap_or_else(|_| on_panic(it));
+        if let Ok(mut slot) = done[i].lock() {
+            *slot = Some(r);
+        }
+    };
+    std::thread::scope(|sc| {
+        let mut spawned = 0;
+        for _ in 0..workers {
+            let b = std::thread::Builder::new().stack_size(WORKER_STACK);
+            if b.spawn_scoped(sc, work).is_ok() {
+                spawned += 1;
+            }
+        }
+        if spawned == 0 {
+            work();
+        }
+    });
+    done.into_iter()
+        .zip(items)
+        .map(|(m, it)| {
+            m.into_inner()
+                .ok()
+                .flatten()
+                .unwrap_or_else(|| on_panic(it))
+        })
+        .collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
