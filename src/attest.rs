@@ -187,7 +187,13 @@ pub struct Report {
 pub fn verify_file(path: &Path, signers: Option<&Signers>) -> Report {
     let (status, detail) = match verify_inner(path, signers) {
         Ok(sd) => sd,
-        Err(f) => (Status::Error, f.summary()),
+        Err(f) => {
+            // The report line names the file already.
+            let s = f.summary();
+            let p = format!("{}: ", path.display());
+            let s = s.strip_prefix("error: ").unwrap_or(&s);
+            (Status::Error, s.strip_prefix(&p).unwrap_or(s).to_string())
+        }
     };
     Report {
         path: path.to_path_buf(),
