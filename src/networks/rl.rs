@@ -36,11 +36,7 @@ pub const NETWORK: Descriptor = Descriptor {
         optional: &[],
         resistor: true,
     },
-    positive: &[
-        ("Vs", AMPLITUDE),
-        ("VR", AMPLITUDE),
-        ("VL", AMPLITUDE),
-    ],
+    positive: &[("Vs", AMPLITUDE), ("VR", AMPLITUDE), ("VL", AMPLITUDE)],
     judged: &[("L", PartKind::Inductor)],
     plot: PlotKind::PerFrequency {
         main: &["L", "XL"],
@@ -104,7 +100,9 @@ pub fn consistency_flag(
     // The generalised test solves with the n × n covariance (O(n³)); a long sweep (5 000
     // rows took minutes) uses the row uncertainties alone, and the flag says so.
     let c = if n <= GENERALISED_MAX_ROWS {
-        let m: Vec<Vec<f64>> = (0..n).map(|i| (0..n).map(|j| cov(i, j)).collect()).collect();
+        let m: Vec<Vec<f64>> = (0..n)
+            .map(|i| (0..n).map(|j| cov(i, j)).collect())
+            .collect();
         consistency(xs, &m)?
     } else {
         let var: Vec<f64> = (0..n).map(|i| cov(i, i)).collect();
