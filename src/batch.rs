@@ -380,48 +380,19 @@ pub fn run_all_with(
     tick: &(dyn Fn(&Job, &Outcome) + Sync),
     runner: &(dyn Fn(&Job, bool) -> Outcome + Sync),
 ) -> Vec<Outcome> {
-    // Typesetting recurses deeply: give every thread that may run it the main thread's stack
-    // size, not the 2 MiB default. Fails harmlessly when the pool already exists.
-    let _ = rayon::ThreadPoolBuilder::new()
-        .stack_size(WORKER_STACK)
-        .build_global();
-    let workers = rayon::current_num_threads().clamp(1, jobs.len().max(1));
-    let next = std::sync::atomic::AtomicUsize::new(0);
-    let done: Vec<std::sync::Mutex<Option<Outcome>>> =
-        jobs.iter().map(|_| std::sync::Mutex::new(None)).collect();
-    let work = || loop {
-        let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-        let Some(j) = jobs.get(i) else { break };
+    let run = |j: &Job| {
         let o = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| runner(j, force)))
             .unwrap_or_else(|p| panicked(j, p.as_ref()));
         tick(j, &o);
-        if let Ok(mut slot) = done[i].lock() {
-            *slot = Some(o);
-        }
+        o
     };
-    std::thread::scope(|sc| {
-        let mut spawned = 0;
-        for _ in 0..workers {
-            let b = std::thread::Builder::new().stack_size(WORKER_STACK);
-            if b.spawn_scoped(sc, work).is_ok() {
-                spawned += 1;
-            }
-        }
-        if spawned == 0 {
-            work();
-        }
-    });
-    done.into_iter()
-        .zip(jobs)
-        .map(|(m, j)| {
-            m.into_inner().ok().flatten().unwrap_or_else(|| {
-                Outcome::Failed(Failure::Io {
-                    path: j.notebook.clone(),
-                    message: "the build worker stopped before this record".into(),
-                })
-            })
+    let lost = |j: &Job| {
+        Outcome::Failed(Failure::Io {
+            path: j.notebook.clone(),
+            message: "the build worker stopped before this record".into(),
         })
-        .collect()
+    };
+    on_workers(jobs, &run, &lost)
 }
 
 /// Stack of each build worker thread.
@@ -435,6 +406,8 @@ pub fn on_workers<T: Sync, R: Send>(
     f: &(dyn Fn(&T) -> R + Sync),
     on_panic: &(dyn Fn(&T) -> R + Sync),
 ) -> Vec<R> {
+    // Typesetting recurses deeply: give every thread that may run it the main thread's stack
+    // size, not the 2 MiB default. Fails harmlessly when the pool already exists.
     let _ = rayon::ThreadPoolBuilder::new()
         .stack_size(WORKER_STACK)
         .build_global();

@@ -157,18 +157,13 @@ pub fn monte_carlo_with(
     trials: Option<usize>,
     opts: McOptions,
 ) -> Vec<McInterval> {
-    let p = if p.is_finite() {
-        p.clamp(0.5, 0.9999)
-    } else {
-        0.95
-    };
     let sampler = Sampler::new(inputs, corr);
     run_adaptive(&sampler, f, p, seed, trials, opts)
 }
 
 /// The trials of [`monte_carlo_with`]: `trials` fixed, or batches until §7.9.4 says stable.
-/// Each output's values are gathered in batch order as the batches finish, so no copy of all
-/// values is made at the end.
+/// The batches are kept as drawn and summarised together by [`summarise_parts`], so no copy
+/// of all values is made at the end.
 fn run_adaptive(
     sampler: &Sampler,
     f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),

@@ -280,18 +280,7 @@ mod tests {
             "R7".into(),
             resistor("R7", r, Some(Tolerance::Relative(0.001))),
         );
-        let mut b = block(
-            Network::RC,
-            &[
-                ("f", Unit::Hz),
-                ("Vs", Unit::V),
-                ("VR", Unit::V),
-                ("VC", Unit::V),
-                ("shift", Unit::Div),
-                ("period", Unit::Div),
-            ],
-            &data,
-        );
+        let mut b = block(Network::RC, &FULL_RC6, &data);
         b.parts = vec![named("R7")];
         let out = reduce(&env.ctx(), &b).unwrap();
         for &f in &freqs {
@@ -324,6 +313,7 @@ mod tests {
         assert_eq!(agree(&out2), Some((true, false)));
     }
 
+    /// Columns of an RC block with the source and a trace shift read too.
     const FULL_RC6: [(&str, Unit); 6] = [
         ("f", Unit::Hz),
         ("Vs", Unit::V),

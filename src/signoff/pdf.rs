@@ -53,8 +53,8 @@ pub fn verify_pdf_source(pdf: &[u8]) -> Result<String, String> {
 /// The text of every page, as `pdf-extract` reads it through the fonts' ToUnicode maps. A
 /// PDF that makes the extractor panic is reported, not fatal.
 pub fn page_text(pdf: &[u8]) -> Result<String, String> {
-    let bytes = pdf.to_vec();
-    match std::panic::catch_unwind(move || pdf_extract::extract_text_from_mem(&bytes)) {
+    let read = std::panic::AssertUnwindSafe(|| pdf_extract::extract_text_from_mem(pdf));
+    match std::panic::catch_unwind(read) {
         Ok(Ok(t)) => Ok(t),
         Ok(Err(e)) => Err(format!("the pages' text cannot be read: {e}")),
         Err(_) => Err("the pages' text cannot be read".into()),
