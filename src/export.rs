@@ -106,14 +106,12 @@ pub fn to_json(rec: &Record) -> JsonRecord {
             let mut flags: Vec<String> = b.flags.iter().map(|f| flag_text(rec, f)).collect();
             for s in rec.safety.iter().filter(|s| s.block == b.id && !s.ok) {
                 flags.push(format!(
-                    "safety: {} of {} is {:.4} {}, above {:.0} % of its rating {} {}",
+                    "safety: {} of {} is {}, above {} % of its rating {}",
                     s.what,
                     s.part,
-                    s.value,
-                    s.unit.symbol(),
-                    100.0 * s.limit / s.rating,
-                    s.rating,
-                    s.unit.symbol()
+                    crate::print::quantity(s.value, s.unit),
+                    crate::print::plain(100.0 * s.limit / s.rating, 3),
+                    crate::print::quantity(s.rating, s.unit)
                 ));
             }
             JsonBlock {

@@ -4,7 +4,7 @@
 use crate::diag::{Diagnostic, Span};
 use crate::networks::{BlockResult, NamedResult, Reduction};
 use crate::notebook::{Decision, Item, Notebook, Part, PartKind, ReadingsBlock, Tolerance};
-use crate::quantity::{format_value_u, parse_quantity, Unit};
+use crate::quantity::{parse_quantity, Unit};
 use crate::signoff;
 use std::collections::BTreeMap;
 
@@ -354,38 +354,16 @@ pub fn resolve_citation<'a>(red: &'a Reduction, key: &str) -> Result<&'a NamedRe
     }
 }
 
-/// Printed form of a cited result: value ± U unit, digits per GUM 7.2.6.
+/// Printed form of a cited result: value ± U unit, as the record's tables print it.
 pub fn cite_text(r: &NamedResult) -> String {
-    // Phases in degrees, as the record's tables print them.
-    if r.unit == Unit::Rad {
-        let (v, u) = (r.m.value.to_degrees(), r.m.expanded.to_degrees());
-        return format!("({})°", format_value_u(v, u, Unit::One));
-    }
-    format_value_u(r.m.value, r.m.expanded, r.unit)
+    crate::print::value_u(r.m.value, r.m.expanded, r.unit)
 }
 
-/// Finds every citation (inline code starting with `=`) in the prose, with its span.
+/// Every citation (inline code starting with `=`) in the prose, with its span.
 pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
-    use pulldown_cmark::{Event, Options, Parser};
-    let mut out = Vec::new();
-    for item in &nb.items {
-        let Item::Prose { text, span } = item else {
-            continue;
-        };
-        for (ev, range) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
-            if let Event::Code(code) = ev {
-                // `=` followed by a name: a lone `=` or `= x` is ordinary code.
-                if let Some(key) = code
-                    .strip_prefix('=')
-                    .filter(|k| k.starts_with(|c: char| c.is_alphanumeric()))
-                {
-                    let s = Span::new(span.start + range.start, span.start + range.end);
-                    out.push((key.trim().to_string(), s));
-                }
-            }
-        }
-    }
-    out
+    crate::notebook::prose_refs(&nb.items)
+        .flat_map(|r| r.citations.iter().cloned())
+        .collect()
 }
 
 /// Judge a reduced notebook: verdicts, safety, citations, sign-off state.

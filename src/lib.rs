@@ -17,6 +17,7 @@ pub mod networks;
 pub mod notebook;
 #[cfg(feature = "typeset")]
 pub mod pipeline;
+pub mod print;
 pub mod quantity;
 #[cfg(feature = "typeset")]
 pub mod render;

@@ -560,6 +560,16 @@ impl Sampler {
     }
 }
 
+/// Stable 64-bit seed from a block id (FNV-1a), so Monte Carlo output is reproducible.
+pub fn seed_of(id: &str, salt: u64) -> u64 {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in id.bytes().chain(salt.to_le_bytes()) {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    h
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

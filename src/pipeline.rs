@@ -341,79 +341,30 @@ pub fn analyse_text(path: &Path, text: &str) -> Result<Record, Failure> {
 /// The most prose (Markdown outside readings blocks) a notebook may hold, in bytes. Typesetting
 /// prose costs about 1.7 s and 300 MB per MB, so this bounds it near 1 s and 150 MB.
 pub const PROSE_MAX_BYTES: usize = 512 * 1024;
-/// The longest run of text in one paragraph, heading, list item or table cell, in bytes
-/// (about 5 000 words: some ten pages).
-pub const PARAGRAPH_MAX_BYTES: usize = 32 * 1024;
+pub use crate::notebook::prose::PARAGRAPH_MAX_BYTES;
 
 /// Prose over [`PROSE_MAX_BYTES`] in all or a paragraph over [`PARAGRAPH_MAX_BYTES`], each
 /// reported where it starts. Readings blocks are not prose and have no such limit.
 pub fn prose_limits(items: &[Item]) -> Vec<Diagnostic> {
-    use pulldown_cmark::{Event, Options, Parser, Tag, TagEnd};
     let mut diags = Vec::new();
     let mut total = 0usize;
     for item in items {
-        let Item::Prose { text, span } = item else {
+        let Item::Prose { text, span, refs } = item else {
             continue;
         };
-        let inline = |t: &Tag| {
-            matches!(
-                t,
-                Tag::Emphasis
-                    | Tag::Strong
-                    | Tag::Strikethrough
-                    | Tag::Superscript
-                    | Tag::Subscript
-                    | Tag::Link { .. }
-                    | Tag::Image { .. }
-            )
-        };
-        let inline_end = |t: &TagEnd| {
-            matches!(
-                t,
-                TagEnd::Emphasis
-                    | TagEnd::Strong
-                    | TagEnd::Strikethrough
-                    | TagEnd::Superscript
-                    | TagEnd::Subscript
-                    | TagEnd::Link
-                    | TagEnd::Image
-            )
-        };
-        let (mut run, mut start) = (0usize, None::<usize>);
-        let opts = Options::ENABLE_TABLES | Options::ENABLE_STRIKETHROUGH;
-        for (ev, r) in Parser::new_ext(text, opts).into_offset_iter() {
-            let boundary = match &ev {
-                Event::Start(t) => !inline(t),
-                Event::End(t) => !inline_end(t),
-                Event::Rule => true,
-                _ => false,
-            };
-            if boundary {
-                (run, start) = (0, None);
-                continue;
-            }
-            run += match ev {
-                Event::Start(_) | Event::End(_) | Event::TaskListMarker(_) => continue,
-                Event::SoftBreak | Event::HardBreak => 1,
-                _ => r.len(),
-            };
-            let first = *start.get_or_insert(r.start);
-            if run > PARAGRAPH_MAX_BYTES {
-                let at = span.start + first;
-                diags.push(
-                    Diagnostic::new(
-                        Span::new(at, at + 1),
-                        "this paragraph is too long to typeset",
-                    )
-                    .expected(format!(
-                        "at most {} KiB of text in one paragraph, heading, list item or table cell",
-                        PARAGRAPH_MAX_BYTES / 1024
-                    ))
-                    .found(format!("more than {} KiB without a blank line", run / 1024))
-                    .help("break the text into paragraphs (a blank line between them)"),
-                );
-                break;
-            }
+        if let Some((at, run)) = refs.long_paragraph {
+            diags.push(
+                Diagnostic::new(
+                    Span::new(at, at + 1),
+                    "this paragraph is too long to typeset",
+                )
+                .expected(format!(
+                    "at most {} KiB of text in one paragraph, heading, list item or table cell",
+                    PARAGRAPH_MAX_BYTES / 1024
+                ))
+                .found(format!("more than {} KiB without a blank line", run / 1024))
+                .help("break the text into paragraphs (a blank line between them)"),
+            );
         }
         total += text.len();
         if total > PROSE_MAX_BYTES {
@@ -460,22 +411,9 @@ fn is_inside(rel: &str) -> bool {
 
 /// Images named in the prose of these items, as (path as written, span).
 pub fn image_refs_in(items: &[Item]) -> Vec<(String, Span)> {
-    use pulldown_cmark::{Event, Options, Parser, Tag};
-    let mut out = Vec::new();
-    for item in items {
-        let Item::Prose { text, span } = item else {
-            continue;
-        };
-        for (ev, r) in Parser::new_ext(text, Options::ENABLE_TABLES).into_offset_iter() {
-            if let Event::Start(Tag::Image { dest_url, .. }) = ev {
-                out.push((
-                    dest_url.to_string(),
-                    Span::new(span.start + r.start, span.start + r.end),
-                ));
-            }
-        }
-    }
-    out
+    crate::notebook::prose_refs(items)
+        .flat_map(|r| r.images.iter().cloned())
+        .collect()
 }
 
 /// Images named in the prose, as (path as written, span).

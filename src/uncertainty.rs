@@ -934,8 +934,8 @@ mod tests {
         // The GUM rounds ν_eff = 19.0 to 19 (its numerator uses the rounded 1.03 %).
         let k = coverage_factor(0.95, Some(nu.round()));
         assert!(close(k, 2.09, 0.005));
-        assert_eq!(crate::quantity::round_sig(k * uc, 2), 2.2); // 2.15… rounds to 2.2
-                                                                // All infinite → infinite.
+        assert_eq!(crate::print::round_sig(k * uc, 2), 2.2); // 2.15… rounds to 2.2
+                                                             // All infinite → infinite.
         assert_eq!(welch_satterthwaite(&[(1.0, None), (2.0, None)]), None);
         // Single contribution: ν_eff = ν (G.2b with N = 1).
         assert!(close(

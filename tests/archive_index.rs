@@ -3,22 +3,13 @@
 //! unchanged archive is indexed from the cache, and `verify DIR` does not take the index for
 //! a record.
 
-use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+mod common;
 
-fn run(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_benchrec"))
-        .args(args)
-        .output()
-        .expect("benchrec runs")
-}
+use common::*;
+use std::path::PathBuf;
 
 fn root() -> PathBuf {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
 }
 
 /// The five entities of HTML text (tl returns text as written).

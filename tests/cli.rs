@@ -1,22 +1,10 @@
 //! End-to-end tests through the `benchrec` binary: build, check, results, sign, verify,
 //! batches, cache, watch, exit codes.
 
+mod common;
+
+use common::*;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
-
-fn bin() -> Command {
-    Command::new(env!("CARGO_BIN_EXE_benchrec"))
-}
-
-fn run(args: &[&str]) -> Output {
-    bin().args(args).output().expect("benchrec runs")
-}
-
-fn demo(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("demo")
-        .join(name)
-}
 
 /// Copies a demo notebook into a fresh temporary folder.
 fn copy_demo(name: &str) -> (tempfile::TempDir, PathBuf) {
@@ -24,24 +12,6 @@ fn copy_demo(name: &str) -> (tempfile::TempDir, PathBuf) {
     let dst = dir.path().join(name);
     std::fs::copy(demo(name), &dst).unwrap();
     (dir, dst)
-}
-
-fn stderr(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stderr).into_owned()
-}
-
-fn stdout(o: &Output) -> String {
-    String::from_utf8_lossy(&o.stdout).into_owned()
-}
-
-fn pdf_text(path: &Path) -> String {
-    let bytes = std::fs::read(path).unwrap();
-    pdf_extract::extract_text_from_mem(&bytes).unwrap_or_default()
-}
-
-/// Text with all white space removed, for matching across line breaks and kerning gaps.
-fn squash(s: &str) -> String {
-    s.chars().filter(|c| !c.is_whitespace()).collect()
 }
 
 /// A capacitance and its expanded uncertainty printed by GUM 7.2.6 as written here, apart
@@ -75,7 +45,7 @@ fn demo_builds_and_its_pdf_shows_record_blocks_and_a_computed_value() {
     let out = dir.path().join("rec.pdf");
     let o = run(&["build", nb.to_str().unwrap(), "-o", out.to_str().unwrap()]);
     assert!(o.status.success(), "build failed: {}", stderr(&o));
-    let text = squash(&pdf_text(&out));
+    let text = squash(&pdf_text_file(&out));
     assert!(text.contains("BR-DEMO-0101"), "record id missing");
     assert!(
         text.contains("snub-c1") && text.contains("snub-pair-z"),
@@ -580,7 +550,7 @@ fn prose_citations_print_the_result_and_unknown_ones_are_errors_at_their_line() 
         .unwrap()
         .clone();
     let printed = gum_726_farad(c["value"].as_f64().unwrap(), c["U"].as_f64().unwrap());
-    let pdf = squash(&pdf_text(&dir.path().join("cite.pdf")));
+    let pdf = squash(&pdf_text_file(&dir.path().join("cite.pdf")));
     assert!(
         pdf.contains(&format!("OPEN{}SHUT", squash(&printed))),
         "citation not printed as {printed}: {}",

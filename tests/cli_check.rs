@@ -1,15 +1,10 @@
 //! `check` says what matters: every warning with its file:line:column, notes with `-v`, one
 //! line per verdict, and `--strict` exits 1 on a record with reservations.
 
-use std::path::PathBuf;
-use std::process::{Command, Output};
+mod common;
 
-fn run(args: &[&str]) -> Output {
-    Command::new(env!("CARGO_BIN_EXE_benchrec"))
-        .args(args)
-        .output()
-        .expect("benchrec runs")
-}
+use common::run;
+use std::path::PathBuf;
 
 fn demo(name: &str) -> String {
     PathBuf::from(env!("CARGO_MANIFEST_DIR"))

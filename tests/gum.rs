@@ -4,79 +4,16 @@
 use benchrec::diag::Span;
 use benchrec::networks::{self, BlockResult};
 use benchrec::notebook::*;
-use benchrec::quantity::Unit;
 use benchrec::uncertainty::coverage_factor;
-use std::collections::BTreeMap;
 
-fn front() -> FrontMatter {
-    FrontMatter {
-        record: "GUM-H2".into(),
-        title: "Annex H.2".into(),
-        date: chrono::NaiveDate::from_ymd_opt(2026, 5, 2).expect("valid date"),
-        operator: "test".into(),
-        lab: None,
-        project: None,
-        lot: None,
-        environment: None,
-        coverage: 0.9545,
-        decision: Decision::Guarded,
-        instruments: BTreeMap::new(),
-        parts: BTreeMap::new(),
-        template: None,
-        signoff: None,
-    }
-}
-
-fn readings(network: Network, cols: &[(&str, Unit)], rows: &[[f64; 3]]) -> ReadingsBlock {
-    let columns = cols
-        .iter()
-        .map(|(s, u)| Column {
-            symbol: s.to_string(),
-            unit: *u,
-            heading: format!("{s}/{}", u.symbol()),
-            span: Span::default(),
-        })
-        .collect();
-    let rows = rows
-        .iter()
-        .enumerate()
-        .map(|(k, r)| Row {
-            cells: r
-                .iter()
-                .enumerate()
-                .map(|(j, v)| Cell {
-                    value: *v,
-                    text: format!("{v}"),
-                    span: Span::new(k * 30 + j * 10, k * 30 + j * 10 + 5),
-                })
-                .collect(),
-            span: Span::new(k * 30, k * 30 + 29),
-        })
-        .collect();
-    ReadingsBlock {
-        id: "h2".into(),
-        id_span: Span::default(),
-        network,
-        parts: vec![],
-        meter: None,
-        phase: None,
-        counter: None,
-        note: None,
-        source: None,
-        columns,
-        rows,
-        span: Span::new(0, 50),
-        body: String::new(),
-    }
-}
-
-fn notebook(b: ReadingsBlock) -> Notebook {
-    Notebook {
-        source: String::new(),
-        front: front(),
-        front_span: Span::default(),
-        items: vec![Item::Readings(b)],
-    }
+/// A notebook with one readings block of `network`, built from its text by the parser.
+fn notebook_of(network: Network, table: &str) -> Notebook {
+    let src = format!(
+        "---\nrecord: GUM-H2\ntitle: Annex H.2\ndate: 2026-05-02\noperator: test\n---\n\n\
+         ```readings\nid: h2\nnetwork: {}\n---\n{table}```\n",
+        network.name()
+    );
+    parse(&src).unwrap_or_else(|d| panic!("the fixture parses: {d:?}"))
 }
 
 fn h2_block() -> BlockResult {
@@ -88,13 +25,11 @@ fn h2_block() -> BlockResult {
         [4.990, 19.685, 1.0428],
         [4.999, 19.678, 1.0433],
     ];
-    let si: Vec<[f64; 3]> = sets.iter().map(|s| [s[0], s[1] * 1e-3, s[2]]).collect();
-    let b = readings(
-        Network::Z,
-        &[("V", Unit::V), ("I", Unit::A), ("phi", Unit::Rad)],
-        &si,
-    );
-    let mut red = networks::reduce(&notebook(b)).expect("H.2 reduces");
+    let mut table = String::from("V/V I/mA phi/rad\n");
+    for [v, i, phi] in sets {
+        table.push_str(&format!("{v} {i} {phi}\n"));
+    }
+    let mut red = networks::reduce(&notebook_of(Network::Z, &table)).expect("H.2 reduces");
     red.blocks.remove(0)
 }
 
@@ -181,26 +116,29 @@ fn gum_h2_resistance_reactance() {
 // Physically impossible readings (zero current) are a diagnostic at the cell, never NaN.
 #[test]
 fn zero_current_is_a_diagnostic() {
-    let b = readings(
-        Network::Z,
-        &[("V", Unit::V), ("I", Unit::A), ("phi", Unit::Rad)],
-        &[[1.0, 0.0, 0.3]],
-    );
-    let e = networks::reduce(&notebook(b)).expect_err("I = 0 cannot be reduced");
+    let nb = notebook_of(Network::Z, "V/V I/A phi/rad\n1.0 0.000 0.3\n");
+    let e = networks::reduce(&nb).expect_err("I = 0 cannot be reduced");
     assert!(e[0].message.starts_with("I must be positive"));
-    assert_eq!(e[0].span, Span::new(10, 15));
+    let at = nb.source.find("0.000").unwrap();
+    assert_eq!(e[0].span, Span::new(at, at + 5));
 }
 
-// Diagnostics about a block's network point at the `network:` value (FORMAT.md: errors name
-// line and column).
+// The parser keeps where the `network:` value sits, so diagnostics about a block's network
+// point at it (FORMAT.md: errors name line and column).
 #[test]
 fn network_span_points_at_the_value() {
-    let src = "# t\n\n```readings\nid: a\nnetwork:  RC   # series\n---\nf/Hz VR/V\n```\n";
-    let mut b = readings(Network::RC, &[("f", Unit::Hz)], &[]);
-    b.span = Span::new(5, src.len());
-    let mut nb = notebook(b.clone());
-    nb.source = src.to_string();
-    let ctx = networks::Context::new(&nb);
-    let s = ctx.network_span(&b);
-    assert_eq!(&src[s.start..s.end], "RC");
+    let src = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/demo/snubber-caps.md"))
+        .unwrap();
+    let nb = parse(&src).expect("the demo parses");
+    let mut n = 0;
+    for item in &nb.items {
+        if let Item::Readings(b) = item {
+            let s = b.network_span;
+            assert_eq!(&src[s.start..s.end], b.network.name(), "block {}", b.id);
+            let line_start = src[..s.start].rfind('\n').map_or(0, |i| i + 1);
+            assert!(src[line_start..s.start].trim_start().starts_with("network"));
+            n += 1;
+        }
+    }
+    assert!(n > 0);
 }

@@ -670,7 +670,7 @@ fn happy_path_notebook() {
     assert!(prose[0].contains("print(\"not a readings block\")") && prose[0].contains("| 1 | 2 |"));
     assert!(prose[1].contains("Between the blocks.") && prose[2].contains("The end."));
     for it in &n.items {
-        if let Item::Prose { text, span } = it {
+        if let Item::Prose { text, span, .. } = it {
             assert_eq!(
                 &n.source[span.start..span.end],
                 text.as_str(),

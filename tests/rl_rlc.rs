@@ -91,6 +91,7 @@ fn block(network: Network, cols: &[(&str, Unit)], rows: &[Vec<f64>]) -> Readings
         id: "sweep-1".into(),
         id_span: Span::default(),
         network,
+        network_span: Span::new(0, 0),
         parts: Vec::new(),
         meter: Some(named("dmm")),
         phase: None,

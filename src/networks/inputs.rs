@@ -30,6 +30,7 @@ use crate::diag::{Diagnostic, Span};
 use crate::notebook::{
     Accuracy, Column, Distribution, Instrument, Named, PartKind, ReadingsBlock, Tolerance,
 };
+use crate::print::{hz, plain};
 use crate::quantity::Unit;
 use crate::uncertainty::{dist_of, type_a, type_a_correlation, type_b, Dist, Input, Model};
 use std::collections::BTreeMap;
@@ -165,37 +166,6 @@ pub fn instrument_slot<'b>(block: &'b ReadingsBlock, symbol: &str) -> Option<&'b
 }
 
 const VOLTAGES: [&str; 5] = ["Vs", "VR", "VC", "VL", "V"];
-
-/// Frequency as written in budget names: `1 kHz`, `159.155 Hz`.
-pub fn fmt_hz(f: f64) -> String {
-    let (v, p) = if f.abs() >= 1e6 {
-        (f / 1e6, "MHz")
-    } else if f.abs() >= 1e3 {
-        (f / 1e3, "kHz")
-    } else {
-        (f, "Hz")
-    };
-    format!("{} {p}", fmt_sig(v, 6))
-}
-
-/// `v` to `sig` significant digits, trailing zeros trimmed.
-pub fn fmt_sig(v: f64, sig: i32) -> String {
-    // The last line of defence for flag text: callers guard their numbers at the source.
-    if !v.is_finite() {
-        return "(not a finite number)".to_string();
-    }
-    if v == 0.0 {
-        return "0".to_string();
-    }
-    let mag = v.abs().log10().floor() as i32;
-    let dec = (sig - 1 - mag).max(0) as usize;
-    let s = format!("{v:.dec$}");
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
-}
 
 fn unit_ok(q: &crate::quantity::Quantity, unit: Unit) -> bool {
     q.unit == unit
@@ -437,9 +407,9 @@ impl BlockInputs {
                             span: Some(row.span),
                             message: format!(
                                 "reading at {} is above the bandwidth of {} ({})",
-                                fmt_hz(cell.value),
+                                hz(cell.value),
                                 n.name,
-                                fmt_hz(bw)
+                                hz(bw)
                             ),
                         });
                     }
@@ -552,7 +522,7 @@ impl BlockInputs {
         terms: &TypeBTerms,
     ) -> Vec<Option<usize>> {
         let s = c.symbol.as_str();
-        let gname = |g: &Group| g.f.map(|f| format!("@{}", fmt_hz(f))).unwrap_or_default();
+        let gname = |g: &Group| g.f.map(|f| format!("@{}", hz(f))).unwrap_or_default();
         let mut per_group = Vec::with_capacity(self.groups.len());
         let mut idx_per_group = Vec::with_capacity(self.groups.len());
         for (gi, g) in self.groups.iter().enumerate() {
@@ -684,11 +654,11 @@ impl BlockInputs {
                         span: Some(cell.span),
                         message: format!(
                             "Vs = {} V departs from the stated source level {} V by more than the meter's limit (±{} V): the voltages at {} are normalised to {} V",
-                            fmt_sig(cell.value, 6),
-                            fmt_sig(level, 6),
-                            fmt_sig(lim, 3),
-                            g.f.map(fmt_hz).unwrap_or_else(|| "this block".into()),
-                            fmt_sig(level, 6)
+                            plain(cell.value, 6),
+                            plain(level, 6),
+                            plain(lim, 3),
+                            g.f.map(hz).unwrap_or_else(|| "this block".into()),
+                            plain(level, 6)
                         ),
                     });
                     if let Some(n) = self.normalise.get_mut(gi) {
@@ -1011,6 +981,7 @@ pub(crate) mod testutil {
             id: "b1".into(),
             id_span: Span::default(),
             network,
+            network_span: Span::new(0, 0),
             parts: Vec::new(),
             meter: None,
             phase: None,
@@ -1144,8 +1115,8 @@ mod tests {
             .collect();
         assert_eq!(counts.len(), 2);
         assert!((counts[0].u - 2e-3 / 3f64.sqrt()).abs() < 1e-15);
-        assert_eq!(fmt_hz(1000.0), "1 kHz");
-        assert_eq!(fmt_hz(159.1549), "159.155 Hz");
+        assert_eq!(hz(1000.0), "1 kHz");
+        assert_eq!(hz(159.1549), "159.155 Hz");
     }
 
     // FORMAT.md flags: bandwidth exceeded (per row) and calibration overdue (per instrument).

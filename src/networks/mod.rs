@@ -4,6 +4,7 @@
 //! checks, judged results, figure and `reduce`), and its module's name in the list below.
 
 pub mod inputs;
+pub mod outputs;
 
 use crate::diag::{Diagnostic, Span};
 use crate::notebook::{Instrument, Item, Network, Notebook, Part, PartKind, ReadingsBlock};
@@ -164,34 +165,6 @@ impl<'a> Context<'a> {
             parts: &nb.front.parts,
         }
     }
-
-    /// Span of the `network:` value in the block's header, else the whole block.
-    pub fn network_span(&self, block: &ReadingsBlock) -> Span {
-        let (s, e) = (block.span.start, block.span.end.min(self.source.len()));
-        let Some(text) = self.source.get(s..e) else {
-            return block.span;
-        };
-        let mut off = 0;
-        for line in text.split_inclusive('\n') {
-            let t = line.trim_start();
-            if let Some(rest) = t.strip_prefix("network") {
-                if let Some(v) = rest.trim_start().strip_prefix(':') {
-                    let val = v.split('#').next().unwrap_or("").trim();
-                    if !val.is_empty() {
-                        if let Some(p) = line.find(val) {
-                            let a = s + off + p;
-                            return Span::new(a, a + val.len());
-                        }
-                    }
-                }
-            }
-            if t.trim_end() == "---" {
-                break;
-            }
-            off += line.len();
-        }
-        block.span
-    }
 }
 
 /// Reduces every readings block of the notebook, in order. All blocks are tried; the
@@ -276,7 +249,7 @@ pub fn fence(b: &mut BlockResult) {
         })
     };
     let label = |r: &NamedResult| match r.f {
-        Some(f) => format!("{} at {}", r.name, inputs::fmt_hz(f)),
+        Some(f) => format!("{} at {}", r.name, crate::print::hz(f)),
         None => format!("{} (block)", r.name),
     };
     for list in [&mut b.rows, &mut b.results] {

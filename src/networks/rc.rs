@@ -6,13 +6,15 @@
 //! Kirchhoff residual Vs − √(VR² + VC²). Block C: the mean of the per-frequency C, from the
 //! same propagation so shared gains and R stay correlated.
 
-use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::inputs::{BlockInputs, Spec};
+use super::outputs::{Out, Outputs};
 use super::{
     check_positive, AtBlock, BlockResult, Context, Descriptor, Flag, NamedResult, PlotData,
     PlotKind,
 };
 use crate::diag::Diagnostic;
 use crate::notebook::{PartKind, ReadingsBlock};
+use crate::print::{hz, plain};
 use crate::quantity::Unit;
 use crate::uncertainty::{propagate_sparse, Measured};
 use std::f64::consts::PI;
@@ -56,58 +58,45 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let has_vs = bi.has("Vs");
     let has_phase = bi.has("shift") && bi.has("period");
 
-    // Output layout: per group [I, XC, C, phase, (phase_measured), (residual)]; the block C
-    // (mean over groups) is then a linear combination of the groups' C.
-    let mut names: Vec<(&str, Unit)> = vec![
-        ("I", Unit::A),
-        ("XC", Unit::Ohm),
-        ("C", Unit::F),
-        ("phase", Unit::Rad),
-    ];
-    if has_phase {
-        names.push(("phase_measured", Unit::Rad));
-    }
-    if has_vs {
-        names.push(("residual", Unit::V));
-    }
-    let per = names.len();
+    // Per group I, XC, C, phase (and the measured phase, the Kirchhoff residual when read);
+    // the block C (mean over groups) is a linear combination of the groups' C.
     let ng = bi.groups.len();
-    let model = |x: &[f64]| -> Vec<f64> {
-        let mut y = Vec::with_capacity(ng * per);
-        let r = bi.r(x);
-        for g in 0..ng {
-            let vr = bi.voltage("VR", g, x);
-            let vc = bi.voltage("VC", g, x);
-            let w = 2.0 * PI * bi.f(g, x);
-            let i = vr / r;
-            let c = i / (w * vc);
-            y.push(i);
-            y.push(vc / i);
-            y.push(c);
-            y.push((vc / vr).atan());
-            if has_phase {
-                y.push(2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x));
-            }
-            if has_vs {
-                y.push(bi.voltage("Vs", g, x) - vr.hypot(vc));
-            }
+    let mut outs = Outputs::default();
+    for g in 0..ng {
+        outs.row(g, "I", Unit::A);
+        outs.row(g, "XC", Unit::Ohm);
+        outs.row(g, "C", Unit::F);
+        outs.row(g, "phase", Unit::Rad);
+        if has_phase {
+            outs.row(g, "phase_measured", Unit::Rad);
         }
-        y
-    };
+        if has_vs {
+            outs.row(g, "residual", Unit::V);
+        }
+    }
+    let model = |x: &[f64]| outs.eval(|g, n| row_value(&bi, x, g, n), |_, _| f64::NAN);
     // Each group's outputs read that group's inputs and the shared ones only.
-    let pattern: Vec<Vec<usize>> = (0..ng)
-        .flat_map(|g| std::iter::repeat_n(bi.group_inputs(g), per))
+    let pattern: Vec<Vec<usize>> = (0..outs.len())
+        .map(|k| {
+            outs.group_of(k)
+                .map(|g| bi.group_inputs(g))
+                .unwrap_or_default()
+        })
         .collect();
     let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     // Block C = mean of the groups' C.
-    let w: Vec<(usize, f64)> = (0..ng).map(|g| (g * per + 2, 1.0 / ng as f64)).collect();
+    let w: Vec<(usize, f64)> = (0..ng)
+        .filter_map(|g| outs.index(Out::Row(g, "C")))
+        .map(|k| (k, 1.0 / ng as f64))
+        .collect();
     let block_c = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
     // Do the frequencies agree on C? The same χ² test as the RL block means.
     let idx: Vec<usize> = w.iter().map(|(i, _)| *i).collect();
     let xs: Vec<f64> = idx.iter().map(|&i| p.values[i]).collect();
     let cov = |a: usize, b: usize| p.cov(idx[a], idx[b]);
     flags.extend(super::rl::consistency_flag("C", &xs, &cov, block.span));
-    let (rows, plot) = per_frequency(&bi, &p.results, &names, &mut flags);
+    let rows = outs.rows(&p.results, |g| bi.groups.get(g).and_then(|gr| gr.f));
+    let plot = per_frequency(&bi, &outs, &p.results, has_phase, &mut flags);
     let mut results = Vec::new();
     results.push(NamedResult {
         name: "C".into(),
@@ -151,8 +140,8 @@ fn reading_flags(block: &ReadingsBlock, bi: &BlockInputs, flags: &mut Vec<Flag>)
                         span: Some(cell.span),
                         message: format!(
                             "{name} = {} V exceeds Vs = {} V, impossible in a series RC: check the readings",
-                            fmt_sig(cell.value, 6),
-                            fmt_sig(s.value, 6)
+                            plain(cell.value, 6),
+                            plain(s.value, 6)
                         ),
                     });
                 }
@@ -161,72 +150,86 @@ fn reading_flags(block: &ReadingsBlock, bi: &BlockInputs, flags: &mut Vec<Flag>)
     }
 }
 
-/// The per-frequency results (`names` per group, in the model's order), the plot series, and
-/// the flags of the measured phase and the Kirchhoff check.
+fn g_of(o: Out) -> usize {
+    match o {
+        Out::Row(g, _) => g,
+        Out::Block(_) => usize::MAX,
+    }
+}
+
+/// One per-frequency output of group `g`, by name.
+fn row_value(bi: &BlockInputs, x: &[f64], g: usize, name: &str) -> f64 {
+    let vr = bi.voltage("VR", g, x);
+    let vc = bi.voltage("VC", g, x);
+    let i = vr / bi.r(x);
+    match name {
+        "I" => i,
+        "XC" => vc / i,
+        "C" => i / (2.0 * PI * bi.f(g, x) * vc),
+        "phase" => (vc / vr).atan(),
+        "phase_measured" => 2.0 * PI * bi.value("shift", g, x) / bi.value("period", g, x),
+        "residual" => bi.voltage("Vs", g, x) - vr.hypot(vc),
+        _ => f64::NAN,
+    }
+}
+
+/// The plot series of the per-frequency results, and the flags of the measured phase and the
+/// Kirchhoff check.
 fn per_frequency(
     bi: &BlockInputs,
+    outs: &Outputs,
     results: &[Measured],
-    names: &[(&str, Unit)],
+    has_phase: bool,
     flags: &mut Vec<Flag>,
-) -> (Vec<NamedResult>, PlotData) {
-    let per = names.len();
-    let has_phase = names.iter().any(|(n, _)| *n == "phase_measured");
+) -> PlotData {
     let x0 = bi.estimates();
-    let mut rows = Vec::new();
     let mut plot = PlotData::default();
     let mut s_xc = Vec::new();
     let mut s_c = Vec::new();
     let mut s_ph = Vec::new();
     let mut s_pm = Vec::new();
-    for (g, grp) in bi.groups.iter().enumerate() {
+    for (k, o, _) in outs.iter() {
+        let (Out::Row(g, name), Some(m), Some(grp)) = (o, results.get(k), bi.groups.get(g_of(o)))
+        else {
+            continue;
+        };
         let f = grp.f.unwrap_or(f64::NAN);
-        for (k, (name, unit)) in names.iter().enumerate() {
-            let Some(m) = results.get(g * per + k) else {
-                continue;
-            };
-            let pt = (f, m.value, m.u);
-            match *name {
-                "XC" => s_xc.push(pt),
-                "C" => s_c.push(pt),
-                "phase" => s_ph.push(pt),
-                "phase_measured" => {
-                    s_pm.push(pt);
-                    if m.value < -m.expanded || m.value > PI / 2.0 + m.expanded {
-                        flags.push(Flag {
+        let pt = (f, m.value, m.u);
+        match name {
+            "XC" => s_xc.push(pt),
+            "C" => s_c.push(pt),
+            "phase" => s_ph.push(pt),
+            "phase_measured" => {
+                s_pm.push(pt);
+                if m.value < -m.expanded || m.value > PI / 2.0 + m.expanded {
+                    flags.push(Flag {
                             warn: true,
                             span: Some(grp.span),
                             message: format!(
-                                "measured phase at {} is {} rad, outside 0 to π/2 for a series RC: check the trace polarity",
-                                fmt_hz(f),
-                                fmt_sig(m.value, 4)
+                                "measured phase at {} is {}, outside 0° to 90° for a series RC: check the trace polarity",
+                                hz(f),
+                                crate::print::quantity(m.value, crate::quantity::Unit::Rad)
                             ),
                         });
-                    }
                 }
-                "residual" => {
-                    // Rounding of the square root alone is not a failed check.
-                    let vs = bi.voltage("Vs", g, &x0).abs();
-                    if m.value.abs() > m.expanded + 1e-9 * vs {
-                        flags.push(Flag {
-                            warn: true,
-                            span: Some(grp.span),
-                            message: format!(
-                                "Kirchhoff check at {}: Vs − √(VR² + VC²) = {} V exceeds its expanded uncertainty {} V",
-                                fmt_hz(f),
-                                fmt_sig(m.value, 3),
-                                fmt_sig(m.expanded, 2)
-                            ),
-                        });
-                    }
-                }
-                _ => {}
             }
-            rows.push(NamedResult {
-                name: name.to_string(),
-                f: grp.f,
-                unit: *unit,
-                m: m.clone(),
-            });
+            "residual" => {
+                // Rounding of the square root alone is not a failed check.
+                let vs = bi.voltage("Vs", g, &x0).abs();
+                if m.value.abs() > m.expanded + 1e-9 * vs {
+                    flags.push(Flag {
+                            warn: true,
+                            span: Some(grp.span),
+                            message: format!(
+                                "Kirchhoff check at {}: Vs − √(VR² + VC²) = {} exceeds its expanded uncertainty {}",
+                                hz(f),
+                                crate::print::quantity_sig(m.value, crate::quantity::Unit::V, 3),
+                                crate::print::quantity_sig(m.expanded, crate::quantity::Unit::V, 2)
+                            ),
+                        });
+                }
+            }
+            _ => {}
         }
     }
     plot.series.push(("XC".into(), s_xc));
@@ -235,7 +238,7 @@ fn per_frequency(
     if has_phase {
         plot.series.push(("phase_measured".into(), s_pm));
     }
-    (rows, plot)
+    plot
 }
 
 #[cfg(test)]
@@ -529,5 +532,106 @@ mod tests {
             .iter()
             .any(|l| l.input == "VR@800 Hz" && l.kind == crate::uncertainty::EvalType::A));
         assert!(c.budget.iter().any(|l| l.input == "R1"));
+    }
+
+    /// The 3-4-5 triangle (R = 30 Ω, 100 V, VR = 60 V, VC = 80 V, 50 Hz; see
+    /// `textbook_345_triangle`) read on a 0.5 % + 3 counts meter, with a trace shift of
+    /// `shift` divisions on a period of 10, and the source read as `vs`.
+    fn triangle_with_meter(vs: f64, shift: f64) -> BlockResult {
+        let mut env = Env::new();
+        env.parts.insert("R1".into(), resistor("R1", 30.0, None));
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.005,
+                    counts: 3.0,
+                }),
+                Some(Quantity {
+                    value: 0.01,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        let mut b = block(
+            Network::RC,
+            &FULL_RC6,
+            &[vec![50.0, vs, 60.0, 80.0, shift, 10.0]],
+        );
+        b.parts = vec![named("R1")];
+        b.meter = Some(named("dmm"));
+        reduce(&env.ctx(), &b).unwrap()
+    }
+
+    fn warned(out: &BlockResult, start: &str) -> bool {
+        out.flags
+            .iter()
+            .any(|f| f.warn && f.message.contains(start))
+    }
+
+    // Each plot series holds exactly the per-frequency results of its name: (f, value, u).
+    #[test]
+    fn plot_series_are_the_rows() {
+        let out = triangle_with_meter(100.0, 1.4758);
+        let names: Vec<&str> = out.plot.series.iter().map(|(n, _)| n.as_str()).collect();
+        assert_eq!(names, ["XC", "C", "phase", "phase_measured"]);
+        for (name, pts) in &out.plot.series {
+            let r = find(&out, name, 50.0);
+            assert_eq!(pts, &vec![(50.0, r.m.value, r.m.u)], "series {name}");
+        }
+    }
+
+    // A series RC's current leads by 0° to 90° (common practice): a measured phase outside
+    // that range by more than its U is a warning; one inside, or at 0 within U, is not.
+    #[test]
+    fn measured_phase_outside_a_quadrant_is_a_warning() {
+        // 53.13° is 1.4758 divisions of 10.
+        let inside = triangle_with_meter(100.0, 1.4758);
+        assert!(!warned(&inside, "outside 0° to 90°"));
+        let zero = triangle_with_meter(100.0, 0.0);
+        assert!(!warned(&zero, "outside 0° to 90°"));
+        let negative = triangle_with_meter(100.0, -0.5);
+        assert!(warned(&negative, "measured phase at 50 Hz is −18.00°"));
+        let over = triangle_with_meter(100.0, 3.0);
+        assert!(warned(&over, "measured phase at 50 Hz is 108.0°"));
+        let near = triangle_with_meter(100.0, 2.4);
+        assert!(!warned(&near, "outside 0° to 90°"));
+    }
+
+    // Kirchhoff's voltage law for the phasors: |Vs| = √(VR² + VC²) (common practice).
+    #[test]
+    fn kirchhoff_residual_beyond_u_is_a_warning() {
+        let exact = triangle_with_meter(100.0, 1.4758);
+        assert!(!warned(&exact, "Kirchhoff"));
+        let u = find(&exact, "residual", 50.0).m.expanded;
+        assert!(u > 0.0);
+        // A source reading 0.5 U high stays inside; 3 U high fails the check.
+        assert!(!warned(
+            &triangle_with_meter(100.0 + 0.5 * u, 1.4758),
+            "Kirchhoff"
+        ));
+        let off = triangle_with_meter(100.0 + 3.0 * u, 1.4758);
+        assert!(warned(
+            &off,
+            "Kirchhoff check at 50 Hz: Vs − √(VR² + VC²) = "
+        ));
+        assert!((find(&off, "residual", 50.0).m.value - 3.0 * u).abs() < 1e-9);
+    }
+
+    // |VR| and |VC| are at most |Vs| in a series circuit (common practice).
+    #[test]
+    fn a_part_voltage_above_the_source_is_a_warning() {
+        assert!(!warned(&triangle_with_meter(100.0, 1.4758), "exceeds Vs"));
+        let out = triangle_with_meter(79.0, 1.4758);
+        assert!(warned(&out, "VC = 80 V exceeds Vs = 79 V"));
+        assert!(!warned(&out, "VR = 60 V exceeds"));
+        let out = triangle_with_meter(59.0, 1.4758);
+        assert!(warned(&out, "VR = 60 V exceeds Vs = 59 V"));
+        // Equal is possible (a part with no partner voltage) and not flagged.
+        assert!(!warned(
+            &triangle_with_meter(80.0, 1.4758),
+            "VC = 80 V exceeds"
+        ));
     }
 }

@@ -12,7 +12,8 @@
 //! computed in the same propagation as the rows so shared gains and R stay correlated; their
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
-use super::inputs::{accuracy_limit, fmt_hz, fmt_sig, BlockInputs, Group, Spec};
+use super::inputs::{accuracy_limit, BlockInputs, Group, Spec};
+use super::outputs::{Out, Outputs};
 use super::{
     check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
     PlotData, PlotKind,
@@ -20,6 +21,7 @@ use super::{
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo_on};
 use crate::notebook::{PartKind, ReadingsBlock};
+use crate::print::{hz, plain};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, dist_of, propagate, ratio, relative_u, type_b, Dist, Input, McInterval, Measured,
@@ -119,12 +121,12 @@ pub fn consistency_flag(
         message: if c.consistent {
             format!(
                 "{name}: the {} frequencies agree (χ² = {} ≤ {} at 95 %, ν = {}, Birge ratio {}, {basis})",
-                xs.len(), fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+                xs.len(), plain(c.chi2, 3), plain(c.chi2_95, 3), c.dof, plain(c.birge, 3)
             )
         } else {
             format!(
                 "{name}: the frequencies disagree beyond their uncertainties (χ² = {} > {} at 95 %, ν = {}, Birge ratio {}, {basis}): the weighted mean hides a frequency dependence",
-                fmt_sig(c.chi2, 3), fmt_sig(c.chi2_95, 3), c.dof, fmt_sig(c.birge, 3)
+                plain(c.chi2, 3), plain(c.chi2_95, 3), c.dof, plain(c.birge, 3)
             )
         },
     })
@@ -198,16 +200,6 @@ pub fn consistency(x: &[f64], cov: &[Vec<f64>]) -> Option<Consistency> {
         }
     };
     finish_consistency(chi2, n, generalised)
-}
-
-/// Stable 64-bit seed from a block id (FNV-1a), so Monte Carlo output is reproducible.
-pub fn seed_of(id: &str, salt: u64) -> u64 {
-    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
-    for b in id.bytes().chain(salt.to_le_bytes()) {
-        h ^= b as u64;
-        h = h.wrapping_mul(0x0100_0000_01b3);
-    }
-    h
 }
 
 /// The coil's winding resistance as an input, if the block's inductor has a `dcr`.
@@ -290,21 +282,21 @@ fn open_triangle(c: f64, bi: &BlockInputs, g: usize, x: &[f64]) -> Option<String
         bi.voltage("VR", g, x),
         bi.voltage("VL", g, x),
     );
-    let v = |x: f64| fmt_sig(x, 6);
+    let v = |x: f64| plain(x, 6);
     if c.abs() > 1.0 + FLAT {
         return Some(if c > 0.0 {
             format!(
                 "Vs = {} V is above VR + VL = {} V (cos θ = {})",
                 v(vs),
                 v(vr + vl),
-                fmt_sig(c, 4)
+                plain(c, 4)
             )
         } else {
             format!(
                 "Vs = {} V is below |VR − VL| = {} V (cos θ = {})",
                 v(vs),
                 v((vr - vl).abs()),
-                fmt_sig(c, 4)
+                plain(c, 4)
             )
         });
     }
@@ -339,19 +331,12 @@ fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<
         span: grp.map(|gr| gr.span),
         message: format!(
             "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
-            f.map(fmt_hz).unwrap_or_default(),
+            f.map(hz).unwrap_or_default(),
             iv.dropped,
             iv.trials + iv.dropped,
             if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
         ),
     })
-}
-
-/// What one output of the block model is.
-#[derive(Debug, Clone, Copy, PartialEq)]
-enum Out {
-    Row(usize, &'static str),
-    Block(&'static str),
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
@@ -416,35 +401,40 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
 
     // Inverse-variance weights (fixed at the row uncertainties) for the block means.
     let weights = block_weights(&layout, &p1.results);
-    let nrow_out = layout.len();
-    let mut full = layout.clone();
+    let mut full = Outputs::default();
+    for o in &layout {
+        if let Out::Row(g, n) = *o {
+            full.row(g, n, unit_of(n));
+        }
+    }
     for (name, _) in &weights {
-        full.push(Out::Block(name));
+        full.block(name, unit_of(name));
     }
-    let has_rac_mean = weights.iter().any(|(n, _)| *n == "Rac");
-    if has_rac_mean && dcr_idx.is_some() {
-        full.push(Out::Block("Rac-dcr"));
+    if weights.iter().any(|(n, _)| *n == "Rac") && dcr_idx.is_some() {
+        full.block("Rac-dcr", Unit::Ohm);
     }
+    // A block mean from the row values `y` (rows come first in `full`, as in `layout`).
+    let mean_of = |name: &str, y: &[f64]| -> f64 {
+        weights
+            .iter()
+            .find(|(n, _)| *n == name)
+            .map(|(_, w)| {
+                w.iter()
+                    .map(|(i, wi)| wi * y.get(*i).copied().unwrap_or(f64::NAN))
+                    .sum()
+            })
+            .unwrap_or(f64::NAN)
+    };
     let full_model = |x: &[f64]| -> Vec<f64> {
-        let rows = rows_model(x);
-        let mut y = rows.clone();
-        let mut rac_mean = f64::NAN;
-        for (name, w) in &weights {
-            let m: f64 = w
-                .iter()
-                .map(|(i, wi)| wi * rows.get(*i).copied().unwrap_or(f64::NAN))
-                .sum();
-            if *name == "Rac" {
-                rac_mean = m;
-            }
-            y.push(m);
-        }
-        if has_rac_mean {
-            if let Some(i) = dcr_idx {
-                y.push(rac_mean - x.get(i).copied().unwrap_or(f64::NAN));
-            }
-        }
-        y
+        full.eval(
+            |g, n| eval_row(&bi, dcr_idx, x, g, n),
+            |name, y| match name {
+                "Rac-dcr" => {
+                    mean_of("Rac", y) - dcr_idx.and_then(|i| x.get(i).copied()).unwrap_or(f64::NAN)
+                }
+                _ => mean_of(name, y),
+            },
+        )
     };
     let p = propagate(
         &Model {
@@ -477,7 +467,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     };
     monte_carlo_rows(&run, &ok.tri, &mut rows, &mut flags);
     let correlations = row_flags(&run, &mut flags);
-    let results = block_results(&run, &full[nrow_out..], &weights, dcr_value, &mut flags);
+    let results = block_results(&run, &full, &weights, dcr_value, &mut flags);
     let plot = plot_of(&rows);
     Ok(BlockResult {
         id: block.id.clone(),
@@ -519,7 +509,7 @@ fn row_checks(
                 span: Some(grp.span),
                 message: format!(
                     "at {}: the three readings close no triangle: {why}: Rac, XL, L and Q cannot be inferred from this row and are left out",
-                    fmt_hz(f),
+                    hz(f),
                 ),
             });
         } else if c < -uc {
@@ -528,8 +518,8 @@ fn row_checks(
                 span: Some(grp.span),
                 message: format!(
                     "at {}: cos θ = {} is negative beyond its uncertainty (a negative coil resistance): the three-voltmeter results of this row are not computed",
-                    fmt_hz(f),
-                    fmt_sig(c, 3)
+                    hz(f),
+                    plain(c, 3)
                 ),
             });
         } else {
@@ -541,8 +531,8 @@ fn row_checks(
                     span: Some(grp.span),
                     message: format!(
                         "at {}: cos θ = {} is zero within its uncertainty: Rac is not resolved{}",
-                        fmt_hz(f),
-                        fmt_sig(c, 3),
+                        hz(f),
+                        plain(c, 3),
                         if q_ok[g] {
                             ""
                         } else {
@@ -555,7 +545,7 @@ fn row_checks(
                 flags.push(Flag {
                     warn: false,
                     span: Some(grp.span),
-                    message: format!("at {}: cos θ is 1 within its uncertainty (XL not resolved); the linear propagation is poor here, see the Monte Carlo interval", fmt_hz(f)),
+                    message: format!("at {}: cos θ is 1 within its uncertainty (XL not resolved); the linear propagation is poor here, see the Monte Carlo interval", hz(f)),
                 });
             }
         }
@@ -571,9 +561,9 @@ fn row_checks(
                     span: Some(grp.span),
                     message: format!(
                         "at {}: VL = {} V is not above the resistive drop I·dcr = {} V: XL_dcr is not computed",
-                        fmt_hz(f),
-                        fmt_sig(vl, 4),
-                        fmt_sig(drop, 4)
+                        hz(f),
+                        plain(vl, 4),
+                        plain(drop, 4)
                     ),
                 });
             }
@@ -727,7 +717,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
             &used,
             &mc_model,
             ctx.coverage,
-            seed_of(&block.id, g as u64),
+            crate::montecarlo::seed_of(&block.id, g as u64),
             None,
         );
         let f = bi.groups.get(g).and_then(|gr| gr.f);
@@ -750,7 +740,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
         if !unvalidated.is_empty() {
             not_validated.push(format!(
                 "{} ({})",
-                f.map(fmt_hz).unwrap_or_default(),
+                f.map(hz).unwrap_or_default(),
                 unvalidated.join(", ")
             ));
         }
@@ -779,13 +769,13 @@ fn row_flags(run: &Run, flags: &mut Vec<Flag>) -> Vec<Correlation> {
             .and_then(|k| p.results.get(k))
     };
     for (g, grp) in bi.groups.iter().enumerate() {
-        let fs = grp.f.map(fmt_hz).unwrap_or_default();
+        let fs = grp.f.map(hz).unwrap_or_default();
         let mut big = Vec::new();
         for n in ["L", "Rac"] {
             // A zero Rac (cos θ = 0) has no relative u; the cos θ flag above says so.
             if let Some(r) = get(g, n).and_then(relative_u) {
                 if r > REL_U_LIMIT {
-                    big.push(format!("{n} ({} %)", fmt_sig(100.0 * r, 2)));
+                    big.push(format!("{n} ({} %)", plain(100.0 * r, 2)));
                 }
             }
         }
@@ -814,8 +804,8 @@ fn row_flags(run: &Run, flags: &mut Vec<Flag>) -> Vec<Correlation> {
                 span: Some(grp.span),
                 message: format!(
                     "at {fs}: {verdict} (u(L)/L = {} % three-voltmeter, {} % with dcr)",
-                    fmt_sig(100.0 * ra, 2),
-                    fmt_sig(100.0 * rb, 2)
+                    plain(100.0 * ra, 2),
+                    plain(100.0 * rb, 2)
                 ),
             });
         }
@@ -844,17 +834,15 @@ fn row_flags(run: &Run, flags: &mut Vec<Flag>) -> Vec<Correlation> {
 /// outputs in the propagation. The Rac − dcr output becomes a flag, not a result.
 fn block_results(
     run: &Run,
-    outs: &[Out],
+    outs: &Outputs,
     weights: &Weights,
     dcr_value: Option<f64>,
     flags: &mut Vec<Flag>,
 ) -> Vec<NamedResult> {
     let (block, p) = (run.block, run.p);
-    let nrow_out = run.layout.len();
     let mut results = Vec::new();
-    for (k, o) in outs.iter().enumerate() {
-        let k = nrow_out + k;
-        let Out::Block(name) = *o else { continue };
+    for (k, o, _) in outs.iter() {
+        let Out::Block(name) = o else { continue };
         let Some(m) = p.results.get(k) else { continue };
         if name == "Rac-dcr" {
             let dcr = dcr_value.unwrap_or(f64::NAN);
@@ -870,12 +858,10 @@ fn block_results(
                 warn: m.value < -m.expanded,
                 span: Some(block.span),
                 message: format!(
-                    "Rac (mean) = {} ohm against dcr = {} ohm: difference {} ± {} ohm (k = {}); {verdict}",
-                    fmt_sig(rac, 4),
-                    fmt_sig(dcr, 4),
-                    fmt_sig(m.value, 3),
-                    fmt_sig(m.expanded, 2),
-                    fmt_sig(m.k, 3)
+                    "Rac (mean) = {} against dcr = {}: difference {}; {verdict}",
+                    crate::print::quantity(rac, Unit::Ohm),
+                    crate::print::quantity(dcr, Unit::Ohm),
+                    crate::print::value_u_k(m.value, m.expanded, m.k, Unit::Ohm)
                 ),
             });
             continue;

@@ -15,7 +15,7 @@
 //! normal (JCGM 101 §6.4.8). That Monte Carlo knows only the fit covariance, not the shapes
 //! of the readings' distributions.
 
-use super::inputs::{fmt_hz, fmt_sig, BlockInputs, Spec};
+use super::inputs::{BlockInputs, Spec};
 use super::{
     check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
     PlotData, PlotKind,
@@ -23,6 +23,7 @@ use super::{
 use crate::diag::Diagnostic;
 use crate::montecarlo::{attach_validation, monte_carlo};
 use crate::notebook::{PartKind, ReadingsBlock};
+use crate::print::{hz, plain};
 use crate::quantity::Unit;
 use crate::uncertainty::{
     correlation, propagate, propagate_sparse, Dist, Input, Model, Propagated,
@@ -747,7 +748,7 @@ fn fit_results(
         &corr,
         &derived_lin,
         ctx.coverage,
-        super::rl::seed_of(&block.id, 0x5eed),
+        crate::montecarlo::seed_of(&block.id, 0x5eed),
         None,
     );
     let mut unvalidated = Vec::new();
@@ -794,9 +795,9 @@ fn fit_results(
         span: Some(block.span),
         message: format!(
             "RLC fit: χ²/ν = {} (ν = {nu}), weights from {weights_note}; the covariance is not scaled by χ²/ν{}",
-            fmt_sig(rc2, 3),
+            plain(rc2, 3),
             if rc2 > limit {
-                format!(": the scatter exceeds the stated uncertainties (95 % limit {}), so the fit uncertainties may be understated by √(χ²/ν) = {}", fmt_sig(limit, 3), fmt_sig(rc2.sqrt(), 3))
+                format!(": the scatter exceeds the stated uncertainties (95 % limit {}), so the fit uncertainties may be understated by √(χ²/ν) = {}", plain(limit, 3), plain(rc2.sqrt(), 3))
             } else {
                 String::new()
             }
@@ -893,11 +894,11 @@ fn prediction(ctx: &Context, block: &ReadingsBlock, bi: &BlockInputs) -> Option<
         warn: false,
         span: Some(block.span),
         message: format!(
-            "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {} ohm)",
-            fmt_hz(f0p),
-            fmt_sig(qp, 3),
+            "the parts predict f0 = {} and Q = {} ({ln} and {cn}, R{} = {})",
+            hz(f0p),
+            plain(qp, 3),
             if dcr.is_some() { " + dcr" } else { "" },
-            fmt_sig(r, 4)
+            crate::print::quantity(r, Unit::Ohm)
         ),
     })
 }

@@ -4,13 +4,14 @@
 //! their correlations; R, X, Z and their correlations come from one propagation. With an `f`
 //! column there is one set per distinct f (per-frequency results); without, one block set.
 
-use super::inputs::{fmt_hz, BlockInputs, Group, Spec};
+use super::inputs::{BlockInputs, Group, Spec};
 use super::{
     check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
     PlotData, PlotKind,
 };
 use crate::diag::Diagnostic;
 use crate::notebook::{PartKind, ReadingsBlock};
+use crate::print::hz;
 use crate::quantity::Unit;
 use crate::uncertainty::{correlation, propagate_sparse, Measured};
 
@@ -42,10 +43,7 @@ fn passive_check(block: &ReadingsBlock, grp: &Group, r: &Measured, flags: &mut V
         let row = block.rows.get(*grp.rows.first()?)?;
         row.cells.get(c)
     });
-    let at = grp
-        .f
-        .map(|f| format!("at {}: ", fmt_hz(f)))
-        .unwrap_or_default();
+    let at = grp.f.map(|f| format!("at {}: ", hz(f))).unwrap_or_default();
     let read = phi.map_or(String::new(), |c| format!(" (φ = {})", c.text));
     let beyond = r.value < -r.expanded;
     flags.push(Flag {

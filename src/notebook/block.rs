@@ -51,12 +51,13 @@ pub(super) fn parse_block(
     }
     let table = parse_table(src, &blines[sep + 1..], d);
     let sep_span = Span::new(sep_line.start, sep_line.end);
-    check_table(&table, header.network, sep_span, d);
+    check_table(&table, header.network.map(|n| n.0), sep_span, d);
     let (id, id_span) = header.id?;
     Some(ReadingsBlock {
         id,
         id_span,
-        network: header.network?,
+        network: header.network?.0,
+        network_span: header.network?.1,
         parts: header.parts,
         meter: header.meter,
         phase: header.phase,
@@ -103,7 +104,7 @@ fn fenced_body(src: &str, r: Span, d: &mut Vec<Diagnostic>) -> Option<(Span, Spa
 #[derive(Default)]
 struct Header {
     id: Option<(String, Span)>,
-    network: Option<Network>,
+    network: Option<(Network, Span)>,
     parts: Vec<Named>,
     meter: Option<Named>,
     phase: Option<Named>,
@@ -156,7 +157,8 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
                     let at = y.value_span(&path);
                     h.network = one_of(s.trim(), &choices, "network", at)
                         .map_err(|dg| ex.err(dg))
-                        .ok();
+                        .ok()
+                        .map(|n| (n, at));
                 }
             }
             "parts" => h.parts = header_parts(cx, &mut ex, val),

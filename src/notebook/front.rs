@@ -499,14 +499,6 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
     Some(ins)
 }
 
-fn part_unit(kind: PartKind) -> Unit {
-    match kind {
-        PartKind::Resistor => Unit::Ohm,
-        PartKind::Capacitor => Unit::F,
-        PartKind::Inductor => Unit::H,
-    }
-}
-
 fn part(
     ex: &mut ValueReader,
     name: &str,
@@ -520,7 +512,7 @@ fn part(
         return None;
     }
     let kind = part_kind(ex, name, span, entries.iter().find(|(k, _)| k == "kind"))?;
-    let unit = part_unit(kind);
+    let unit = kind.unit();
     let mut p = Part {
         name: name.to_string(),
         kind,
@@ -755,7 +747,7 @@ fn tolerance(
                 None
             }
         }
-        Ok(q) if q.unit == part_unit(kind) => {
+        Ok(q) if q.unit == kind.unit() => {
             if q.value > 0.0 {
                 Some(Tolerance::Absolute(q.value))
             } else {
@@ -775,7 +767,7 @@ fn tolerance(
                 )
                 .expected(format!(
                     "a percentage, a letter ({codes}) or a value in {}",
-                    dimension_name(part_unit(kind))
+                    dimension_name(kind.unit())
                 ))
                 .found(format!("`{}`", raw.trim())),
             );

@@ -16,6 +16,7 @@
 
 mod block;
 mod front;
+pub mod prose;
 mod table;
 mod values;
 mod words;
@@ -45,12 +46,22 @@ pub struct Notebook {
     pub items: Vec<Item>,
 }
 
+/// What each run of prose among `items` refers to, in order.
+pub fn prose_refs(items: &[Item]) -> impl Iterator<Item = &prose::ProseRefs> {
+    items.iter().filter_map(|item| match item {
+        Item::Prose { refs, .. } => Some(refs),
+        Item::Readings(_) => None,
+    })
+}
+
 #[derive(Debug, Clone)]
 pub enum Item {
     /// A run of Markdown between readings blocks, verbatim.
     Prose {
         text: String,
         span: Span,
+        /// Its citations, images and paragraph lengths, read once.
+        refs: prose::ProseRefs,
     },
     Readings(ReadingsBlock),
 }
@@ -117,6 +128,18 @@ pub enum PartKind {
     Resistor,
     Capacitor,
     Inductor,
+}
+
+impl PartKind {
+    /// The SI unit of the part's value.
+    pub fn unit(self) -> crate::quantity::Unit {
+        use crate::quantity::Unit;
+        match self {
+            PartKind::Resistor => Unit::Ohm,
+            PartKind::Capacitor => Unit::F,
+            PartKind::Inductor => Unit::H,
+        }
+    }
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -239,6 +262,8 @@ pub struct ReadingsBlock {
     pub id: String,
     pub id_span: Span,
     pub network: Network,
+    /// The `network:` value in the header.
+    pub network_span: Span,
     pub parts: Vec<Named>,
     pub meter: Option<Named>,
     pub phase: Option<Named>,
@@ -513,6 +538,7 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
                                 items.push(Item::Prose {
                                     text: source[prev..r.start].to_string(),
                                     span: Span::new(prev, r.start),
+                                    refs: prose::read(&source[prev..r.start], prev),
                                 });
                             }
                             prev = r.end.max(prev);
@@ -532,6 +558,7 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         items.push(Item::Prose {
             text: source[prev..].to_string(),
             span: Span::new(prev, source.len()),
+            refs: prose::read(&source[prev..], prev),
         });
     }
     if !d.is_empty() {

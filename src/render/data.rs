@@ -10,8 +10,8 @@ use serde_json::{json, Value};
 use crate::judge::{Outcome, Record, SignState};
 use crate::networks::{BlockResult, NamedResult, PlotKind};
 use crate::notebook::{Accuracy, Column, Decision, Item, Part, PartKind, ReadingsBlock, Tolerance};
+use crate::print::{self, dof_text, k_text, sci, sig};
 use crate::quantity::{Quantity, Unit};
-use crate::render::format::{self, dof_text, k_text, sci, sig};
 use crate::render::markup::{self, Context};
 use crate::render::metrics;
 use crate::render::plots;
@@ -28,39 +28,11 @@ pub struct Generated {
     pub attachment: String,
 }
 
-/// Print a fraction as a percentage without trailing zeros: 0.005 → "0.5 %".
-fn percent(f: f64) -> String {
-    format!("{} %", trim(f * 100.0))
-}
-
-fn trim(x: f64) -> String {
-    if !x.is_finite() {
-        return "—".into();
-    }
-    let s = format!("{:.6}", x);
-    let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
-    if s == "-0" {
-        "0".into()
-    } else {
-        s.replace('-', "\u{2212}")
-    }
-}
-
-/// Significant digits without trailing zeros: 1500 → "1500", 0.25 → "0.25".
-fn trim_sig(x: f64, digits: usize) -> String {
-    let s = sig(x, digits);
-    if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    }
-}
-
 fn q(qty: &Quantity) -> String {
     if qty.unit == Unit::Percent {
-        return percent(qty.value);
+        return print::percent(qty.value);
     }
-    format::quantity(qty.value, qty.unit)
+    print::quantity(qty.value, qty.unit)
 }
 
 /// Symbol of a result or column as (base, subscript, italic base), ISO 80000-1 style:
@@ -127,7 +99,7 @@ fn heading_unit(col: &Column) -> String {
     };
     match written {
         Some(u) if !u.is_empty() => print_unit(&u),
-        _ => format::unit_text(col.unit).to_string(),
+        _ => print::unit_text(col.unit).to_string(),
     }
 }
 
@@ -143,11 +115,11 @@ fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::Na
     let accuracy = match &i.accuracy {
         Some(Accuracy::Relative { fraction, counts }) if *counts > 0.0 => Some(format!(
             "±({} of reading + {} counts)",
-            percent(*fraction),
-            trim(*counts)
+            print::percent(*fraction),
+            print::trim(*counts)
         )),
         Some(Accuracy::Relative { fraction, .. }) => {
-            Some(format!("±{} of reading", percent(*fraction)))
+            Some(format!("±{} of reading", print::percent(*fraction)))
         }
         Some(Accuracy::Absolute(a)) => Some(format!("±{}", q(a))),
         None => None,
@@ -162,7 +134,7 @@ fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::Na
             crate::notebook::Distribution::Normal { k } => format!("normal, k = {}", k_text(k)),
         },
         "resolution": i.resolution.as_ref().map(q),
-        "bandwidth": i.bandwidth.map(|b| format::quantity(b, Unit::Hz)),
+        "bandwidth": i.bandwidth.map(|b| print::quantity(b, Unit::Hz)),
         "reading": i.reading.as_ref().map(q),
         "calibrated": i.calibrated.map(|d| d.to_string()),
         "due": i.due.map(|d| d.to_string()),
@@ -170,24 +142,16 @@ fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::Na
     })
 }
 
-fn part_unit(kind: PartKind) -> Unit {
-    match kind {
-        PartKind::Resistor => Unit::Ohm,
-        PartKind::Capacitor => Unit::F,
-        PartKind::Inductor => Unit::H,
-    }
-}
-
 fn tolerance_text(t: &Tolerance, unit: Unit) -> String {
     match t {
-        Tolerance::Relative(f) => format!("±{}", percent(*f)),
-        Tolerance::Absolute(a) => format!("±{}", format::quantity(*a, unit)),
-        Tolerance::Code(c, f) => format!("{c} (±{})", percent(*f)),
+        Tolerance::Relative(f) => format!("±{}", print::percent(*f)),
+        Tolerance::Absolute(a) => format!("±{}", print::quantity(*a, unit)),
+        Tolerance::Code(c, f) => format!("{c} (±{})", print::percent(*f)),
     }
 }
 
 fn part_json(name: &str, p: &Part) -> Value {
-    let unit = part_unit(p.kind);
+    let unit = p.kind.unit();
     json!({
         "name": name,
         "kind": match p.kind {
@@ -304,7 +268,7 @@ fn largest_contributions(m: &crate::uncertainty::Measured) -> String {
 /// A block result with its budget.
 fn result_json(r: &NamedResult) -> Value {
     let m = &r.m;
-    let (div, unit) = format::scale_for(r.unit, m.value.abs().max(m.expanded.abs()));
+    let (div, unit) = print::scale_for(r.unit, m.value.abs().max(m.expanded.abs()));
     let with_unit = |x: String| {
         if unit.is_empty() {
             x
@@ -314,7 +278,7 @@ fn result_json(r: &NamedResult) -> Value {
             format!("{x} {unit}")
         }
     };
-    let (v, e) = format::value_and_u(m.value / div, m.expanded / div);
+    let (v, e) = print::value_and_u(m.value / div, m.expanded / div);
     // A long budget prints its largest contributions (in budget order) and sums the rest.
     let mut keep: Vec<usize> = (0..m.budget.len()).collect();
     let mut omitted = Value::Null;
@@ -393,7 +357,7 @@ fn result_json(r: &NamedResult) -> Value {
         "value": v,
         "U": e,
         "k": k_text(m.k),
-        "text": format::value_u_k(m.value, m.expanded, m.k, r.unit),
+        "text": print::value_u_k(m.value, m.expanded, m.k, r.unit),
         "u": with_unit(sig(m.u / div, 2)),
         "dof": dof_text(m.dof),
         "budget": lines,
@@ -413,8 +377,8 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         .map(|r| {
             json!({
                 "name": r.name,
-                "f": r.f.map(|f| format::quantity(f, Unit::Hz)),
-                "text": format::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit),
+                "f": r.f.map(|f| print::quantity(f, Unit::Hz)),
+                "text": print::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit),
                 "k": k_text(r.m.k),
             })
         })
@@ -436,7 +400,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         .copied()
         .filter(|f| *f > 0.0)
         .fold(f64::INFINITY, f64::min);
-    let (fdiv, fprefix) = format::prefix_for(if fmin.is_finite() { fmin } else { 1.0 });
+    let (fdiv, fprefix) = print::prefix_for(if fmin.is_finite() { fmin } else { 1.0 });
     let mut columns = Vec::new();
     let mut scales = Vec::new();
     for name in &names {
@@ -449,7 +413,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
             .collect();
         mags.sort_by(f64::total_cmp);
         let median = mags.get(mags.len() / 2).copied().unwrap_or(0.0);
-        let (div, utext) = format::scale_for(unit, median);
+        let (div, utext) = print::scale_for(unit, median);
         let ks: Vec<String> = of.iter().map(|r| k_text(r.m.k)).collect();
         let common_k = ks.first().filter(|k0| ks.iter().all(|k| k == *k0)).cloned();
         columns.push(
@@ -480,7 +444,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
                         block.rows.iter().find(|r| r.name == *name && r.f.is_some_and(|g| same_f(g, f)))
                     }) {
                         Some(r) => {
-                            let (v, e) = format::value_and_u(r.m.value / div, r.m.expanded / div);
+                            let (v, e) = print::value_and_u(r.m.value / div, r.m.expanded / div);
                             let k = if *show_k { Some(k_text(r.m.k)) } else { None };
                             json!({ "text": format!("{v} ± {e}"), "k": k })
                         }
@@ -488,7 +452,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
                     }
                 })
                 .collect();
-            json!({ "f": trim_sig(f / fdiv, 5), "cells": cells })
+            json!({ "f": print::trim_sig(f / fdiv, 5), "cells": cells })
             }
         })
         .collect();
@@ -677,9 +641,9 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
                 "name": v.name,
                 "symbol": symbol_json(&v.name),
                 "part": v.part,
-                "nominal": format::quantity(v.nominal, v.unit),
-                "interval": format::interval(v.low, v.high, v.unit),
-                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "nominal": print::quantity(v.nominal, v.unit),
+                "interval": print::interval(v.low, v.high, v.unit),
+                "value": print::value_u_k(v.value, v.expanded, v.k, v.unit),
                 "outcome": outcome_word(v.outcome),
                 "warned": warned_blocks.contains(v.block.as_str()),
             })
@@ -697,9 +661,9 @@ fn safety_json(record: &Record) -> Vec<Value> {
                 "block": s.block,
                 "part": s.part,
                 "what": s.what,
-                "value": format::quantity(s.value, s.unit),
-                "rating": format::quantity(s.rating, s.unit),
-                "limit": format::quantity(s.limit, s.unit),
+                "value": print::quantity(s.value, s.unit),
+                "rating": print::quantity(s.rating, s.unit),
+                "limit": print::quantity(s.limit, s.unit),
                 "ok": s.ok,
             })
         })
@@ -810,7 +774,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "project": fm.project,
         "lot": fm.lot,
         "environment": fm.environment,
-        "coverage": percent(fm.coverage),
+        "coverage": print::percent(fm.coverage),
         "decision": match fm.decision { Decision::Simple => "simple", Decision::Guarded => "guarded" },
         "decision_text": match fm.decision {
             Decision::Simple => "simple acceptance: a value inside the tolerance interval passes, one outside fails (ILAC-G8, no guard band)",
@@ -827,9 +791,9 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "digest": record.digest,
         "source_digest": record.source_digest,
         "derating": {
-            "resistor_power": percent(record.derating.resistor_power),
-            "capacitor_voltage": percent(record.derating.capacitor_voltage),
-            "inductor_current": percent(record.derating.inductor_current),
+            "resistor_power": print::percent(record.derating.resistor_power),
+            "capacitor_voltage": print::percent(record.derating.capacitor_voltage),
+            "inductor_current": print::percent(record.derating.inductor_current),
         },
         "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
         "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
@@ -1000,7 +964,7 @@ fn readings_json(
         "meter": rb.meter.as_ref().map(|m| m.name.clone()),
         "phase": rb.phase.as_ref().map(|m| m.name.clone()),
         "counter": rb.counter.as_ref().map(|m| m.name.clone()),
-        "source": rb.source.map(|v| format::quantity(v, Unit::V)),
+        "source": rb.source.map(|v| print::quantity(v, Unit::V)),
         "table": { "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths },
         "reduced": block.is_some(),
     });
@@ -1029,8 +993,8 @@ fn readings_json(
         .map(|v| {
             json!({
                 "name": v.name, "symbol": symbol_json(&v.name), "part": v.part,
-                "interval": format::interval(v.low, v.high, v.unit),
-                "value": format::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "interval": print::interval(v.low, v.high, v.unit),
+                "value": print::value_u_k(v.value, v.expanded, v.k, v.unit),
                 "outcome": outcome_word(v.outcome),
             })
         })
@@ -1050,8 +1014,8 @@ fn readings_json(
                     .iter()
                     .map(|c| {
                         json!({
-                            "a": symbol_json(&c.a), "b": symbol_json(&c.b), "r": format::fixed(c.r, 3),
-                            "f": c.f.map(|f| format::quantity(f, Unit::Hz)),
+                            "a": symbol_json(&c.a), "b": symbol_json(&c.b), "r": print::fixed(c.r, 3),
+                            "f": c.f.map(|f| print::quantity(f, Unit::Hz)),
                         })
                     })
                     .collect(),
@@ -1124,8 +1088,8 @@ mod tests {
             ("f".into(), "0,phase".into(), true)
         );
         assert_eq!(symbol_parts("f_low"), ("f".into(), "low".into(), true));
-        assert_eq!(trim_sig(1500.0, 5), "1500");
-        assert_eq!(trim_sig(0.25, 5), "0.25");
+        assert_eq!(print::trim_sig(1500.0, 5), "1500");
+        assert_eq!(print::trim_sig(0.25, 5), "0.25");
     }
 
     #[test]
@@ -1152,7 +1116,7 @@ mod tests {
         assert_eq!(print_unit("uF"), "µF");
         assert_eq!(print_unit("kohm"), "kΩ");
         assert_eq!(print_unit("deg"), "°");
-        assert_eq!(percent(0.005), "0.5 %");
-        assert_eq!(percent(0.9545), "95.45 %");
+        assert_eq!(print::percent(0.005), "0.5 %");
+        assert_eq!(print::percent(0.9545), "95.45 %");
     }
 }

@@ -2,7 +2,6 @@
 //! escaping, plots as SVG, and PDF/A-3b export. No file system access here.
 
 pub mod data;
-pub mod format;
 pub mod labels;
 pub mod markup;
 pub mod metrics;
@@ -339,6 +338,7 @@ pub(crate) mod tests {
             id: "cap-sweep".into(),
             id_span: s,
             network: Network::RC,
+            network_span: Span::new(0, 0),
             parts: vec![
                 Named {
                     name: "R1".into(),
@@ -380,11 +380,14 @@ pub(crate) mod tests {
         items.push(Item::Prose {
             text: prose.to_string(),
             span: s,
+            refs: crate::notebook::prose::read(prose, s.start),
         });
         items.push(Item::Readings(block));
+        let closing = "Closing remark: C1 cited as `=cap-sweep.C`.\n";
         items.push(Item::Prose {
-            text: "Closing remark: C1 cited as `=cap-sweep.C`.\n".into(),
+            text: closing.into(),
             span: s,
+            refs: crate::notebook::prose::read(closing, s.start),
         });
         let mut instruments = BTreeMap::new();
         instruments.insert(

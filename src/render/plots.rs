@@ -7,7 +7,7 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::networks::{BlockResult, PlotData, PlotKind};
-use crate::render::format;
+use crate::print;
 use crate::render::labels::{self, Label};
 
 /// The font typst sets plot text in (embedded by typst-kit).
@@ -269,7 +269,7 @@ fn draw(panels: &[Panel]) -> Result<(String, u32), String> {
         xs.iter().copied().fold(0.0, f64::max),
     );
     let log = xmin.is_finite() && xmin > 0.0 && xmax / xmin > 10.0;
-    let (xdiv, xprefix) = format::prefix_for(xmax);
+    let (xdiv, xprefix) = print::prefix_for(xmax);
     let (x0, x1) = padded(xs.iter().map(|x| x / xdiv), log);
     let xdesc = format!("f / {xprefix}Hz");
 
@@ -302,7 +302,7 @@ fn y_scale(panel: &Panel) -> (f64, String, String) {
         .chain(panel.residuals.iter().map(|t| t.1.abs() * panel.y.factor))
         .fold(0.0, f64::max);
     let (div, prefix) = if panel.y.prefix {
-        format::prefix_for(ys)
+        print::prefix_for(ys)
     } else {
         (1.0, "")
     };
@@ -355,8 +355,8 @@ macro_rules! panel_body {
             .y_label_area_size(70)
             .build_cartesian_2d($xspec, y0..y1)
             .map_err(|e| e.to_string())?;
-        let xfmt = |v: &f64| format::sig(*v, 3);
-        let yfmt = |v: &f64| format::sig(*v, 3);
+        let xfmt = |v: &f64| print::sig(*v, 3);
+        let yfmt = |v: &f64| print::sig(*v, 3);
         let ydesc = if yunit == "1" {
             ysym.clone()
         } else {

@@ -1,5 +1,8 @@
-//! Number formatting for the printed record: SI prefixes, value ± U with the digits of
-//! GUM (JCGM 100:2008) 7.2.6, and the typographic forms of units and symbols.
+//! The one printer of numbers: the record's tables, citations, budgets and flags and the
+//! terminal all print through here. SI prefixes, value ± U with the digits of GUM
+//! (JCGM 100:2008) 7.2.6, the minus sign of ISO 80000-1 (U+2212), angles in degrees, and a
+//! space before % but not before ° (SI Brochure, 9th ed., 5.4.3 and 5.4.7). [`notation`] is
+//! the exception that proves it: it writes the notebook's own input syntax.
 
 use crate::quantity::Unit;
 
@@ -51,6 +54,11 @@ const PREFIXES: [(i32, &str); 9] = [
 
 /// Engineering prefix for a magnitude: returns (divisor, prefix).
 pub fn prefix_for(magnitude: f64) -> (f64, &'static str) {
+    prefix_within(magnitude, 12)
+}
+
+/// As [`prefix_for`], with the largest exponent `top` (the input syntax stops at M).
+fn prefix_within(magnitude: f64, top: i32) -> (f64, &'static str) {
     let m = magnitude.abs();
     if !m.is_finite() || m == 0.0 {
         return (1.0, "");
@@ -58,7 +66,7 @@ pub fn prefix_for(magnitude: f64) -> (f64, &'static str) {
     // Round first so 999.96 does not print as "1000.0 m".
     let e = (m.log10() + 1e-9).floor() as i32;
     let e3 = e.div_euclid(3) * 3;
-    let e3 = e3.clamp(-12, 12);
+    let e3 = e3.clamp(-12, top);
     let p = PREFIXES
         .iter()
         .find(|(x, _)| *x == e3)
@@ -134,7 +142,7 @@ pub fn value_and_u(value: f64, u_exp: f64) -> (String, String) {
     if !u_exp.is_finite() || u_exp <= 0.0 || !value.is_finite() {
         return (sig(value, 5), fixed(u_exp.max(0.0), 0));
     }
-    let ur = crate::quantity::round_sig(u_exp, 2);
+    let ur = round_sig(u_exp, 2);
     let last = ur.log10().floor() as i32 - 1;
     if last >= 0 {
         let p = 10f64.powi(last);
@@ -221,33 +229,166 @@ pub fn dof_text(dof: Option<f64>) -> String {
 
 /// A single quantity with a prefix: `470.0 nF` (4 significant digits).
 pub fn quantity(value: f64, unit: Unit) -> String {
+    quantity_sig(value, unit, 4)
+}
+
+/// A single quantity with a prefix and `digits` significant digits.
+pub fn quantity_sig(value: f64, unit: Unit, digits: usize) -> String {
     let (div, u) = scale_for(unit, value * display_scale(unit));
-    join_unit(sig(value / div, 4), &u)
+    join_unit(sig(value / div, digits), &u)
 }
 
 fn join_unit(number: String, unit: &str) -> String {
     if unit.is_empty() {
         number
-    } else if unit == "°" || unit == "%" {
+    } else if unit == "°" {
         format!("{number}{unit}")
     } else {
         format!("{number} {unit}")
     }
 }
 
-/// `(468.3 ± 2.1) nF (k = 2.00)`: a result as the record prints it.
-pub fn value_u_k(value: f64, expanded: f64, k: f64, unit: Unit) -> String {
-    // The prefix follows the larger of |value| and U: "0 ± 14 mV", not "0 ± 14000 µV".
-    let (div, u) = scale_for(unit, value.abs().max(expanded.abs()));
+/// Print a fraction as a percentage without trailing zeros: 0.005 → "0.5 %".
+pub fn percent(f: f64) -> String {
+    format!("{} %", trim(f * 100.0))
+}
+
+/// Up to six decimals, trailing zeros trimmed, the ISO minus: 0.5, 12, −0.25.
+pub fn trim(x: f64) -> String {
+    if !x.is_finite() {
+        return "—".into();
+    }
+    let s = format!("{:.6}", x);
+    let s = s.trim_end_matches('0').trim_end_matches('.').to_string();
+    if s == "-0" {
+        "0".into()
+    } else {
+        minus(s)
+    }
+}
+
+/// Significant digits without trailing zeros: 1500 → "1500", 0.25 → "0.25".
+pub fn trim_sig(x: f64, digits: usize) -> String {
+    let s = sig(x, digits);
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
+}
+
+/// `(468.3 ± 2.1) nF`: value ± U per GUM 7.2.6 (U to two significant digits, the value to
+/// the same place), the pair bracketed as in GUM 7.2.4 when a unit follows, one prefix chosen
+/// from the larger of |value| and U ("0 ± 14 mV", never "0 ± 14000 µV"). A non-finite value
+/// prints "n/a"; U = 0 prints the value alone to six digits; a U that is not a finite,
+/// non-negative number prints "± n/a".
+pub fn value_u(value: f64, expanded: f64, unit: Unit) -> String {
+    if !value.is_finite() {
+        return "n/a".into();
+    }
+    if !expanded.is_finite() || expanded < 0.0 {
+        return format!("{} ± n/a", quantity(value, unit));
+    }
+    if expanded == 0.0 {
+        return quantity_sig(value, unit, 6);
+    }
+    let (div, u) = scale_for(unit, value.abs().max(expanded) * display_scale(unit));
     let (v, e) = value_and_u(value / div, expanded / div);
-    let body = if u.is_empty() {
+    if u.is_empty() {
         format!("{v} ± {e}")
-    } else if u == "°" || u == "%" {
+    } else if u == "°" {
         format!("({v} ± {e}){u}")
     } else {
         format!("({v} ± {e}) {u}")
+    }
+}
+
+/// `(468.3 ± 2.1) nF (k = 2.00)`: a result as the record prints it.
+pub fn value_u_k(value: f64, expanded: f64, k: f64, unit: Unit) -> String {
+    format!("{} (k = {})", value_u(value, expanded, unit), k_text(k))
+}
+
+/// A number in running text (flags, messages): `sig` significant digits, trailing zeros
+/// trimmed, the ISO minus. Callers guard their numbers; a non-finite one says so.
+pub fn plain(x: f64, digits: usize) -> String {
+    if !x.is_finite() {
+        return "(not a finite number)".into();
+    }
+    trim_sig(x, digits)
+}
+
+/// A frequency in running text and budget names: `1 kHz`, `159.155 Hz`, six digits trimmed.
+pub fn hz(f: f64) -> String {
+    let (v, p) = if f.abs() >= 1e6 {
+        (f / 1e6, "MHz")
+    } else if f.abs() >= 1e3 {
+        (f / 1e3, "kHz")
+    } else {
+        (f, "Hz")
     };
-    format!("{body} (k = {})", k_text(k))
+    format!("{} {p}", plain(v, 6))
+}
+
+/// Rounds to `sig` significant figures (at least 1). Zero and non-finite values pass through.
+pub fn round_sig(x: f64, sig: usize) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    let sig = sig.clamp(1, 17) as i32;
+    let e = x.abs().log10().floor() as i32;
+    let p = sig - 1 - e;
+    let r = if p >= 0 {
+        let m = 10f64.powi(p);
+        (x * m).round() / m
+    } else {
+        let m = 10f64.powi(-p);
+        (x / m).round() * m
+    };
+    if r.is_finite() {
+        r
+    } else {
+        x
+    }
+}
+
+/// A quantity written in the notebook's input syntax (ASCII minus, `rad`, `ohm`, prefixes p
+/// to M), so that [`crate::quantity::parse_quantity`] reads it back: `470 nF`, `-1.5 rad`.
+pub fn notation(value: f64, unit: Unit, digits: usize) -> String {
+    if !value.is_finite() {
+        return "n/a".into();
+    }
+    let digits = digits.clamp(1, 17);
+    let shown = if unit == Unit::Percent {
+        value * 100.0
+    } else {
+        value
+    };
+    let (mut div, mut p) = if unit.takes_prefix() {
+        prefix_within(shown, 6)
+    } else {
+        (1.0, "")
+    };
+    let mut m = round_sig(shown / div, digits);
+    // Rounding may carry into the next prefix (999.96 → 1000 → 1.00 k).
+    if unit.takes_prefix() && m.abs() >= 1000.0 && div < 1e6 {
+        (div, p) = prefix_within(shown.abs().max(div * 1000.0), 6);
+        m = round_sig(shown / div, digits);
+    }
+    let dec = if m == 0.0 {
+        digits - 1
+    } else {
+        (digits as i32 - 1 - m.abs().log10().floor() as i32).max(0) as usize
+    };
+    let num = format!("{m:.dec$}");
+    let num = match num.strip_prefix('-') {
+        Some(r) if r.chars().all(|c| c == '0' || c == '.') => r.to_string(),
+        _ => num,
+    };
+    match unit {
+        Unit::One => num,
+        Unit::Ohm => format!("{num} {p}ohm"),
+        u => format!("{num} {p}{}", u.symbol()),
+    }
 }
 
 /// An interval `[465.3, 474.7] nF` on a common prefix.
@@ -321,5 +462,84 @@ mod tests {
             "(0 ± 14) mV (k = 2.00)"
         );
         assert_eq!(interval(4.653e-7, 4.747e-7, Unit::F), "[465.3, 474.7] nF");
+    }
+
+    fn close(a: f64, b: f64) -> bool {
+        (a - b).abs() <= 1e-12 * b.abs().max(1e-300)
+    }
+
+    #[test]
+    fn round_sig_examples() {
+        // Plain arithmetic; round half away from zero (f64::round).
+        assert_eq!(round_sig(0.0, 2), 0.0);
+        assert!(close(round_sig(0.002468, 2), 0.0025));
+        assert!(close(round_sig(-98765.0, 3), -98800.0));
+        assert!(close(round_sig(1.0, 2), 1.0));
+        assert!(round_sig(f64::NAN, 2).is_nan());
+    }
+
+    // GUM JCGM 100:2008 7.2.2 and 7.2.4: m_S = 100.021 47 g with u_c = 0.35 mg;
+    // U = k·u_c with k = 2.26 gives m_S = (100.021 47 ± 0.000 79) g.
+    #[test]
+    fn gum_7_2_4_example() {
+        assert_eq!(
+            value_u(100.02147, 2.26 * 0.00035, Unit::One),
+            "100.02147 ± 0.00079"
+        );
+        assert_eq!(
+            value_u(100.02147, 0.00035, Unit::One),
+            "100.02147 ± 0.00035"
+        );
+    }
+
+    // GUM 7.2.6: two significant digits for U, the estimate rounded to match.
+    #[test]
+    fn gum_7_2_6_digits_and_prefix() {
+        assert_eq!(value_u(47.1312e-9, 0.2468e-9, Unit::F), "(47.13 ± 0.25) nF");
+        assert_eq!(value_u(1234.5678, 12.3, Unit::Ohm), "(1.235 ± 0.012) kΩ");
+        assert_eq!(
+            value_u(2.71828e-3, 0.0000161, Unit::H),
+            "(2.718 ± 0.016) mH"
+        );
+        assert_eq!(value_u(468.72, 23.4, Unit::Hz), "(469 ± 23) Hz");
+        assert_eq!(value_u(523.0, 147.0, Unit::V), "(520 ± 150) V");
+        // Carry of U to the next decade: 0.996 → 1.0.
+        assert_eq!(value_u(5.4321, 0.996, Unit::A), "(5.4 ± 1.0) A");
+        // The prefix follows the unrounded value; no carry into the next prefix.
+        assert_eq!(value_u(999.9996, 0.012, Unit::Hz), "(1000.000 ± 0.012) Hz");
+        assert_eq!(value_u(0.0, 3.3e-6, Unit::V), "(0.0 ± 3.3) µV");
+        assert_eq!(value_u(-0.61, 0.034, Unit::Rad), "(−35.0 ± 1.9)°");
+        assert_eq!(value_u(0.0123, 0.00456, Unit::Percent), "(1.23 ± 0.46) %");
+        assert_eq!(value_u(-0.0004, 0.02, Unit::One), "0.000 ± 0.020");
+    }
+
+    #[test]
+    fn degenerate_inputs_do_not_panic() {
+        assert_eq!(value_u(f64::NAN, 1.0, Unit::V), "n/a");
+        assert_eq!(value_u(1.5, f64::INFINITY, Unit::V), "1.500 V ± n/a");
+        assert_eq!(value_u(1.5, 0.0, Unit::V), "1.50000 V");
+        assert_eq!(notation(f64::INFINITY, Unit::V, 3), "n/a");
+        assert_eq!(notation(0.0, Unit::V, 3), "0.00 V");
+        for (v, u) in [
+            (1e300, 1e-300),
+            (1e-300, 1e300),
+            (f64::MIN_POSITIVE, f64::MIN_POSITIVE),
+            (5e-324, 5e-324),
+            (-1e308, 1e308),
+        ] {
+            let s = value_u(v, u, Unit::F);
+            assert!(!s.contains("NaN") && !s.contains("inf"), "{s}");
+        }
+    }
+
+    #[test]
+    fn format_si_examples() {
+        assert_eq!(notation(4.7e-7, Unit::F, 3), "470 nF");
+        assert_eq!(notation(1000.0, Unit::Ohm, 3), "1.00 kohm");
+        assert_eq!(notation(999.96, Unit::Hz, 3), "1.00 kHz");
+        assert_eq!(notation(0.0331, Unit::H, 2), "33 mH");
+        assert_eq!(notation(1.5e9, Unit::Hz, 2), "1500 MHz");
+        assert_eq!(notation(0.05, Unit::Div, 1), "0.05 div");
+        assert_eq!(notation(0.025, Unit::Percent, 2), "2.5 %");
     }
 }
