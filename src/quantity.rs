@@ -192,6 +192,9 @@ fn explain_unit(s: &str) -> (String, Option<String>) {
         .find(|(sym, ..)| sym.to_lowercase() == lower)
         .map(|(sym, ..)| format!("units are case-sensitive: did you mean `{sym}`?"))
         .or_else(|| {
+            prefixed_case_slip(s).map(|m| format!("units are case-sensitive: did you mean `{m}`?"))
+        })
+        .or_else(|| {
             if s.contains(',') || s.starts_with(',') {
                 Some("use a decimal point, not a comma".to_string())
             } else {
@@ -199,6 +202,23 @@ fn explain_unit(s: &str) -> (String, Option<String>) {
             }
         });
     (format!("unknown unit `{s}`"), help)
+}
+
+/// A prefixed unit written in the wrong case (`nf`, `KHZ`, `uh`), in its right case. The
+/// prefix keeps the case typed when case is what tells it apart (`m` milli, `M` mega).
+fn prefixed_case_slip(s: &str) -> Option<String> {
+    let mut chars = s.chars();
+    let first = chars.next()?;
+    let rest = chars.as_str().to_lowercase();
+    let prefix = match first {
+        'm' | 'M' => first,
+        c if prefix_factor(c.to_ascii_lowercase()).is_some() => c.to_ascii_lowercase(),
+        _ => return None,
+    };
+    UNITS
+        .iter()
+        .find(|(sym, _, _, allowed)| *allowed && sym.to_lowercase() == rest)
+        .map(|(sym, ..)| format!("{prefix}{sym}"))
 }
 
 /// Length in bytes of a leading decimal number (sign, digits, point, exponent), or None.

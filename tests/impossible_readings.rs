@@ -80,7 +80,6 @@ fn flags_of(j: &serde_json::Value) -> String {
         .join(" ")
 }
 
-
 /// Series RC: |VR| ≤ |Vs| since Vs = VR + VC with VR ⟂ VC (phasor sum, any circuit-theory
 /// text). A VR above Vs cannot happen; the row must be flagged (Kirchhoff residual).
 #[test]

@@ -6,7 +6,6 @@ use common::*;
 use std::path::PathBuf;
 use std::process::Stdio;
 
-
 /// 100 000 RC rows: 100 frequencies, 1 000 repeats each, made by complex arithmetic from
 /// R = 2.2 kΩ and C = 68 nF with a deterministic ±0.3 mV dither.
 pub fn large_rc_notebook() -> String {

@@ -884,3 +884,48 @@ fn unclosed_flow_in_block_header_points_at_the_bracket() {
         Some("`]` before the end of the line")
     );
 }
+
+// Messages for the slips people make (issue "A record a reviewer can sign"): the help says
+// what was probably meant, at the value.
+#[test]
+fn common_slips_get_a_suggestion_at_the_value() {
+    let with = |parts: &str| {
+        format!("---\nrecord: a\ntitle: t\ndate: 2026-05-04\noperator: o\nparts:\n{parts}---\n")
+    };
+    let helps = |d: &Diagnostic| d.help.clone().unwrap_or_default();
+    // A prefixed unit in the wrong case.
+    let d = expect_at(
+        &with("  C1: {kind: capacitor, nominal: 68 nf}\n"),
+        "unknown unit `nf`",
+        7,
+        37,
+    );
+    assert!(helps(&d).contains("did you mean `nF`?"), "{}", helps(&d));
+    let d = expect_at(
+        &with("  L1: {kind: inductor, nominal: 4.7 mh}\n"),
+        "unknown unit",
+        7,
+        37,
+    );
+    assert!(helps(&d).contains("did you mean `mH`?"), "{}", helps(&d));
+    // A bare number on a capacitor: a prefix, never 220 F.
+    let d = expect_at(
+        &with("  C1: {kind: capacitor, nominal: 220}\n"),
+        "`nominal` needs a unit",
+        7,
+        34,
+    );
+    assert!(
+        helps(&d).contains("`220 nF`") && !helps(&d).contains("`220 F`"),
+        "{}",
+        helps(&d)
+    );
+    // A tolerance without its percent sign.
+    let d = expect_at(
+        &with("  R1: {kind: resistor, nominal: 1 kohm, tolerance: 5}\n"),
+        "tolerance does not fit a resistor",
+        7,
+        52,
+    );
+    assert!(helps(&d).contains("`5%`"), "{}", helps(&d));
+}

@@ -759,18 +759,21 @@ fn tolerance(
                 None
             }
         }
-        Ok(_) => {
-            ex.err(
-                Diagnostic::new(
-                    span,
-                    format!("tolerance does not fit a {}", kind_word(kind)),
-                )
-                .expected(format!(
-                    "a percentage, a letter ({codes}) or a value in {}",
-                    dimension_name(kind.unit())
-                ))
-                .found(format!("`{}`", raw.trim())),
-            );
+        Ok(q) => {
+            let mut dg = Diagnostic::new(
+                span,
+                format!("tolerance does not fit a {}", kind_word(kind)),
+            )
+            .expected(format!(
+                "a percentage, a letter ({codes}) or a value in {}",
+                dimension_name(kind.unit())
+            ))
+            .found(format!("`{}`", raw.trim()));
+            // A bare number is most often a percentage without its sign.
+            if q.unit == Unit::One && q.value > 0.0 && q.value < 100.0 {
+                dg = dg.help(format!("a percentage needs its sign: `{}%`", raw.trim()));
+            }
+            ex.err(dg);
             None
         }
         Err(e) => {

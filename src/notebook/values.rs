@@ -125,11 +125,7 @@ impl ValueReader<'_, '_> {
                 Diagnostic::new(span, format!("`{key}` needs a unit"))
                     .expected(format!("a value in {want}"))
                     .found(format!("`{}`", text.trim()))
-                    .help(format!(
-                        "write e.g. `{} {}`",
-                        text.trim(),
-                        units.first().map_or("V", |u| u.symbol())
-                    )),
+                    .help(bare_number_help(text.trim(), units.first().copied())),
             );
             return None;
         }
@@ -282,4 +278,17 @@ pub(super) fn undefined(
         None => d.help(format!("add it under `{section}:` in the front matter")),
     };
     d
+}
+
+/// What to suggest for a bare number where a unit is needed: a prefix for farads and henries,
+/// whose values in the base unit are rarely meant (`220` on a capacitor is not 220 F).
+fn bare_number_help(number: &str, unit: Option<Unit>) -> String {
+    match unit {
+        Some(Unit::F) => format!(
+            "add a unit with its prefix, e.g. `{number} nF`, `{number} pF` or `{number} uF`"
+        ),
+        Some(Unit::H) => format!("add a unit with its prefix, e.g. `{number} mH` or `{number} uH`"),
+        Some(u) => format!("write e.g. `{number} {}`", u.symbol()),
+        None => format!("write e.g. `{number} V`"),
+    }
 }
