@@ -67,6 +67,7 @@ fn readings(network: Network, cols: &[(&str, Unit)], rows: &[[f64; 3]]) -> Readi
         rows,
         span: Span::new(0, 50),
         body: String::new(),
+        lot: None,
     }
 }
 

@@ -1021,6 +1021,7 @@ pub(crate) mod testutil {
             rows,
             span: Span::new(0, 10),
             body: String::new(),
+            lot: None,
         }
     }
 
