@@ -87,16 +87,10 @@ pub fn reduce(
 ) -> Result<(BlockResult, LotReduction), Vec<Diagnostic>> {
     let mut units = Vec::new();
     let mut diags = Vec::new();
-    let mut flags = Vec::new();
     for (serial, span, unit) in split(b) {
         match reduce_block(ctx, &unit) {
             Ok(mut r) => {
                 fence(&mut r);
-                flags.extend(r.flags.iter().map(|f| Flag {
-                    warn: f.warn,
-                    span: f.span,
-                    message: format!("unit {serial}: {}", f.message),
-                }));
                 units.push(UnitResult {
                     serial,
                     span,
@@ -109,6 +103,7 @@ pub fn reduce(
     if !diags.is_empty() {
         return Err(diags);
     }
+    let flags = merged_flags(&units);
     let part = b
         .lot
         .as_ref()
@@ -131,6 +126,41 @@ pub fn reduce(
             units,
         },
     ))
+}
+
+/// Every unit's flags, each said once with the serials it applies to ("every unit" when it
+/// applies to all), at the first unit's span.
+fn merged_flags(units: &[UnitResult]) -> Vec<Flag> {
+    let mut order: Vec<(bool, String, Option<Span>, Vec<&str>)> = Vec::new();
+    let mut index = std::collections::HashMap::new();
+    for u in units {
+        for f in &u.result.flags {
+            let k = *index.entry((f.warn, f.message.clone())).or_insert_with(|| {
+                order.push((f.warn, f.message.clone(), f.span, Vec::new()));
+                order.len() - 1
+            });
+            if order[k].3.last() != Some(&u.serial.as_str()) {
+                order[k].3.push(&u.serial);
+            }
+        }
+    }
+    order
+        .into_iter()
+        .map(|(warn, message, span, serials)| {
+            let who = if serials.len() == units.len() && units.len() > 1 {
+                "every unit".to_string()
+            } else if serials.len() == 1 {
+                format!("unit {}", serials[0])
+            } else {
+                format!("units {}", serials.join(", "))
+            };
+            Flag {
+                warn,
+                span,
+                message: format!("{who}: {message}"),
+            }
+        })
+        .collect()
 }
 
 /// The lot figures over the units' values x_i of the judged quantity, against the tolerance

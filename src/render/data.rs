@@ -983,13 +983,9 @@ fn capped(msgs: Vec<String>, what: &str) -> Value {
     Value::Array(v)
 }
 
-fn readings_json(
-    record: &Record,
-    rb: &ReadingsBlock,
-    index: usize,
-    shared: &std::collections::BTreeSet<String>,
-    files: &mut BTreeMap<String, Vec<u8>>,
-) -> Result<Value, String> {
+/// The readings table as entered: columns, the rows shown, rows omitted, column widths. A
+/// lot's serials print as the first column.
+fn table_json(rb: &ReadingsBlock) -> Value {
     let columns: Vec<Value> = rb
         .columns
         .iter()
@@ -1028,6 +1024,16 @@ fn readings_json(
     let widths: Vec<f64> = (0..ncols)
         .map(|c| metrics::widest(rows.iter().map(|r| r.get(c).map_or("", String::as_str))))
         .collect();
+    json!({ "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths })
+}
+
+fn readings_json(
+    record: &Record,
+    rb: &ReadingsBlock,
+    index: usize,
+    shared: &std::collections::BTreeSet<String>,
+    files: &mut BTreeMap<String, Vec<u8>>,
+) -> Result<Value, String> {
     let block = record.reduction.blocks.iter().find(|b| b.id == rb.id);
     let mut out = json!({
         "kind": "readings",
@@ -1039,7 +1045,7 @@ fn readings_json(
         "phase": rb.phase.as_ref().map(|m| m.name.clone()),
         "counter": rb.counter.as_ref().map(|m| m.name.clone()),
         "source": rb.source.map(|v| format::quantity(v, Unit::V)),
-        "table": { "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths },
+        "table": table_json(rb),
         "reduced": block.is_some(),
     });
     let Some(block) = block else { return Ok(out) };
