@@ -30,6 +30,27 @@ pub struct Verdict {
     pub expanded: f64,
     pub k: f64,
     pub outcome: Outcome,
+    /// The unit's serial, for a verdict on one unit of a lot.
+    pub serial: Option<String>,
+}
+
+/// The lot figures of one lot block (FORMAT.md 1.1, "Lots"), over the units' values of the
+/// judged quantity `name` of `part`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LotRecord {
+    pub block: String,
+    pub part: String,
+    /// The judged result (C, L, R).
+    pub name: String,
+    pub unit: Unit,
+    pub nominal: f64,
+    pub low: f64,
+    pub high: f64,
+    /// None when a unit's value could not be computed (the unit is then not judged).
+    pub stats: Option<crate::lot::LotStats>,
+    pub pass: usize,
+    pub fail: usize,
+    pub inconclusive: usize,
 }
 
 #[derive(Debug, Clone, PartialEq)]
@@ -56,6 +77,8 @@ pub struct Record {
     pub notebook: Notebook,
     pub reduction: Reduction,
     pub verdicts: Vec<Verdict>,
+    /// The figures of each lot block, in notebook order.
+    pub lots: Vec<LotRecord>,
     pub safety: Vec<SafetyCheck>,
     pub sign: SignState,
     /// SHA-256 (hex) of the canonical form of everything that determines the results.
@@ -144,8 +167,16 @@ fn kind_for_result(res: &BlockResult, name: &str) -> Option<PartKind> {
     judged.iter().find(|(n, _)| *n == name).map(|(_, k)| *k)
 }
 
-fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<Verdict> {
+/// The verdicts of a block's judged results; for one unit of a lot (`unit` set), only those
+/// against the lot's part.
+fn verdicts_for(
+    nb: &Notebook,
+    block: &ReadingsBlock,
+    res: &BlockResult,
+    unit: Option<&str>,
+) -> Vec<Verdict> {
     let mut out = Vec::new();
+    let only = block.lot.as_ref().map(|l| l.part.name.as_str());
     for r in &res.results {
         let Some(kind) = kind_for_result(res, &r.name) else {
             continue;
@@ -153,6 +184,7 @@ fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<
         let part = block
             .parts
             .iter()
+            .filter(|n| unit.is_none() || only == Some(n.name.as_str()))
             .filter_map(|n| nb.front.parts.get(&n.name))
             .find(|p| p.kind == kind);
         let Some(part) = part else { continue };
@@ -172,9 +204,47 @@ fn verdicts_for(nb: &Notebook, block: &ReadingsBlock, res: &BlockResult) -> Vec<
             expanded: r.m.expanded,
             k: r.m.k,
             outcome: decide(r.m.value, r.m.expanded, low, high, nb.front.decision),
+            serial: unit.map(str::to_string),
         });
     }
     out
+}
+
+/// A lot block: each unit judged as a block of its own, then the lot figures over the units'
+/// values of the judged quantity.
+fn judge_lot(
+    nb: &Notebook,
+    block: &ReadingsBlock,
+    lot: &crate::lot::LotReduction,
+) -> (Vec<Verdict>, Option<LotRecord>) {
+    let mut verdicts = Vec::new();
+    for u in &lot.units {
+        verdicts.extend(verdicts_for(nb, block, &u.result, Some(&u.serial)));
+    }
+    let first = verdicts.first().cloned();
+    let Some(first) = first else {
+        return (verdicts, None);
+    };
+    let values: Vec<f64> = verdicts.iter().map(|v| v.value).collect();
+    let count = |o: Outcome| verdicts.iter().filter(|v| v.outcome == o).count();
+    // Every unit gives the judged result unless a guard left it out; then no lot figures.
+    let complete = values.len() == lot.units.len();
+    let rec = LotRecord {
+        block: block.id.clone(),
+        part: first.part.clone(),
+        name: first.name.clone(),
+        unit: first.unit,
+        nominal: first.nominal,
+        low: first.low,
+        high: first.high,
+        stats: complete
+            .then(|| crate::lot::stats(&values, first.low, first.high, nb.front.coverage))
+            .flatten(),
+        pass: count(Outcome::Pass),
+        fail: count(Outcome::Fail),
+        inconclusive: count(Outcome::Inconclusive),
+    };
+    (verdicts, Some(rec))
 }
 
 /// The value of a resistor for the safety checks: measured if given, else nominal.
@@ -370,13 +440,18 @@ pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
 pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnostic>> {
     let derating = Derating::default();
     let mut verdicts = Vec::new();
+    let mut lots = Vec::new();
     let mut safety = Vec::new();
     for item in &nb.items {
         let Item::Readings(block) = item else {
             continue;
         };
-        if let Some(res) = reduction.blocks.iter().find(|b| b.id == block.id) {
-            verdicts.extend(verdicts_for(&nb, block, res));
+        if let Some(lot) = reduction.lots.iter().find(|l| l.block == block.id) {
+            let (v, rec) = judge_lot(&nb, block, lot);
+            verdicts.extend(v);
+            lots.extend(rec);
+        } else if let Some(res) = reduction.blocks.iter().find(|b| b.id == block.id) {
+            verdicts.extend(verdicts_for(&nb, block, res, None));
         }
         safety.extend(safety_checks(&nb, block, &derating));
     }
@@ -409,6 +484,7 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
         notebook: nb,
         reduction,
         verdicts,
+        lots,
         safety,
         sign,
         digest,
@@ -434,10 +510,16 @@ pub fn reservations(rec: &Record) -> Vec<String> {
             Outcome::Fail => "fail",
             Outcome::Inconclusive => "inconclusive",
         };
-        out.push(format!(
-            "block `{}`: {} of {} is {word}",
-            v.block, v.name, v.part
-        ));
+        match &v.serial {
+            Some(u) => out.push(format!(
+                "block `{}`: {} of {} unit {u} is {word}",
+                v.block, v.name, v.part
+            )),
+            None => out.push(format!(
+                "block `{}`: {} of {} is {word}",
+                v.block, v.name, v.part
+            )),
+        }
     }
     for s in rec.safety.iter().filter(|s| !s.ok) {
         out.push(format!(
@@ -712,8 +794,12 @@ mod tests {
             };
             let safety = safety_checks(&nb, block, &Derating::default());
             let rec = Record {
-                reduction: Reduction { blocks: Vec::new() },
+                reduction: Reduction {
+                    blocks: Vec::new(),
+                    lots: Vec::new(),
+                },
                 verdicts: Vec::new(),
+                lots: Vec::new(),
                 safety,
                 sign: SignState::Unsigned,
                 digest: String::new(),

@@ -12,6 +12,7 @@ pub mod export;
 #[cfg(feature = "typeset")]
 pub mod index;
 pub mod judge;
+pub mod lot;
 pub mod montecarlo;
 pub mod networks;
 pub mod notebook;

@@ -364,7 +364,15 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
                         benchrec::judge::Outcome::Fail => "FAIL",
                         benchrec::judge::Outcome::Inconclusive => "inconclusive",
                     };
-                    say!("  {word:<12} {} of {} (block {})", v.name, v.part, v.block);
+                    match &v.serial {
+                        Some(u) => say!(
+                            "  {word:<12} {} of {} unit {u} (block {})",
+                            v.name,
+                            v.part,
+                            v.block
+                        ),
+                        None => say!("  {word:<12} {} of {} (block {})", v.name, v.part, v.block),
+                    }
                 }
                 if !benchrec::judge::reservations(&rec).is_empty() {
                     reserved += 1;

@@ -102,6 +102,7 @@ fn block(network: Network, cols: &[(&str, Unit)], rows: &[Vec<f64>]) -> Readings
         rows,
         span: Span::new(0, 1),
         body: String::new(),
+        lot: None,
     }
 }
 

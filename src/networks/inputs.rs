@@ -992,6 +992,7 @@ pub(crate) mod testutil {
             rows,
             span: Span::new(0, 10),
             body: String::new(),
+            lot: None,
         }
     }
 

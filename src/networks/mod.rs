@@ -140,6 +140,8 @@ pub struct BlockResult {
 #[derive(Debug, Clone, PartialEq)]
 pub struct Reduction {
     pub blocks: Vec<BlockResult>,
+    /// The units of each lot block (whose entry in `blocks` holds only their flags).
+    pub lots: Vec<crate::lot::LotReduction>,
 }
 
 /// What every network needs from the notebook besides its own block.
@@ -172,9 +174,20 @@ impl<'a> Context<'a> {
 pub fn reduce(nb: &Notebook) -> Result<Reduction, Vec<Diagnostic>> {
     let ctx = Context::new(nb);
     let mut blocks = Vec::new();
+    let mut lots = Vec::new();
     let mut diags = Vec::new();
     for item in &nb.items {
         if let Item::Readings(b) = item {
+            if b.lot.is_some() {
+                match crate::lot::reduce(&ctx, b) {
+                    Ok((r, lot)) => {
+                        blocks.push(r);
+                        lots.push(lot);
+                    }
+                    Err(d) => diags.extend(d),
+                }
+                continue;
+            }
             match reduce_block(&ctx, b) {
                 Ok(mut r) => {
                     fence(&mut r);
@@ -185,7 +198,7 @@ pub fn reduce(nb: &Notebook) -> Result<Reduction, Vec<Diagnostic>> {
         }
     }
     if diags.is_empty() {
-        Ok(Reduction { blocks })
+        Ok(Reduction { blocks, lots })
     } else {
         Err(diags)
     }

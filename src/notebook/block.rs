@@ -5,14 +5,16 @@ use super::table::{parse_table, Table};
 use super::values::{undefined, ValueReader};
 use super::words::{list, one_of};
 use super::yaml::{kind_name, YamlLocator};
-use super::{line_text, required_columns, split_lines, Named, Network, ReadingsBlock, MAX_HEADER};
+use super::{
+    line_text, required_columns, split_lines, LotSpec, Named, Network, ReadingsBlock, MAX_HEADER,
+};
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::Unit;
 use serde_yaml::Value;
 use std::collections::BTreeMap;
 
 const HEADER_KEYS: &[&str] = &[
-    "id", "network", "parts", "meter", "phase", "counter", "note", "source",
+    "id", "network", "parts", "meter", "phase", "counter", "note", "source", "unit_of",
 ];
 
 pub(super) struct BlockCtx<'a> {
@@ -52,6 +54,7 @@ pub(super) fn parse_block(
     let table = parse_table(src, &blines[sep + 1..], d);
     let sep_span = Span::new(sep_line.start, sep_line.end);
     check_table(&table, header.network.map(|n| n.0), sep_span, d);
+    let lot = lot_spec(header.unit_of, &table, d);
     let (id, id_span) = header.id?;
     Some(ReadingsBlock {
         id,
@@ -68,7 +71,39 @@ pub(super) fn parse_block(
         rows: table.rows,
         span: r,
         body: src[body.start..body.end].to_string(),
+        lot,
     })
+}
+
+/// A lot needs both `unit_of` and the `unit` column; either alone is an error at it.
+fn lot_spec(unit_of: Option<Named>, table: &Table, d: &mut Vec<Diagnostic>) -> Option<LotSpec> {
+    match (unit_of, table.unit_heading) {
+        (Some(part), Some(heading)) => Some(LotSpec {
+            part,
+            heading,
+            serials: table.serials.clone(),
+        }),
+        (Some(part), None) => {
+            d.push(
+                Diagnostic::new(part.span, "`unit_of` needs a `unit` column in the table")
+                    .expected("a text column headed `unit` with each row's serial")
+                    .found("no `unit` column"),
+            );
+            None
+        }
+        (None, Some(heading)) => {
+            d.push(
+                Diagnostic::new(
+                    heading,
+                    "a `unit` column needs `unit_of` in the block header",
+                )
+                .expected("a header line `unit_of: <part>` naming the part whose units vary")
+                .found("no `unit_of`"),
+            );
+            None
+        }
+        (None, None) => None,
+    }
 }
 
 /// The opening fence's span and the body between the fences; an unclosed block runs to the
@@ -112,6 +147,8 @@ struct Header {
     note: Option<String>,
     /// Stated source level (V).
     source: Option<f64>,
+    /// The part whose units vary, in a lot.
+    unit_of: Option<Named>,
 }
 
 /// The YAML header in `region` (between the opening fence and the `---` line).
@@ -166,6 +203,17 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
             "phase" => h.phase = ex.instrument_name(&path, val, cx.defined.checked()),
             "counter" => h.counter = ex.instrument_name(&path, val, cx.defined.checked()),
             "note" => h.note = ex.text(&path, val),
+            "unit_of" => {
+                if let Some(s) = ex.nonempty_text(&path, val) {
+                    let name = s.trim().to_string();
+                    let sp = y.value_span(&path);
+                    if cx.defined.known && !cx.defined.parts.contains(&name) {
+                        ex.err(undefined("part", &name, sp, &cx.defined.parts, "parts"));
+                    } else {
+                        h.unit_of = Some(Named { name, span: sp });
+                    }
+                }
+            }
             "source" => {
                 let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
                 h.source = ex.positive(&path, q, "the source level").map(|q| q.value);

@@ -23,6 +23,7 @@ mod words;
 mod yaml;
 
 pub use front::{parse_accuracy, parse_iso_date};
+pub use table::UNIT_COLUMN;
 
 use crate::diag::{Diagnostic, Span};
 use crate::networks::{Descriptor, NETWORKS};
@@ -277,6 +278,19 @@ pub struct ReadingsBlock {
     pub span: Span,
     /// The block's body text (between the fences), verbatim.
     pub body: String,
+    /// A lot: many units of one part, a serial per row (`unit_of` and the `unit` column).
+    pub lot: Option<LotSpec>,
+}
+
+/// What makes a block a lot (FORMAT.md 1.1, "Lots").
+#[derive(Debug, Clone)]
+pub struct LotSpec {
+    /// The part whose units vary (`unit_of`).
+    pub part: Named,
+    /// The `unit` column's heading.
+    pub heading: Span,
+    /// Each row's serial, in row order (as many as `rows`).
+    pub serials: Vec<Named>,
 }
 
 impl ReadingsBlock {
@@ -543,6 +557,7 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
                             }
                             prev = r.end.max(prev);
                             if let Some(b) = parse_block(&cx, r, &mut ids, &mut d) {
+                                check_lot_part(&front.parts, &b, &mut d);
                                 items.push(Item::Readings(b));
                             }
                         }
@@ -570,6 +585,54 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         front_span,
         items,
     })
+}
+
+/// A lot's `unit_of` names a part of the block (`parts`) of a kind its network judges.
+fn check_lot_part(parts: &BTreeMap<String, Part>, b: &ReadingsBlock, d: &mut Vec<Diagnostic>) {
+    let Some(lot) = &b.lot else { return };
+    // A name the front matter does not define is reported where the header is read.
+    let Some(part) = parts.get(&lot.part.name) else {
+        return;
+    };
+    let judged = b.network.descriptor().judged;
+    let kind = |k: PartKind| match k {
+        PartKind::Resistor => "resistor",
+        PartKind::Capacitor => "capacitor",
+        PartKind::Inductor => "inductor",
+    };
+    if !judged.iter().any(|(_, k)| *k == part.kind) {
+        let kinds: Vec<&str> = judged.iter().map(|(_, k)| kind(*k)).collect();
+        d.push(
+            Diagnostic::new(
+                lot.part.span,
+                format!(
+                    "`unit_of: {}` names a {k}, and a {} block judges no {k}",
+                    lot.part.name,
+                    b.network.name(),
+                    k = kind(part.kind),
+                ),
+            )
+            .expected(format!("a part of kind {}", kinds.join(" or ")))
+            .found(format!("{} ({})", lot.part.name, kind(part.kind))),
+        );
+    } else if !b.parts.iter().any(|p| p.name == lot.part.name) {
+        let listed: Vec<&str> = b.parts.iter().map(|p| p.name.as_str()).collect();
+        d.push(
+            Diagnostic::new(
+                lot.part.span,
+                format!(
+                    "`unit_of: {}` is not among the block's parts",
+                    lot.part.name
+                ),
+            )
+            .expected(format!("{} listed in `parts`", lot.part.name))
+            .found(if listed.is_empty() {
+                "no `parts`".to_string()
+            } else {
+                format!("parts [{}]", listed.join(", "))
+            }),
+        );
+    }
 }
 
 #[cfg(test)]

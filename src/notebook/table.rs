@@ -1,7 +1,7 @@
 //! Readings tables: cells of pipe and whitespace tables, column headings, plausible ranges.
 
 use super::words::{list, unknown};
-use super::{line_text, symbol_unit, Cell, Column, Line, Row, SYMBOLS};
+use super::{line_text, symbol_unit, Cell, Column, Line, Named, Row, SYMBOLS};
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse_unit, Unit};
 
@@ -281,13 +281,22 @@ pub(super) struct Table {
     pub(super) symbols: Vec<(String, Span)>,
     /// The heading row, when the table has one.
     pub(super) heading: Option<Span>,
+    /// The heading of the text column `unit` (a lot's serials), when there is one.
+    pub(super) unit_heading: Option<Span>,
+    /// Each row's serial (in row order) when there is a `unit` column.
+    pub(super) serials: Vec<Named>,
 }
+
+/// Heading of the text column that holds each row's serial in a lot block.
+pub const UNIT_COLUMN: &str = "unit";
 
 /// The heading row as the rows below it need it.
 struct Heading {
     pipe: bool,
     /// Per heading cell: (symbol, SI unit, prefix factor) when the heading is valid.
     columns: Vec<Option<(String, Unit, f64)>>,
+    /// Index of the `unit` heading cell.
+    unit_col: Option<usize>,
 }
 
 /// The table in `lines` (after the `---` line): the first non-blank line is the heading,
@@ -298,6 +307,8 @@ pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) ->
         rows: Vec::new(),
         symbols: Vec::new(),
         heading: None,
+        unit_heading: None,
+        serials: Vec::new(),
     };
     let mut heading: Option<Heading> = None;
     for l in lines {
@@ -308,8 +319,9 @@ pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) ->
         match &heading {
             None => heading = Some(heading_row(src, l, cend, &mut table, d)),
             Some(h) => {
-                if let Some(row) = table_row(src, l, cend, h, d) {
+                if let Some((row, serial)) = table_row(src, l, cend, h, d) {
                     table.rows.push(row);
+                    table.serials.extend(serial);
                 }
             }
         }
@@ -334,7 +346,28 @@ fn heading_row(
     let hspan = trim_tok(src, l.start, cend);
     table.heading = Some(Span::new(hspan.start, hspan.end));
     let mut columns = Vec::with_capacity(toks.len());
-    for tok in &toks {
+    let mut unit_col = None;
+    for (i, tok) in toks.iter().enumerate() {
+        if &src[tok.start..tok.end] == UNIT_COLUMN {
+            let at = Span::new(tok.start, tok.end);
+            match table.unit_heading {
+                Some(first) => d.push(
+                    Diagnostic::new(at, "column `unit` appears twice")
+                        .expected("one `unit` column (the serial of each row)")
+                        .found("a second `unit`")
+                        .help({
+                            let (fl, fc) = line_col(src, first.start);
+                            format!("first at line {fl}, column {fc}")
+                        }),
+                ),
+                None => {
+                    table.unit_heading = Some(at);
+                    unit_col = Some(i);
+                }
+            }
+            columns.push(None);
+            continue;
+        }
         if tok.start == tok.end {
             d.push(
                 Diagnostic::new(
@@ -373,18 +406,23 @@ fn heading_row(
             None => columns.push(None),
         }
     }
-    Heading { pipe, columns }
+    Heading {
+        pipe,
+        columns,
+        unit_col,
+    }
 }
 
-/// One row: its cells in their columns' units. None for a separator row or a row reported
-/// whole (a cell count that does not match the heading, an unknown unit word).
+/// One row: its cells in their columns' units, and its serial when the table has a `unit`
+/// column. None for a separator row or a row reported whole (a cell count that does not match
+/// the heading, an unknown unit word, an empty serial).
 fn table_row(
     src: &str,
     l: &Line,
     cend: usize,
     h: &Heading,
     d: &mut Vec<Diagnostic>,
-) -> Option<Row> {
+) -> Option<(Row, Option<Named>)> {
     let (pipe, ncols) = (h.pipe, h.columns.len());
     let cells_tok = if pipe {
         pipe_cells(src, l.start, cend)
@@ -438,16 +476,37 @@ fn table_row(
         );
         return None;
     }
+    let serial = match h.unit_col.and_then(|i| cells_tok.get(i)) {
+        Some(t) if t.start == t.end => {
+            d.push(
+                Diagnostic::new(
+                    Span::new(t.start, (t.start + 1).min(cend)),
+                    "empty serial in column `unit`",
+                )
+                .expected("the serial of the unit read in this row, e.g. `A07`")
+                .found("nothing"),
+            );
+            return None;
+        }
+        Some(t) => Some(Named {
+            name: src[t.start..t.end].to_string(),
+            span: Span::new(t.start, t.end),
+        }),
+        None => None,
+    };
     let mut cells = Vec::with_capacity(ncols);
     for (tok, col) in cells_tok.iter().zip(&h.columns) {
         if let Some((sym, unit, factor)) = col {
             cells.extend(cell(src, *tok, cend, sym, *unit, *factor, d));
         }
     }
-    Some(Row {
-        cells,
-        span: row_span,
-    })
+    Some((
+        Row {
+            cells,
+            span: row_span,
+        },
+        serial,
+    ))
 }
 
 /// One cell in column `sym` (heading unit `unit` times `factor`); None when it is empty or

@@ -82,7 +82,7 @@ pub fn symbol_parts(name: &str) -> (String, String, bool) {
     }
 }
 
-fn symbol_json(name: &str) -> Value {
+pub(crate) fn symbol_json(name: &str) -> Value {
     let (base, sub, italic) = symbol_parts(name);
     json!({ "base": base, "sub": sub, "italic": italic })
 }
@@ -632,9 +632,10 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
         .filter(|b| b.flags.iter().any(|f| f.warn))
         .map(|b| b.id.as_str())
         .collect();
-    record
+    let mut out: Vec<Value> = record
         .verdicts
         .iter()
+        .filter(|v| v.serial.is_none())
         .map(|v| {
             json!({
                 "block": v.block,
@@ -648,7 +649,29 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
                 "warned": warned_blocks.contains(v.block.as_str()),
             })
         })
-        .collect()
+        .collect();
+    // A lot is one line: its worst verdict, and the counts in place of a value.
+    for l in &record.lots {
+        let worst = if l.fail > 0 {
+            Outcome::Fail
+        } else if l.inconclusive > 0 {
+            Outcome::Inconclusive
+        } else {
+            Outcome::Pass
+        };
+        out.push(json!({
+            "block": l.block,
+            "name": l.name,
+            "symbol": symbol_json(&l.name),
+            "part": format!("{} (lot)", l.part),
+            "nominal": print::quantity(l.nominal, l.unit),
+            "interval": print::interval(l.low, l.high, l.unit),
+            "value": format!("{} units: {} pass, {} fail, {} inconclusive", l.pass + l.fail + l.inconclusive, l.pass, l.fail, l.inconclusive),
+            "outcome": outcome_word(worst),
+            "warned": warned_blocks.contains(l.block.as_str()),
+        }));
+    }
+    out
 }
 
 /// The safety checks.
@@ -924,13 +947,9 @@ fn capped(msgs: Vec<String>, what: &str) -> Value {
     Value::Array(v)
 }
 
-fn readings_json(
-    record: &Record,
-    rb: &ReadingsBlock,
-    index: usize,
-    shared: &std::collections::BTreeSet<String>,
-    files: &mut BTreeMap<String, Vec<u8>>,
-) -> Result<Value, String> {
+/// The readings table as entered: columns, the rows shown, rows omitted, column widths. A
+/// lot's serials print as the first column.
+fn table_json(rb: &ReadingsBlock) -> Value {
     let columns: Vec<Value> = rb
         .columns
         .iter()
@@ -940,20 +959,45 @@ fn readings_json(
         })
         .collect();
     let (shown, table_omitted) = head_and_tail(rb.rows.len());
+    // A lot's serials print as the table's first column.
+    let serial = |i: usize| {
+        rb.lot
+            .as_ref()
+            .map(|l| l.serials.get(i).map_or("", |s| &s.name))
+    };
+    let mut columns = columns;
+    if rb.lot.is_some() {
+        columns.insert(
+            0,
+            json!({ "base": "unit", "sub": "", "italic": false, "unit": "", "heading": "unit" }),
+        );
+    }
+    let ncols = columns.len();
     let rows: Vec<Vec<String>> = shown
         .iter()
-        .map(|i| match i.and_then(|i| rb.rows.get(i)) {
-            Some(r) => {
-                let mut cells: Vec<String> = r.cells.iter().map(|c| c.text.clone()).collect();
-                cells.resize(rb.columns.len().max(cells.len()), String::new());
+        .map(|i| match i.and_then(|i| rb.rows.get(i).map(|r| (i, r))) {
+            Some((i, r)) => {
+                let mut cells: Vec<String> = serial(i).map(str::to_string).into_iter().collect();
+                cells.extend(r.cells.iter().map(|c| c.text.clone()));
+                cells.resize(ncols.max(cells.len()), String::new());
                 cells
             }
-            None => vec!["⋮".to_string(); rb.columns.len()],
+            None => vec!["⋮".to_string(); ncols],
         })
         .collect();
-    let widths: Vec<f64> = (0..rb.columns.len())
+    let widths: Vec<f64> = (0..ncols)
         .map(|c| metrics::widest(rows.iter().map(|r| r.get(c).map_or("", String::as_str))))
         .collect();
+    json!({ "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths })
+}
+
+fn readings_json(
+    record: &Record,
+    rb: &ReadingsBlock,
+    index: usize,
+    shared: &std::collections::BTreeSet<String>,
+    files: &mut BTreeMap<String, Vec<u8>>,
+) -> Result<Value, String> {
     let block = record.reduction.blocks.iter().find(|b| b.id == rb.id);
     let mut out = json!({
         "kind": "readings",
@@ -965,7 +1009,7 @@ fn readings_json(
         "phase": rb.phase.as_ref().map(|m| m.name.clone()),
         "counter": rb.counter.as_ref().map(|m| m.name.clone()),
         "source": rb.source.map(|v| print::quantity(v, Unit::V)),
-        "table": { "columns": columns, "rows": rows, "omitted": table_omitted, "widths": widths },
+        "table": table_json(rb),
         "reduced": block.is_some(),
     });
     let Some(block) = block else { return Ok(out) };
@@ -989,7 +1033,7 @@ fn readings_json(
     let verdicts: Vec<Value> = record
         .verdicts
         .iter()
-        .filter(|v| v.block == block.id)
+        .filter(|v| v.block == block.id && v.serial.is_none())
         .map(|v| {
             json!({
                 "name": v.name, "symbol": symbol_json(&v.name), "part": v.part,
@@ -1051,6 +1095,10 @@ fn readings_json(
         map.insert("notes".into(), capped(of(false), "notes"));
         map.insert("verdicts".into(), Value::Array(verdicts));
         map.insert("plots".into(), Value::Array(plots_json));
+        map.insert(
+            "lot".into(),
+            super::lot::lot_json(record, &rb.id, index, files)?,
+        );
     }
     Ok(out)
 }

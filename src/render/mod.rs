@@ -3,6 +3,7 @@
 
 pub mod data;
 pub mod labels;
+pub mod lot;
 pub mod markup;
 pub mod metrics;
 pub mod plots;
@@ -375,6 +376,7 @@ pub(crate) mod tests {
                 .collect(),
             span: s,
             body: String::new(),
+            lot: None,
         };
         let mut items = Vec::new();
         items.push(Item::Prose {
@@ -490,6 +492,7 @@ pub(crate) mod tests {
                     markers: vec![],
                 },
             }],
+            lots: Vec::new(),
         };
         Record {
             notebook,
@@ -506,7 +509,9 @@ pub(crate) mod tests {
                 expanded: 1.85e-9,
                 k: 2.06,
                 outcome: Outcome::Pass,
+                serial: None,
             }],
+            lots: Vec::new(),
             safety: vec![SafetyCheck {
                 block: "cap-sweep".into(),
                 part: "R1".into(),

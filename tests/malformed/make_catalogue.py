@@ -141,6 +141,26 @@ case("prose-image-absolute", sub("The block value is", "⟦![password file](/etc
 case("prose-image-missing", sub("The block value is", "⟦![trace](trace-not-here.png)\n\nThe block value is"), "does not exist", "image that does not exist")
 case("fm-template-outside", sub("operator: T. Tester (synthetic)\n", "operator: T. Tester (synthetic)\ntemplate: ⟦../elsewhere.typ\n"), "points outside the notebook's folder", "template path outside the folder")
 
+# --- lots (FORMAT.md 1.1): unit_of and the unit column
+LOT_TABLE = """unit  f/Hz    VR/V     VC/V
+A1    400     0.5279   1.4040
+A1    800     0.9015   1.1989
+A2    1600    1.2491   0.8305
+A2    3200    1.4234   0.4732
+"""
+LOT = FM + PROSE + HEAD.replace("meter: dmm\n", "meter: dmm\nunit_of: C1\n") + LOT_TABLE + TAIL
+case("lot-unit-of-undefined", sub("unit_of: C1", "unit_of: ⟦C7", LOT), "is not defined", "unit_of names no part")
+case("lot-unit-of-wrong-kind", sub("unit_of: C1", "unit_of: ⟦R1", LOT), "judges no resistor", "unit_of names a resistor in an RC block")
+case("lot-unit-of-not-in-parts", sub("unit_of: C1", "unit_of: ⟦C1", LOT).replace("parts: [R1, C1]", "parts: [R1]"), "not among the block's parts", "unit_of names a part the block does not list")
+case("lot-unit-column-alone", sub("unit_of: C1\n", "", LOT).replace("unit  f/Hz", "⟦unit  f/Hz"), "needs `unit_of`", "a unit column without unit_of")
+case("lot-unit-of-alone", FM + PROSE + HEAD.replace("meter: dmm\n", "meter: dmm\nunit_of: ⟦C1\n") + TABLE + TAIL, "needs a `unit` column", "unit_of without a unit column")
+PIPE = """| unit | f/Hz | VR/V | VC/V |
+|---|---|---|---|
+| A1 | 400 | 0.5279 | 1.4040 |
+|    ⟦| 800 | 0.9015 | 1.1989 |
+"""
+case("lot-empty-serial", FM + PROSE + HEAD.replace("meter: dmm\n", "meter: dmm\nunit_of: C1\n") + PIPE + TAIL, "empty serial", "a row with no serial")
+case("lot-unit-column-twice", sub("unit  f/Hz    VR/V     VC/V", "unit  f/Hz    VR/V     VC/V  ⟦unit", LOT).replace("0.4732\n", "0.4732 A2\n").replace("1.4040\n", "1.4040 A1\n").replace("1.1989\n", "1.1989 A1\n").replace("0.8305\n", "0.8305 A2\n"), "appears twice", "two unit columns")
 for f in os.listdir(OUT):
     if f.endswith(".md") and not f.startswith("ok-"):
         os.remove(os.path.join(OUT, f))
