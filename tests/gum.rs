@@ -34,6 +34,7 @@ fn readings(network: Network, cols: &[(&str, Unit)], rows: &[[f64; 3]]) -> Readi
             symbol: s.to_string(),
             unit: *u,
             heading: format!("{s}/{}", u.symbol()),
+            range: None,
             span: Span::default(),
         })
         .collect();

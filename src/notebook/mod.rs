@@ -21,7 +21,7 @@ mod values;
 mod words;
 mod yaml;
 
-pub use front::{parse_accuracy, parse_iso_date};
+pub use front::{parse_accuracy, parse_iso_date, same_range};
 
 use crate::diag::{Diagnostic, Span};
 use crate::networks::{Descriptor, NETWORKS};
@@ -109,6 +109,17 @@ pub struct Instrument {
     /// Half-width of reading a scale (e.g. 0.05 div).
     pub reading: Option<Quantity>,
     pub distribution: Distribution,
+    /// Full-scale values of the ranges used (`ranges`), as listed.
+    pub ranges: Vec<Range>,
+    /// `accuracy` given per range: (index into `ranges`, accuracy); `accuracy` is then None.
+    pub range_accuracy: Vec<(usize, Accuracy)>,
+    pub span: Span,
+}
+
+/// One range of an instrument, or the range a column heading names (`VR/V@2V`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Range {
+    pub full_scale: Quantity,
     pub span: Span,
 }
 
@@ -216,6 +227,8 @@ pub struct Column {
     pub unit: Unit,
     /// Heading exactly as written (e.g. `f/Hz`).
     pub heading: String,
+    /// The instrument range the heading names (`VR/V@2V`).
+    pub range: Option<Range>,
     pub span: Span,
 }
 
