@@ -8,17 +8,22 @@ use std::process::{Command, Stdio};
 
 const BASE: &str = include_str!("reference/rc_shared_gain.md");
 
-/// `benchrec results` on `text`: the JSON.
-fn results_json(text: &str) -> serde_json::Value {
+/// `benchrec VERB` on `text`, written as `name` in a fresh folder (kept in the result).
+fn run(verb: &str, name: &str, text: &str) -> (std::process::Output, tempfile::TempDir) {
     let dir = tempfile::tempdir().unwrap();
-    let nb = dir.path().join("ranges.md");
+    let nb = dir.path().join(name);
     std::fs::write(&nb, text).unwrap();
     let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
-        .arg("results")
-        .arg(&nb)
+        .args([verb, nb.to_str().unwrap()])
         .stdin(Stdio::null())
         .output()
         .expect("benchrec runs");
+    (o, dir)
+}
+
+/// `benchrec results` on `text`: the JSON.
+fn results_json(text: &str) -> serde_json::Value {
+    let (o, _dir) = run("results", "ranges.md", text);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     serde_json::from_slice(&o.stdout).expect("results JSON")
 }
@@ -210,17 +215,9 @@ fn accuracy_per_range() {
     assert!((vr.u - 3e-3 / s3).abs() < 1e-12, "{}", vr.u);
 }
 
-/// The first error `benchrec build` reports for `text`: (line, column, text).
+/// What `benchrec check` prints for `text`, which must fail.
 fn first_error(text: &str) -> String {
-    let dir = tempfile::tempdir().unwrap();
-    let nb = dir.path().join("bad.md");
-    std::fs::write(&nb, text).unwrap();
-    let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
-        .arg("check")
-        .arg(&nb)
-        .stdin(Stdio::null())
-        .output()
-        .expect("benchrec runs");
+    let (o, _dir) = run("check", "bad.md", text);
     assert!(!o.status.success(), "must fail");
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
@@ -231,4 +228,21 @@ fn over_range_is_an_error_at_the_cell() {
     let e = first_error(&BASE.replace("1.240   1.122", "1.240   21.22"));
     assert!(e.contains("over range"), "{e}");
     assert!(e.contains("bad.md:40:17"), "{e}");
+}
+
+// The snubber demo reads VR and VC on the one 6 V range of its meter, so its printed budgets
+// show one shared gain, named for the range, and no per-column gain of that meter.
+#[test]
+fn the_snubber_record_prints_one_shared_gain() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let demo = std::fs::read_to_string(root.join("demo/snubber-caps.md")).unwrap();
+    let (o, dir) = run("build", "snubber-caps.md", &demo);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let pdf = std::fs::read(dir.path().join("snubber-caps.pdf")).unwrap();
+    let text = benchrec::signoff::pdf::page_text(&pdf).unwrap();
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    assert!(flat.contains("gain, dmm 6 V range"), "{flat}");
+    for col in ["VR gain, dmm", "VC gain, dmm", "Vs gain, dmm"] {
+        assert!(!flat.contains(col), "{col} printed");
+    }
 }

@@ -13,6 +13,10 @@
 //!   F.1.2) and a per-reading offset (value 0): N × resolution, or, with no counts, the
 //!   quantisation half-width resolution/2 (rectangular). An absolute accuracy is a per-reading
 //!   offset. The scale `reading` half-width is a further per-reading rectangular offset.
+//! - Ranges (FORMAT.md 1.1): with `ranges` on the instrument, each group's readings of a column
+//!   are on the range its heading names, else on the smallest listed range that holds them
+//!   all; one gain per (instrument, range), shared by every column and group of the block on
+//!   that range, with that range's accuracy. Counts stay N × resolution.
 //!   The value used in a model is x = mean · gain + Σ offsets. A group's offsets carry the u of
 //!   one reading (not divided by √n): counts and scale reading repeat from reading to reading.
 //! - Resolutions and absolute accuracies apply only to columns of their own unit.

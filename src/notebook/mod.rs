@@ -5,7 +5,8 @@
 //! (`95%`); a tolerance with a leading `±`; `by` on a part for both `measured` and `dcr`, or
 //! `measured_by` / `dcr_by`, or the map form `dcr: {value: 38 ohm, by: dmm}`; accuracy counts
 //! written `+ 3`, `+ 3 counts` or `+ 3 digits`; whitespace tables with a space before a unit
-//! (`1.5 kHz`); headings `f/Hz`, `f / Hz`, `VR (mV)`. A bare `source` or `bandwidth` number
+//! (`1.5 kHz`); headings `f/Hz`, `f / Hz`, `VR (mV)`, and a range after `@` with or without
+//! a space before its unit (`VR/V@2V`, `VR/V@2 V`, `VR/V @2V`). A bare `source` or `bandwidth` number
 //! is in V or Hz; part values need their unit. Readings blocks must sit at the left margin.
 //! Every problem in a notebook is reported in one pass; none panics.
 

@@ -619,4 +619,27 @@ mod tests {
         let src = "|:---|---:|";
         assert!(is_separator_row(src, &pipe_cells(src, 0, src.len())));
     }
+
+    #[test]
+    fn heading_ranges() {
+        let src = "f/Hz  VR/V@2 V  VC/V @20V  Vs/V@ 200mV";
+        let toks = merge_headings(src, ws_tokens(src, 0, src.len()));
+        let texts: Vec<&str> = toks.iter().map(|t| &src[t.start..t.end]).collect();
+        assert_eq!(texts, ["f/Hz", "VR/V@2 V", "VC/V @20V", "Vs/V@ 200mV"]);
+        let mut d = Vec::new();
+        let ranges: Vec<Option<f64>> = toks
+            .iter()
+            .map(|t| parse_heading(src, *t, &mut d).1.expect("valid"))
+            .map(|(c, _)| c.range.map(|r| r.full_scale.value))
+            .collect();
+        assert!(d.is_empty(), "{d:?}");
+        assert_eq!(ranges, [None, Some(2.0), Some(20.0), Some(0.2)]);
+        let src = "VR/V@2mA";
+        let tok = CellRange {
+            start: 0,
+            end: src.len(),
+        };
+        assert!(parse_heading(src, tok, &mut d).1.is_none());
+        assert_eq!((d.len(), d[0].span.start), (1, 5), "{d:?}");
+    }
 }
