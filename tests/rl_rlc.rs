@@ -39,6 +39,8 @@ fn dmm() -> Instrument {
         due: None,
         reading: None,
         distribution: Distribution::Rectangular,
+        ranges: Vec::new(),
+        range_accuracy: Vec::new(),
         span: Span::default(),
     }
 }
@@ -70,6 +72,7 @@ fn block(network: Network, cols: &[(&str, Unit)], rows: &[Vec<f64>]) -> Readings
             symbol: s.to_string(),
             unit: *u,
             heading: format!("{s}/{}", u.symbol()),
+            range: None,
             span: sp(),
         })
         .collect();

@@ -13,6 +13,10 @@
 //!   F.1.2) and a per-reading offset (value 0): N × resolution, or, with no counts, the
 //!   quantisation half-width resolution/2 (rectangular). An absolute accuracy is a per-reading
 //!   offset. The scale `reading` half-width is a further per-reading rectangular offset.
+//! - Ranges (FORMAT.md 1.1): with `ranges` on the instrument, each group's readings of a column
+//!   are on the range its heading names, else on the smallest listed range that holds them
+//!   all; one gain per (instrument, range), shared by every column and group of the block on
+//!   that range, with that range's accuracy. Counts stay N × resolution.
 //!   The value used in a model is x = mean · gain + Σ offsets. A group's offsets carry the u of
 //!   one reading (not divided by √n): counts and scale reading repeat from reading to reading.
 //! - Resolutions and absolute accuracies apply only to columns of their own unit.
@@ -31,7 +35,7 @@ use crate::notebook::{
     Accuracy, Column, Distribution, Instrument, Named, PartKind, ReadingsBlock, Tolerance,
 };
 use crate::print::{hz, plain};
-use crate::quantity::Unit;
+use crate::quantity::{dimension_name, Unit};
 use crate::uncertainty::{dist_of, type_a, type_a_correlation, type_b, Dist, Input, Model};
 use std::collections::BTreeMap;
 
@@ -154,6 +158,8 @@ pub struct BlockInputs {
     /// Stated source level and, per group, whether its voltages are normalised to it.
     source: Option<f64>,
     normalise: Vec<bool>,
+    /// Gain input per (instrument, range index), shared by every column read on that range.
+    range_gains: BTreeMap<(String, usize), usize>,
 }
 
 /// Instrument assigned to a column by the block header.
@@ -171,14 +177,49 @@ fn unit_ok(q: &crate::quantity::Quantity, unit: Unit) -> bool {
     q.unit == unit
 }
 
+/// The smallest of `inst`'s ranges in `unit` that holds `x` (index into `inst.ranges`).
+pub fn range_for(inst: &Instrument, unit: Unit, x: f64) -> Option<usize> {
+    inst.ranges
+        .iter()
+        .enumerate()
+        .filter(|(_, r)| r.full_scale.unit == unit && x.abs() <= r.full_scale.value)
+        .min_by(|a, b| a.1.full_scale.value.total_cmp(&b.1.full_scale.value))
+        .map(|(i, _)| i)
+}
+
+/// The accuracy that applies on range `range` (the instrument's one accuracy without a
+/// per-range map).
+pub fn accuracy_at(inst: &Instrument, range: Option<usize>) -> Option<&Accuracy> {
+    if inst.range_accuracy.is_empty() {
+        return inst.accuracy.as_ref();
+    }
+    let r = range?;
+    inst.range_accuracy
+        .iter()
+        .find(|(i, _)| *i == r)
+        .map(|(_, a)| a)
+}
+
+/// A full-scale value as budget names write it: `200 mV`, `2 V`.
+pub fn range_name(q: &crate::quantity::Quantity) -> String {
+    let s = crate::print::quantity_sig(q.value, q.unit, 6);
+    match s.split_once(' ') {
+        Some((num, unit)) if num.contains('.') => {
+            format!("{} {unit}", num.trim_end_matches('0').trim_end_matches('.'))
+        }
+        _ => s,
+    }
+}
+
 /// Half-width of an instrument's accuracy limit for a reading `x` in `unit` (used for the
-/// source-level check): P·|x| + N·resolution, an absolute limit, or resolution/2.
+/// source-level check): P·|x| + N·resolution, an absolute limit, or resolution/2; with
+/// `ranges`, the accuracy of the range that holds `x`.
 pub fn accuracy_limit(inst: &Instrument, x: f64, unit: Unit) -> f64 {
     let res = inst
         .resolution
         .filter(|r| unit_ok(r, unit))
         .map(|r| r.value.abs());
-    match &inst.accuracy {
+    match accuracy_at(inst, range_for(inst, unit, x)) {
         Some(Accuracy::Relative { fraction, counts }) => {
             let c = if *counts > 0.0 {
                 counts * res.unwrap_or(0.0)
@@ -289,6 +330,140 @@ fn check_block<'c>(
     }
 }
 
+/// The range of each group's readings per used column whose instrument lists `ranges`
+/// (FORMAT.md 1.1): the range the heading names, else the smallest listed range that holds
+/// every reading of the group. A heading range the instrument does not list, an instrument
+/// with no range in the column's unit, and a reading over its range are errors at the
+/// notebook.
+fn column_ranges(
+    ctx: &Context,
+    block: &ReadingsBlock,
+    groups: &[Group],
+    used: &[&str],
+) -> Result<BTreeMap<String, Vec<Option<usize>>>, Vec<Diagnostic>> {
+    let mut out = BTreeMap::new();
+    let mut diags = Vec::new();
+    for (ci, c) in block.columns.iter().enumerate() {
+        if !(c.symbol == "f" || used.contains(&c.symbol.as_str())) {
+            continue;
+        }
+        let slot = instrument_slot(block, &c.symbol);
+        let inst = slot.and_then(|n| ctx.instruments.get(&n.name));
+        let iname = slot.map_or("no instrument", |n| n.name.as_str());
+        let listed: Vec<String> = inst
+            .map(|i| i.ranges.iter().filter(|r| r.full_scale.unit == c.unit))
+            .into_iter()
+            .flatten()
+            .map(|r| range_name(&r.full_scale))
+            .collect();
+        let forced = match (&c.range, inst) {
+            (None, _) => None,
+            (Some(r), i) => match i.and_then(|i| {
+                i.ranges
+                    .iter()
+                    .position(|x| crate::notebook::same_range(&x.full_scale, &r.full_scale))
+            }) {
+                Some(p) => Some(p),
+                None => {
+                    let name = range_name(&r.full_scale);
+                    diags.push(
+                        Diagnostic::new(
+                            r.span,
+                            format!("the heading names a {name} range that {iname} does not list"),
+                        )
+                        .expected(if listed.is_empty() {
+                            format!("a `ranges` list on {iname} that holds {name}")
+                        } else {
+                            format!("one of the ranges of {iname}: {}", listed.join(", "))
+                        })
+                        .found(format!("`@{}`", &ctx.source[r.span.start..r.span.end])),
+                    );
+                    continue;
+                }
+            },
+        };
+        let Some(i) = inst.filter(|i| !i.ranges.is_empty()) else {
+            continue;
+        };
+        if listed.is_empty() {
+            diags.push(
+                Diagnostic::new(
+                    c.span,
+                    format!(
+                        "{iname} lists `ranges`, but none in {} for column {}",
+                        dimension_name(c.unit),
+                        c.symbol
+                    ),
+                )
+                .expected(format!(
+                    "the ranges used for {} in the `ranges` of {iname}",
+                    c.symbol
+                ))
+                .found(format!(
+                    "ranges {}",
+                    i.ranges
+                        .iter()
+                        .map(|r| range_name(&r.full_scale))
+                        .collect::<Vec<_>>()
+                        .join(", ")
+                )),
+            );
+            continue;
+        }
+        let mut per_group = Vec::with_capacity(groups.len());
+        for g in groups {
+            let cells = g
+                .rows
+                .iter()
+                .filter_map(|&r| block.rows.get(r)?.cells.get(ci));
+            let Some(top) = cells.max_by(|a, b| a.value.abs().total_cmp(&b.value.abs())) else {
+                per_group.push(None);
+                continue;
+            };
+            let over = |fs: &crate::quantity::Quantity| top.value.abs() > fs.value;
+            let chosen = match forced {
+                Some(p) => {
+                    Some(p).filter(|&p| !i.ranges.get(p).is_some_and(|r| over(&r.full_scale)))
+                }
+                None => range_for(i, c.unit, top.value),
+            };
+            if chosen.is_none() {
+                let fs = match forced.and_then(|p| i.ranges.get(p)) {
+                    Some(r) => r.full_scale.value,
+                    None => i
+                        .ranges
+                        .iter()
+                        .filter(|r| r.full_scale.unit == c.unit)
+                        .map(|r| r.full_scale.value)
+                        .fold(0.0, f64::max),
+                };
+                let fs_name = range_name(&crate::quantity::Quantity {
+                    value: fs,
+                    unit: c.unit,
+                });
+                let limit = if forced.is_some() {
+                    format!("the {fs_name} range its heading names")
+                } else {
+                    format!("{fs_name}, the largest range of {iname}")
+                };
+                diags.push(
+                    Diagnostic::new(top.span, format!("reading `{}` in column {} is over range: above {limit}", top.text, c.symbol))
+                        .expected(format!("a reading of at most {fs_name}"))
+                        .found(format!("`{}`", top.text))
+                        .help(format!("add the range it was read on to the `ranges` of {iname}, or name it in the heading (`{}/{}@…`)", c.symbol, c.unit.symbol())),
+                );
+            }
+            per_group.push(chosen);
+        }
+        out.insert(c.symbol.clone(), per_group);
+    }
+    if diags.is_empty() {
+        Ok(out)
+    } else {
+        Err(diags)
+    }
+}
+
 impl BlockInputs {
     /// Builds the inputs of a block for a network's `spec`.
     pub fn build(
@@ -313,7 +488,9 @@ impl BlockInputs {
             resistor: None,
             source: block.source,
             normalise: vec![false; groups.len()],
+            range_gains: BTreeMap::new(),
         };
+        let ranges = column_ranges(ctx, block, &groups, &used)?;
         for c in &block.columns {
             let s = c.symbol.as_str();
             if s != "f" && !used.contains(&s) {
@@ -346,8 +523,19 @@ impl BlockInputs {
                     ),
                 });
             }
-            let terms = bi.type_b_terms(c, inst);
-            let idx_per_group = bi.column_values(block, c, ci, inst, &terms);
+            let col_ranges = ranges.get(s).map(Vec::as_slice).unwrap_or(&[]);
+            let mut terms: Vec<(Option<usize>, TypeBTerms)> = Vec::new();
+            for r in col_ranges
+                .iter()
+                .copied()
+                .chain(col_ranges.is_empty().then_some(None))
+            {
+                if !terms.iter().any(|(x, _)| *x == r) {
+                    let t = bi.type_b_terms(c, inst, r);
+                    terms.push((r, t));
+                }
+            }
+            let idx_per_group = bi.column_values(block, c, ci, inst, (&terms, col_ranges));
             col_inputs.insert(s.to_string(), idx_per_group);
         }
         bi.type_a_correlations(block, &used, &col_inputs);
@@ -418,12 +606,14 @@ impl BlockInputs {
         }
     }
 
-    /// The Type B terms of column `c` read with `inst`: the gain input shared by the whole
-    /// column (pushed here), and the per-reading offsets' standard uncertainties.
+    /// The Type B terms of column `c` read with `inst` on range `range`: the gain input (pushed
+    /// here; one per column without ranges, one per instrument range with them), and the
+    /// per-reading offsets' standard uncertainties.
     fn type_b_terms<'i>(
         &mut self,
         c: &Column,
         inst: Option<(&'i str, &Instrument)>,
+        range: Option<usize>,
     ) -> TypeBTerms<'i> {
         let mut t = TypeBTerms {
             gain: None,
@@ -441,16 +631,10 @@ impl BlockInputs {
             .resolution
             .filter(|r| unit_ok(r, c.unit))
             .map(|r| r.value.abs());
-        match &i.accuracy {
+        match accuracy_at(i, range) {
             Some(Accuracy::Relative { fraction, counts }) => {
                 if *fraction != 0.0 {
-                    self.inputs.push(Input::type_b(
-                        format!("gain({iname},{s})"),
-                        1.0,
-                        type_b(*fraction, i.distribution),
-                        dist_of(i.distribution),
-                    ));
-                    t.gain = Some(self.inputs.len() - 1);
+                    t.gain = Some(self.gain_input(iname, i, s, (range, *fraction)));
                 }
                 if *counts > 0.0 {
                     match res {
@@ -511,21 +695,64 @@ impl BlockInputs {
         t
     }
 
+    /// The gain input of column `s` read with `i` (`iname`): `fraction` is its accuracy's
+    /// percent of reading on `range`. On a range, one input per (instrument, range), made at
+    /// its first use; without ranges, one per column.
+    fn gain_input(
+        &mut self,
+        iname: &str,
+        i: &Instrument,
+        s: &str,
+        (range, fraction): (Option<usize>, f64),
+    ) -> usize {
+        let key = range.map(|r| (iname.to_string(), r));
+        if let Some(&g) = key.as_ref().and_then(|k| self.range_gains.get(k)) {
+            return g;
+        }
+        let what = match range.and_then(|r| i.ranges.get(r)) {
+            Some(r) => format!("{} range", range_name(&r.full_scale)),
+            None => s.to_string(),
+        };
+        self.inputs.push(Input::type_b(
+            format!("gain({iname},{what})"),
+            1.0,
+            type_b(fraction, i.distribution),
+            dist_of(i.distribution),
+        ));
+        let g = self.inputs.len() - 1;
+        if let Some(k) = key {
+            self.range_gains.insert(k, g);
+        }
+        g
+    }
+
     /// Per group: the mean input of column `c` (cell index `ci`; Type A over the group's
-    /// repeats) and its offset inputs. Returns each group's mean input (None for `f`).
+    /// repeats) and its offset inputs, with the Type B terms of the group's range (`terms`
+    /// per range, and each group's range; no ranges: one entry for None). Returns each
+    /// group's mean input (None for `f`).
     fn column_values(
         &mut self,
         block: &ReadingsBlock,
         c: &Column,
         ci: usize,
         inst: Option<(&str, &Instrument)>,
-        terms: &TypeBTerms,
+        (terms, ranges): (&[(Option<usize>, TypeBTerms)], &[Option<usize>]),
     ) -> Vec<Option<usize>> {
         let s = c.symbol.as_str();
         let gname = |g: &Group| g.f.map(|f| format!("@{}", hz(f))).unwrap_or_default();
+        let none = TypeBTerms {
+            gain: None,
+            count: None,
+            read: None,
+        };
         let mut per_group = Vec::with_capacity(self.groups.len());
         let mut idx_per_group = Vec::with_capacity(self.groups.len());
         for (gi, g) in self.groups.iter().enumerate() {
+            let range = ranges.get(gi).copied().flatten();
+            let terms = terms
+                .iter()
+                .find(|(r, _)| *r == range)
+                .map_or(&none, |(_, t)| t);
             let tag = format!("{s}{}", gname(g));
             let samples: Vec<f64> = g
                 .rows
@@ -843,7 +1070,18 @@ fn series_resistor(
                         });
                     }
                 }
-                if i.accuracy.is_none() && i.resolution.is_none() {
+                let on = range_for(i, Unit::Ohm, r);
+                let ohm_ranges = i.ranges.iter().any(|x| x.full_scale.unit == Unit::Ohm);
+                if on.is_none() && (ohm_ranges || !i.range_accuracy.is_empty()) {
+                    return Err(vec![Diagnostic::new(
+                        part.span,
+                        format!("no ohms range of {b} holds the measured value of {name}"),
+                    )
+                    .expected(format!("a range of {b} that holds {}", range_name(m)))
+                    .found(range_name(m))]);
+                }
+                let acc = accuracy_at(i, on);
+                if acc.is_none() && i.resolution.is_none() {
                     flags.push(Flag {
                         warn: false,
                         span: Some(i.span),
@@ -851,7 +1089,7 @@ fn series_resistor(
                     });
                 }
                 let a = accuracy_limit(i, r, Unit::Ohm);
-                let d = if i.accuracy.is_some() {
+                let d = if acc.is_some() {
                     i.distribution
                 } else {
                     Distribution::Rectangular
@@ -921,6 +1159,8 @@ pub(crate) mod testutil {
             due: None,
             reading: None,
             distribution: Distribution::Rectangular,
+            ranges: Vec::new(),
+            range_accuracy: Vec::new(),
             span: Span::default(),
         }
     }
@@ -952,6 +1192,7 @@ pub(crate) mod testutil {
                 symbol: s.to_string(),
                 unit: *u,
                 heading: format!("{s}/{}", u.symbol()),
+                range: None,
                 span: Span::default(),
             })
             .collect();

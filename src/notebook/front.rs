@@ -5,8 +5,8 @@ use super::values::ValueReader;
 use super::words::one_of;
 use super::yaml::{kind_name, YamlLocator};
 use super::{
-    Accuracy, Decision, Distribution, FrontMatter, Instrument, Part, PartKind, Signoff, Tolerance,
-    IEC_60062_CODES,
+    Accuracy, Decision, Distribution, FrontMatter, Instrument, Part, PartKind, Range, Signoff,
+    Tolerance, IEC_60062_CODES,
 };
 use crate::diag::{Diagnostic, Span};
 use crate::quantity::{
@@ -42,6 +42,7 @@ const INSTRUMENT_KEYS: &[&str] = &[
     "reading",
     "distribution",
     "k",
+    "ranges",
 ];
 const PART_KEYS: &[&str] = &[
     "kind",
@@ -387,15 +388,22 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
         due: None,
         reading: None,
         distribution: Distribution::Rectangular,
+        ranges: Vec::new(),
+        range_accuracy: Vec::new(),
         span,
     };
     let entries = ex.entries(&["instruments", name], v, Some(INSTRUMENT_KEYS));
+    let mut by_range = Vec::new();
     let mut dist: Option<(String, Span)> = None;
     let mut k: Option<(f64, Span)> = None;
     for (key, val) in &entries {
         let path = ["instruments", name, key.as_str()];
         match key.as_str() {
             "what" => ins.what = ex.text(&path, val),
+            "ranges" => ins.ranges = ranges(ex, name, val),
+            "accuracy" if matches!(val, Value::Mapping(_)) => {
+                by_range = accuracy_map(ex, name, val)
+            }
             "accuracy" => {
                 if let Some(t) = ex.text(&path, val) {
                     match parse_accuracy(&t) {
@@ -405,23 +413,7 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
                 }
             }
             "resolution" => {
-                let q = ex.quantity(
-                    &path,
-                    val,
-                    &[
-                        Unit::V,
-                        Unit::A,
-                        Unit::Ohm,
-                        Unit::F,
-                        Unit::H,
-                        Unit::Hz,
-                        Unit::S,
-                        Unit::W,
-                        Unit::Rad,
-                        Unit::Div,
-                    ],
-                    None,
-                );
+                let q = ex.quantity(&path, val, MEASURED_UNITS, None);
                 ins.resolution = ex.positive(&path, q, "resolution");
             }
             "bandwidth" => {
@@ -486,6 +478,7 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
         },
         Some((Err(dg), _)) => ex.err(dg),
     }
+    ins.range_accuracy = match_ranges(ex, name, &ins.ranges, by_range);
     if let (Some(c), Some(du)) = (ins.calibrated, ins.due) {
         if du < c {
             let sp = ex.y.value_span(&["instruments", name, "due"]);
@@ -497,6 +490,177 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
         }
     }
     Some(ins)
+}
+
+/// Units a range (and a resolution) may be in.
+const MEASURED_UNITS: &[Unit] = &[
+    Unit::V,
+    Unit::A,
+    Unit::Ohm,
+    Unit::F,
+    Unit::H,
+    Unit::Hz,
+    Unit::S,
+    Unit::W,
+    Unit::Rad,
+    Unit::Div,
+];
+
+/// A range's full-scale value written `text` at `span`: a positive quantity with a unit.
+pub(super) fn range_value(
+    text: &str,
+    span: Span,
+    at: impl Fn(&QuantityError) -> Span,
+) -> Result<Quantity, Diagnostic> {
+    let q = parse_quantity(text).map_err(|e| {
+        Diagnostic::new(at(&e), format!("range `{}`: {}", text.trim(), e.message))
+            .expected("a full-scale value with its unit, e.g. `2 V` or `200 mV`")
+            .found(format!("`{}`", e.found))
+    })?;
+    if !MEASURED_UNITS.contains(&q.unit) {
+        return Err(Diagnostic::new(
+            span,
+            format!("range `{}` is not a quantity with a unit", text.trim()),
+        )
+        .expected("a full-scale value with its unit, e.g. `2 V` or `200 mV`")
+        .found(format!("`{}`", text.trim())));
+    }
+    if !(q.value > 0.0 && q.value.is_finite()) {
+        return Err(Diagnostic::new(
+            span,
+            format!("range `{}` must be greater than zero", text.trim()),
+        )
+        .expected("a positive full-scale value")
+        .found(format!("`{}`", text.trim())));
+    }
+    Ok(q)
+}
+
+/// Whether two full-scale values are the same range (`2 V` and `2000 mV` are).
+pub fn same_range(a: &Quantity, b: &Quantity) -> bool {
+    a.unit == b.unit && (a.value - b.value).abs() <= 1e-9 * a.value.abs().max(b.value.abs())
+}
+
+/// An instrument's `ranges`: a list of full-scale values, each once.
+fn ranges(ex: &mut ValueReader, name: &str, v: &Value) -> Vec<Range> {
+    let path = ["instruments", name, "ranges"];
+    let Value::Sequence(items) = v else {
+        let span = ex.y.value_span(&path);
+        ex.err(
+            Diagnostic::new(span, "`ranges` must be a list of full-scale values")
+                .expected("e.g. `ranges: [200 mV, 2 V, 20 V]`")
+                .found(kind_name(v)),
+        );
+        return Vec::new();
+    };
+    let mut out: Vec<Range> = Vec::new();
+    for item in items {
+        let Some(text) = ex
+            .text_of(&path, item)
+            .filter(|_| !matches!(item, Value::Sequence(_) | Value::Mapping(_)))
+        else {
+            ex.err(
+                Diagnostic::new(
+                    ex.y.value_span(&path),
+                    "a range must be a value with a unit",
+                )
+                .expected("e.g. `2 V`")
+                .found(kind_name(item)),
+            );
+            continue;
+        };
+        let span = ex.y.item_span(&path, text.trim());
+        match range_value(&text, span, |e| ex.y.quantity_span(span, &text, e)) {
+            Ok(q) if out.iter().any(|r| same_range(&r.full_scale, &q)) => ex.err(
+                Diagnostic::new(span, format!("range `{}` is listed twice", text.trim()))
+                    .expected("each range once")
+                    .found(format!("`{}` again", text.trim())),
+            ),
+            Ok(q) => out.push(Range {
+                full_scale: q,
+                span,
+            }),
+            Err(dg) => ex.err(dg),
+        }
+    }
+    out
+}
+
+/// `accuracy` as a map from range to spec: (range, accuracy, span of the key).
+fn accuracy_map(ex: &mut ValueReader, name: &str, v: &Value) -> Vec<(Quantity, Accuracy, Span)> {
+    let mut out = Vec::new();
+    for (key, val) in ex.entries(&["instruments", name, "accuracy"], v, None) {
+        let path = ["instruments", name, "accuracy", key.as_str()];
+        let kspan = ex.y.key_span(&path);
+        let q = match range_value(&key, kspan, |_| kspan) {
+            Ok(q) => q,
+            Err(dg) => {
+                ex.err(dg);
+                continue;
+            }
+        };
+        let Some(t) = ex.text(&path, val) else {
+            continue;
+        };
+        match parse_accuracy(&t) {
+            Ok(a) => out.push((q, a, kspan)),
+            Err(e) => ex.quantity_error(&path, &t, e),
+        }
+    }
+    out
+}
+
+/// Ties each key of a per-range accuracy to a listed range; every range needs one.
+fn match_ranges(
+    ex: &mut ValueReader,
+    name: &str,
+    ranges: &[Range],
+    by_range: Vec<(Quantity, Accuracy, Span)>,
+) -> Vec<(usize, Accuracy)> {
+    if by_range.is_empty() {
+        return Vec::new();
+    }
+    let listed = if ranges.is_empty() {
+        "no `ranges`".to_string()
+    } else {
+        ranges
+            .iter()
+            .map(|r| ex.y.src[r.span.start..r.span.end].to_string())
+            .collect::<Vec<_>>()
+            .join(", ")
+    };
+    let mut out: Vec<(usize, Accuracy)> = Vec::new();
+    for (q, a, kspan) in by_range {
+        match ranges.iter().position(|r| same_range(&r.full_scale, &q)) {
+            Some(i) => out.push((i, a)),
+            None => {
+                let key = ex.y.src[kspan.start..kspan.end].to_string();
+                ex.err(
+                    Diagnostic::new(
+                        kspan,
+                        format!("accuracy for `{key}`, a range {name} does not list"),
+                    )
+                    .expected(format!("one of the instrument's `ranges` ({listed})"))
+                    .found(format!("`{key}`")),
+                );
+            }
+        }
+    }
+    let aspan = ex.y.key_span(&["instruments", name, "accuracy"]);
+    for (i, r) in ranges.iter().enumerate() {
+        if !out.iter().any(|(j, _)| *j == i) {
+            let text = ex.y.src[r.span.start..r.span.end].to_string();
+            ex.err(
+                Diagnostic::new(
+                    aspan,
+                    format!("`accuracy` of {name} gives nothing for its `{text}` range"),
+                )
+                .expected(format!("an entry `{text}: …` in the accuracy map"))
+                .found("no such entry"),
+            );
+        }
+    }
+    out
 }
 
 fn part(

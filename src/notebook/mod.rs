@@ -5,7 +5,8 @@
 //! (`95%`); a tolerance with a leading `±`; `by` on a part for both `measured` and `dcr`, or
 //! `measured_by` / `dcr_by`, or the map form `dcr: {value: 38 ohm, by: dmm}`; accuracy counts
 //! written `+ 3`, `+ 3 counts` or `+ 3 digits`; whitespace tables with a space before a unit
-//! (`1.5 kHz`); headings `f/Hz`, `f / Hz`, `VR (mV)`. A bare `source` or `bandwidth` number
+//! (`1.5 kHz`); headings `f/Hz`, `f / Hz`, `VR (mV)`, and a range after `@` with or without
+//! a space before its unit (`VR/V@2V`, `VR/V@2 V`, `VR/V @2V`). A bare `source` or `bandwidth` number
 //! is in V or Hz; part values need their unit. Readings blocks must sit at the left margin.
 //! Every problem in a notebook is reported in one pass; none panics.
 
@@ -22,7 +23,7 @@ mod values;
 mod words;
 mod yaml;
 
-pub use front::{parse_accuracy, parse_iso_date};
+pub use front::{parse_accuracy, parse_iso_date, same_range};
 pub use table::UNIT_COLUMN;
 
 use crate::diag::{Diagnostic, Span};
@@ -121,6 +122,17 @@ pub struct Instrument {
     /// Half-width of reading a scale (e.g. 0.05 div).
     pub reading: Option<Quantity>,
     pub distribution: Distribution,
+    /// Full-scale values of the ranges used (`ranges`), as listed.
+    pub ranges: Vec<Range>,
+    /// `accuracy` given per range: (index into `ranges`, accuracy); `accuracy` is then None.
+    pub range_accuracy: Vec<(usize, Accuracy)>,
+    pub span: Span,
+}
+
+/// One range of an instrument, or the range a column heading names (`VR/V@2V`).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Range {
+    pub full_scale: Quantity,
     pub span: Span,
 }
 
@@ -240,6 +252,8 @@ pub struct Column {
     pub unit: Unit,
     /// Heading exactly as written (e.g. `f/Hz`).
     pub heading: String,
+    /// The instrument range the heading names (`VR/V@2V`).
+    pub range: Option<Range>,
     pub span: Span,
 }
 

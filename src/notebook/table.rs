@@ -1,7 +1,8 @@
 //! Readings tables: cells of pipe and whitespace tables, column headings, plausible ranges.
 
+use super::front::range_value;
 use super::words::{list, unknown};
-use super::{line_text, symbol_unit, Cell, Column, Line, Named, Row, SYMBOLS};
+use super::{line_text, symbol_unit, Cell, Column, Line, Named, Range, Row, SYMBOLS};
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse_unit, Unit};
 
@@ -87,9 +88,15 @@ fn merge_headings(src: &str, toks: Vec<CellRange>) -> Vec<CellRange> {
         let text = &src[t.start..t.end];
         let joins = out.last().is_some_and(|p| {
             let prev = &src[p.start..p.end];
+            let bare_range = prev
+                .split_once('@')
+                .is_some_and(|(_, r)| !r.is_empty() && quantity::number_len(r) == Some(r.len()));
             text.starts_with('(')
                 || text.starts_with('/')
+                || text.starts_with('@')
                 || (prev.ends_with('/') && !prev.contains('('))
+                || prev.ends_with('@')
+                || (bare_range && parse_unit(text).is_some())
         });
         match out.last_mut() {
             Some(p) if joins => p.end = t.end,
@@ -135,6 +142,16 @@ fn parse_heading(
     tok: CellRange,
     d: &mut Vec<Diagnostic>,
 ) -> (Option<String>, Option<(Column, f64)>) {
+    let full = &src[tok.start..tok.end];
+    let full_span = Span::new(tok.start, tok.end);
+    // `VR/V@2V`: the part after `@` names the instrument range.
+    let (tok, range_tok) = match full.find('@') {
+        Some(p) => (
+            trim_tok(src, tok.start, tok.start + p),
+            Some(trim_tok(src, tok.start + p + 1, tok.end)),
+        ),
+        None => (tok, None),
+    };
     let text = &src[tok.start..tok.end];
     let span = Span::new(tok.start, tok.end);
     let (sym_rel, unit_rel) = if let Some(p) = text.find('/') {
@@ -206,18 +223,82 @@ fn parse_heading(
         );
         return (symbol, None);
     }
+    let range = match range_tok {
+        None => None,
+        Some(rt) => Some(heading_range(src, rt, &symbol_s, want, full_span, d).ok_or(())),
+    };
+    if let Some(Err(())) = range {
+        return (symbol, None);
+    }
     (
         symbol,
         Some((
             Column {
                 symbol: symbol_s,
                 unit,
-                heading: text.to_string(),
-                span,
+                heading: full.to_string(),
+                range: range.and_then(Result::ok),
+                span: full_span,
             },
             factor,
         )),
     )
+}
+
+/// The range a heading names after `@` (token `rt`), in the column's unit `want`.
+fn heading_range(
+    src: &str,
+    rt: CellRange,
+    sym: &str,
+    want: Unit,
+    heading: Span,
+    d: &mut Vec<Diagnostic>,
+) -> Option<Range> {
+    let rtext = &src[rt.start..rt.end];
+    if rtext.is_empty() {
+        d.push(
+            Diagnostic::new(
+                heading,
+                format!("`@` in the heading of `{sym}` names no range"),
+            )
+            .expected(format!(
+                "a range after `@`, e.g. `{sym}/{}@2{}`",
+                want.symbol(),
+                want.symbol()
+            ))
+            .found(format!("`{}`", &src[heading.start..heading.end])),
+        );
+        return None;
+    }
+    let rspan = Span::new(rt.start, rt.end);
+    let at = |e: &quantity::QuantityError| {
+        let s = rt.start + e.offset.min(rtext.len());
+        Span::new(s, (s + e.len.max(1)).min(rt.end).max(s))
+    };
+    match range_value(rtext, rspan, at) {
+        Err(dg) => {
+            d.push(dg);
+            None
+        }
+        Ok(q) if q.unit != want => {
+            d.push(
+                Diagnostic::new(
+                    rspan,
+                    format!(
+                        "range `{rtext}` is not in {} as column `{sym}` is",
+                        dimension_name(want)
+                    ),
+                )
+                .expected(format!("a range in {} for `{sym}`", dimension_name(want)))
+                .found(format!("`{rtext}`")),
+            );
+            None
+        }
+        Ok(q) => Some(Range {
+            full_scale: q,
+            span: rspan,
+        }),
+    }
 }
 
 /// The plausible range of each column's readings (SI): (symbol, smallest nonzero magnitude,
@@ -596,5 +677,28 @@ mod tests {
         assert_eq!(texts, ["1.5 kHz", "12 mV", "3", "x", "V", "-2 V"]);
         let src = "|:---|---:|";
         assert!(is_separator_row(src, &pipe_cells(src, 0, src.len())));
+    }
+
+    #[test]
+    fn heading_ranges() {
+        let src = "f/Hz  VR/V@2 V  VC/V @20V  Vs/V@ 200mV";
+        let toks = merge_headings(src, ws_tokens(src, 0, src.len()));
+        let texts: Vec<&str> = toks.iter().map(|t| &src[t.start..t.end]).collect();
+        assert_eq!(texts, ["f/Hz", "VR/V@2 V", "VC/V @20V", "Vs/V@ 200mV"]);
+        let mut d = Vec::new();
+        let ranges: Vec<Option<f64>> = toks
+            .iter()
+            .map(|t| parse_heading(src, *t, &mut d).1.expect("valid"))
+            .map(|(c, _)| c.range.map(|r| r.full_scale.value))
+            .collect();
+        assert!(d.is_empty(), "{d:?}");
+        assert_eq!(ranges, [None, Some(2.0), Some(20.0), Some(0.2)]);
+        let src = "VR/V@2mA";
+        let tok = CellRange {
+            start: 0,
+            end: src.len(),
+        };
+        assert!(parse_heading(src, tok, &mut d).1.is_none());
+        assert_eq!((d.len(), d[0].span.start), (1, 5), "{d:?}");
     }
 }

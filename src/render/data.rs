@@ -111,19 +111,31 @@ fn print_unit(u: &str) -> String {
     }
 }
 
-fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::NaiveDate) -> Value {
-    let accuracy = match &i.accuracy {
-        Some(Accuracy::Relative { fraction, counts }) if *counts > 0.0 => Some(format!(
+fn accuracy_text(a: &Accuracy) -> String {
+    match a {
+        Accuracy::Relative { fraction, counts } if *counts > 0.0 => format!(
             "±({} of reading + {} counts)",
             print::percent(*fraction),
             print::trim(*counts)
-        )),
-        Some(Accuracy::Relative { fraction, .. }) => {
-            Some(format!("±{} of reading", print::percent(*fraction)))
-        }
-        Some(Accuracy::Absolute(a)) => Some(format!("±{}", q(a))),
-        None => None,
-    };
+        ),
+        Accuracy::Relative { fraction, .. } => format!("±{} of reading", print::percent(*fraction)),
+        Accuracy::Absolute(a) => format!("±{}", q(a)),
+    }
+}
+
+fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::NaiveDate) -> Value {
+    let mut accuracy = i.accuracy.as_ref().map(accuracy_text);
+    if !i.range_accuracy.is_empty() {
+        let per: Vec<String> = (i.range_accuracy.iter())
+            .filter_map(|(r, a)| Some((i.ranges.get(*r)?, a)))
+            .map(|(r, a)| format!("{} on {}", accuracy_text(a), q(&r.full_scale)))
+            .collect();
+        accuracy = Some(per.join("; "));
+    } else if !i.ranges.is_empty() {
+        let ranges: Vec<String> = i.ranges.iter().map(|r| q(&r.full_scale)).collect();
+        let head = accuracy.map(|a| format!("{a}; ")).unwrap_or_default();
+        accuracy = Some(format!("{head}ranges {}", ranges.join(", ")));
+    }
     let overdue = i.due.is_some_and(|d| d < date);
     json!({
         "name": name,
@@ -221,6 +233,10 @@ pub fn readable_input(name: &str) -> (String, Option<&'static str>) {
         .and_then(|(head, rest)| Some((head, rest.strip_suffix(')')?)))
         .and_then(|(head, args)| Some((head, args.split_once(',')?)));
     match call {
+        // One gain per instrument range (`ranges`): `gain(dmm,2 V range)`.
+        Some(("gain", (inst, range))) if range.ends_with(" range") => {
+            (format!("gain, {inst} {range}"), Some("1"))
+        }
         Some(("gain", (inst, sym))) => (format!("{sym} gain, {inst}"), Some("1")),
         Some((label @ ("counts" | "read"), (inst, tag))) => {
             let (what, unit) = at(tag);

@@ -333,6 +333,7 @@ pub(crate) mod tests {
             symbol: sym.into(),
             unit,
             heading: h.into(),
+            range: None,
             span: s,
         };
         let block = ReadingsBlock {
@@ -410,6 +411,8 @@ pub(crate) mod tests {
                 due: NaiveDate::from_ymd_opt(2026, 6, 1),
                 reading: None,
                 distribution: Distribution::Rectangular,
+                ranges: Vec::new(),
+                range_accuracy: Vec::new(),
                 span: s,
             },
         );
