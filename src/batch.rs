@@ -24,21 +24,62 @@ pub struct Found {
 
 /// Does this Markdown text open with front matter that has a top-level `record` key?
 pub fn looks_like_notebook(text: &str) -> bool {
+    head_kind(text) == Head::Notebook
+}
+
+/// What the head of a `.md` file says it is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Head {
+    /// Front matter with a top-level `record` key (quoted or not).
+    Notebook,
+    /// Front matter with a top-level key that is a near miss for `record` (`recrod`,
+    /// `Record`): built, so the parser reports it at its line instead of a silent skip.
+    NearMiss,
+    /// Anything else: skipped and counted.
+    Other,
+}
+
+/// Reads the front matter's top-level keys (up to its closing line).
+pub fn head_kind(text: &str) -> Head {
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut lines = text.lines();
     if lines.next().map(str::trim_end) != Some("---") {
-        return false;
+        return Head::Other;
     }
+    let mut near = false;
     for line in lines {
         let l = line.trim_end();
         if l == "---" || l == "..." {
-            return false;
+            break;
         }
-        if l.starts_with("record:") || l.starts_with("record :") {
-            return true;
+        if l.starts_with(char::is_whitespace) || l.starts_with('#') {
+            continue;
         }
+        let Some((key, _)) = l.split_once(':') else {
+            continue;
+        };
+        let key = key.trim();
+        let key = key
+            .strip_prefix('"')
+            .and_then(|k| k.strip_suffix('"'))
+            .or_else(|| key.strip_prefix('\'').and_then(|k| k.strip_suffix('\'')))
+            .unwrap_or(key);
+        if key == "record" {
+            return Head::Notebook;
+        }
+        near |= near_record(key);
     }
-    false
+    if near {
+        Head::NearMiss
+    } else {
+        Head::Other
+    }
+}
+
+/// A key one or two edits from `record`, or `record` in another case.
+fn near_record(key: &str) -> bool {
+    key.len() <= 12
+        && (key.eq_ignore_ascii_case("record") || strsim::levenshtein(key, "record") <= 2)
 }
 
 /// Notebook files named directly are always jobs; folders are walked (sorted, so the order is
@@ -80,7 +121,7 @@ pub fn discover(paths: &[PathBuf], out_dir: Option<&Path>) -> (Found, Vec<Failur
                         let mut head = Vec::new();
                         f.take(64 * 1024).read_to_end(&mut head).map(|_| head)
                     })
-                    .map(|b| looks_like_notebook(&String::from_utf8_lossy(&b)))
+                    .map(|b| head_kind(&String::from_utf8_lossy(&b)) != Head::Other)
                     .unwrap_or(false);
                 if !is_nb {
                     found.skipped.push(path.to_path_buf());

@@ -265,13 +265,18 @@ pub fn json_string(rec: &Record) -> String {
 }
 
 /// Column names of the CSV export, one row per result.
-pub const CSV_HEADER: [&str; 10] = [
-    "record", "block", "name", "f", "value", "unit", "u", "k", "U", "verdict",
+pub const CSV_HEADER: [&str; 11] = [
+    "record", "block", "name", "f", "value", "unit", "u", "k", "U", "verdict", "path",
 ];
 
 /// Appends one record's results to a CSV writer (SI units; `f` empty for block results,
 /// `verdict` empty where the result is not judged). The lot figures are in the JSON only.
-pub fn write_csv_rows<W: std::io::Write>(rec: &Record, w: &mut csv::Writer<W>) -> csv::Result<()> {
+/// `path` is the notebook's path as the command line found it (the last column).
+pub fn write_csv_rows<W: std::io::Write>(
+    rec: &Record,
+    path: &str,
+    w: &mut csv::Writer<W>,
+) -> csv::Result<()> {
     let num = |x: f64| format!("{x:e}");
     // A lot's units follow the blocks, each as block `<id>/<serial>`.
     let units = rec.reduction.lots.iter().flat_map(|l| {
@@ -306,6 +311,7 @@ pub fn write_csv_rows<W: std::io::Write>(rec: &Record, w: &mut csv::Writer<W>) -
                 &format!("{}", r.m.k),
                 &num(r.m.expanded),
                 verdict,
+                path,
             ])?;
         }
     }
@@ -313,11 +319,12 @@ pub fn write_csv_rows<W: std::io::Write>(rec: &Record, w: &mut csv::Writer<W>) -
 }
 
 /// The CSV table of several records (header once).
-pub fn csv_string(recs: &[&Record]) -> String {
+/// The CSV table of these records, each with its notebook's path.
+pub fn csv_string(recs: &[(&str, &Record)]) -> String {
     let mut w = csv::Writer::from_writer(Vec::new());
     let _ = w.write_record(CSV_HEADER);
-    for r in recs {
-        let _ = write_csv_rows(r, &mut w);
+    for (path, r) in recs {
+        let _ = write_csv_rows(r, path, &mut w);
     }
     String::from_utf8(w.into_inner().unwrap_or_default()).unwrap_or_default()
 }

@@ -9,6 +9,10 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::Mutex;
+use terminal::{count, missing, paint, paint_err, ColorWhen, Tone};
+
+mod manpage;
+mod terminal;
 
 // Typesetting allocates many small short-lived objects from both build threads; mimalloc
 // keeps per-thread heaps and returns freed memory, where the system allocator fragmented.
@@ -23,6 +27,17 @@ macro_rules! say {
         let mut out = std::io::stdout().lock();
         if let Err(e) = writeln!(out, $($arg)*).and_then(|()| out.flush()) {
             write_failed(&e);
+        }
+    }};
+}
+
+/// A status line (built, up to date, signed, watching) on standard error, unless `-q`.
+macro_rules! status {
+    ($($arg:tt)*) => {{
+        if !terminal::quiet() {
+            use std::io::Write as _;
+            // Best effort: a status line that cannot be written is no reason to fail.
+            let _ = writeln!(std::io::stderr().lock(), $($arg)*);
         }
     }};
 }
@@ -52,6 +67,19 @@ fn write_failed(e: &std::io::Error) -> ! {
 struct Cli {
     #[command(subcommand)]
     verb: Verb,
+    /// No status lines (built, up to date, signed, watching); errors and results still print
+    #[arg(short, long, global = true)]
+    quiet: bool,
+    /// Colour the words that matter (error, warning, FAIL): on a terminal (auto, the default,
+    /// and never when NO_COLOR is set), always, or never
+    #[arg(
+        long,
+        value_enum,
+        global = true,
+        default_value = "auto",
+        value_name = "WHEN"
+    )]
+    color: ColorWhen,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -72,6 +100,9 @@ enum Shell {
 #[derive(Subcommand)]
 enum Verb {
     /// Reduce notebooks and write their PDF records (default: <stem>.pdf beside each one)
+    #[command(
+        after_help = "Examples:\n  benchrec build lab/notebook.md\n  benchrec build lab/ -o archive/"
+    )]
     Build {
         /// Notebook files, or folders to search for notebooks (.md with a `record` key)
         #[arg(required = true)]
@@ -84,6 +115,9 @@ enum Verb {
         force: bool,
     },
     /// Parse and reduce, report every problem, write nothing
+    #[command(
+        after_help = "Examples:\n  benchrec check lab/notebook.md\n  benchrec check -v --strict lab/"
+    )]
     Check {
         /// Notebook files, or folders to search for notebooks
         #[arg(required = true)]
@@ -96,16 +130,26 @@ enum Verb {
         #[arg(long)]
         strict: bool,
     },
-    /// Print results on standard output (SI units): JSON for one notebook, or CSV
+    /// Print results on standard output (SI units): JSON for one notebook (an array for
+    /// several), or one CSV table with a path column
+    #[command(
+        after_help = "Examples:\n  benchrec results lab/notebook.md\n  benchrec results lab/ --format csv > all.csv"
+    )]
     Results {
-        /// A notebook, or a folder (one CSV table for every notebook under it)
-        path: PathBuf,
+        /// Notebooks, or folders to search for notebooks
+        #[arg(required = true)]
+        paths: Vec<PathBuf>,
+        /// json: FORMAT.md's document (an array for several notebooks); csv: one row per result
         #[arg(long, value_enum, default_value = "json")]
         format: Format,
     },
     /// Sign a notebook: name, time and digest of its front matter and readings, with an SSH
     /// key signature when --key is given
+    #[command(
+        after_help = "Example:\n  benchrec sign lab/notebook.md --by ana@lab.example --key ~/.ssh/benchrec_ana"
+    )]
     Sign {
+        /// The notebook to sign (its `signoff` entry is written in place, atomically)
         notebook: PathBuf,
         /// Name or identity of the person signing (as listed in the allowed-signers file)
         #[arg(long)]
@@ -122,7 +166,11 @@ enum Verb {
         accept: Option<String>,
     },
     /// Say what a record's sign-off proves: a notebook, a PDF, or every PDF under a folder
+    #[command(
+        after_help = "Examples:\n  benchrec verify lab/notebook.pdf\n  benchrec verify archive/ --signers allowed_signers"
+    )]
     Verify {
+        /// A notebook, a record PDF, or a folder of record PDFs
         path: PathBuf,
         /// OpenSSH allowed-signers file: accept only keys listed for the signer's name
         #[arg(long, value_name = "FILE")]
@@ -130,27 +178,40 @@ enum Verb {
     },
     /// Write DIR/index.html and DIR/index.pdf: every record PDF under DIR with its state,
     /// verdict counts, warnings and instruments past due (incremental)
-    Index { dir: PathBuf },
+    #[command(after_help = "Example:\n  benchrec index archive/")]
+    Index {
+        /// The archive folder (searched recursively)
+        dir: PathBuf,
+    },
     /// Rebuild a notebook (or every notebook under a folder) each time it is saved
+    #[command(after_help = "Example:\n  benchrec watch lab/notebook.md")]
     Watch {
+        /// A notebook, or a folder of notebooks
         path: PathBuf,
         /// Stop after this many builds (for scripts and tests)
         #[arg(long, hide = true)]
         max_builds: Option<usize>,
     },
     /// Write a starter notebook that builds as it stands
+    #[command(after_help = "Example:\n  benchrec new lab/next.md --record LAB-0042")]
     New {
+        /// Where to write it (never over an existing file)
         path: PathBuf,
         /// Record identifier (default: from the file name)
         #[arg(long)]
         record: Option<String>,
     },
     /// Print shell completions for benchrec
+    #[command(
+        after_help = "Example:\n  benchrec completions bash > ~/.local/share/bash-completion/completions/benchrec"
+    )]
     Completions {
+        /// The shell to write completions for
         #[arg(value_enum)]
         shell: Shell,
     },
     /// Print the man page (roff) for benchrec
+    #[command(after_help = "Example:\n  benchrec man > benchrec.1 && man -l benchrec.1")]
     Man,
 }
 
@@ -162,6 +223,7 @@ fn main() -> ExitCode {
         libc::signal(libc::SIGPIPE, libc::SIG_DFL);
     }
     let cli = Cli::parse();
+    terminal::init(cli.quiet, cli.color);
     match cli.verb {
         Verb::Build {
             paths,
@@ -173,7 +235,7 @@ fn main() -> ExitCode {
             verbose,
             strict,
         } => check(&paths, verbose, strict),
-        Verb::Results { path, format } => results(&path, format),
+        Verb::Results { paths, format } => results(&paths, format),
         Verb::Sign {
             notebook,
             by,
@@ -207,32 +269,28 @@ fn main() -> ExitCode {
             say_raw!("{}", String::from_utf8_lossy(&buf));
             ExitCode::SUCCESS
         }
-        Verb::Man => {
-            let man = clap_mangen::Man::new(Cli::command());
-            let mut buf = Vec::new();
-            match man.render(&mut buf) {
-                Ok(()) => {
-                    say_raw!("{}", String::from_utf8_lossy(&buf));
-                    ExitCode::SUCCESS
-                }
-                Err(e) => {
-                    eprintln!("error: {e}");
-                    ExitCode::from(1)
-                }
+        Verb::Man => match manpage::render(&Cli::command()) {
+            Ok(page) => {
+                say_raw!("{page}");
+                ExitCode::SUCCESS
             }
-        }
+            Err(e) => {
+                eprintln!("error: {e}");
+                ExitCode::from(1)
+            }
+        },
     }
 }
 
 fn fail(f: &Failure) -> ExitCode {
-    eprint!("{}", f.report());
+    eprint!("{}", terminal::report(&f.report()));
     ExitCode::from(1)
 }
 
 fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
     for p in paths {
         if !p.exists() {
-            eprintln!("error: {}: no such file or folder", p.display());
+            eprintln!("{}: {}", paint_err("error", Tone::Bad), missing(p));
             return ExitCode::from(1);
         }
     }
@@ -240,7 +298,7 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
     let refused = batch::check_plan(&found.jobs);
     if !refused.is_empty() {
         for f in &refused {
-            eprint!("{}", f.report());
+            eprint!("{}", terminal::report(&f.report()));
         }
         return ExitCode::from(1);
     }
@@ -273,10 +331,10 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
         b.finish_and_clear();
     }
     for r in reports.into_inner().unwrap_or_default() {
-        eprint!("{r}");
+        eprint!("{}", terminal::report(&r));
     }
     for e in &walk_errors {
-        eprint!("{}", e.report());
+        eprint!("{}", terminal::report(&e.report()));
     }
     let (mut built, mut fresh, mut failed) = (0, 0, 0);
     let many = n > 1 || !found.skipped.is_empty();
@@ -284,23 +342,28 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
         match o {
             Outcome::Built { output, seconds } => {
                 built += 1;
-                say!("built       {}  ({seconds:.2} s)", output.display());
+                status!("built       {}  ({seconds:.2} s)", output.display());
             }
             Outcome::UpToDate { output } => {
                 fresh += 1;
-                say!("up to date  {}", output.display());
+                status!("up to date  {}", output.display());
             }
             Outcome::Failed(f) => {
                 failed += 1;
-                say!("FAILED      {}  {}", job.notebook.display(), f.summary());
+                status!(
+                    "{}      {}  {}",
+                    paint_err("FAILED", Tone::Bad),
+                    job.notebook.display(),
+                    f.summary()
+                );
             }
         }
     }
     if many {
         for s in &found.skipped {
-            say!("skipped     {}  (no `record` in front matter)", s.display());
+            status!("skipped     {}  (no `record` in front matter)", s.display());
         }
-        say!(
+        status!(
             "{built} built, {fresh} up to date, {} skipped, {failed} failed",
             found.skipped.len()
         );
@@ -330,18 +393,16 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
     for nb in notebooks_of(paths) {
         match analyse(&nb) {
             Ok(rec) => {
-                let n = |c: usize, one: &str, many: &str| {
-                    format!("{c} {}", if c == 1 { one } else { many })
-                };
                 let flags = rec.reduction.blocks.iter().flat_map(|b| &b.flags);
                 let warnings: Vec<_> = flags.clone().filter(|f| f.warn).collect();
                 let notes: Vec<_> = flags.filter(|f| !f.warn).collect();
                 say!(
-                    "ok {} ({}, {}, {})",
+                    "{} {} ({}, {}, {})",
+                    paint("ok", Tone::Good),
                     nb.display(),
-                    n(rec.reduction.blocks.len(), "block", "blocks"),
-                    n(warnings.len(), "warning", "warnings"),
-                    n(notes.len(), "note", "notes"),
+                    count(rec.reduction.blocks.len(), "block", "blocks"),
+                    count(warnings.len(), "warning", "warnings"),
+                    count(notes.len(), "note", "notes"),
                 );
                 let at = |f: &benchrec::networks::Flag| match f.span {
                     Some(sp) => {
@@ -351,7 +412,12 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
                     None => nb.display().to_string(),
                 };
                 for f in &warnings {
-                    say!("  warning: {}: {}", at(f), f.message);
+                    say!(
+                        "  {}: {}: {}",
+                        paint("warning", Tone::Warn),
+                        at(f),
+                        f.message
+                    );
                 }
                 if verbose {
                     for f in &notes {
@@ -360,18 +426,24 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
                 }
                 for v in &rec.verdicts {
                     let word = match v.outcome {
-                        benchrec::judge::Outcome::Pass => "pass",
-                        benchrec::judge::Outcome::Fail => "FAIL",
-                        benchrec::judge::Outcome::Inconclusive => "inconclusive",
+                        benchrec::judge::Outcome::Pass => {
+                            paint(&format!("{:<12}", "pass"), Tone::Good)
+                        }
+                        benchrec::judge::Outcome::Fail => {
+                            paint(&format!("{:<12}", "FAIL"), Tone::Bad)
+                        }
+                        benchrec::judge::Outcome::Inconclusive => {
+                            paint(&format!("{:<12}", "inconclusive"), Tone::Warn)
+                        }
                     };
                     match &v.serial {
                         Some(u) => say!(
-                            "  {word:<12} {} of {} unit {u} (block {})",
+                            "  {word} {} of {} unit {u} (block {})",
                             v.name,
                             v.part,
                             v.block
                         ),
-                        None => say!("  {word:<12} {} of {} (block {})", v.name, v.part, v.block),
+                        None => say!("  {word} {} of {} (block {})", v.name, v.part, v.block),
                     }
                 }
                 if !benchrec::judge::reservations(&rec).is_empty() {
@@ -379,7 +451,7 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
                 }
             }
             Err(f) => {
-                eprint!("{}", f.report());
+                eprint!("{}", terminal::report(&f.report()));
                 failed += 1;
             }
         }
@@ -391,41 +463,45 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
     }
 }
 
-fn results(path: &Path, format: Format) -> ExitCode {
-    if path.is_dir() {
-        let mut recs = Vec::new();
-        let mut failed = false;
-        for nb in notebooks_of(&[path.to_path_buf()]) {
-            match analyse(&nb) {
-                Ok(r) => recs.push(r),
-                Err(f) => {
-                    eprint!("{}", f.report());
-                    failed = true;
-                }
-            }
+fn results(paths: &[PathBuf], format: Format) -> ExitCode {
+    for p in paths {
+        if !p.exists() {
+            eprintln!("{}: {}", paint_err("error", Tone::Bad), missing(p));
+            return ExitCode::from(1);
         }
-        match format {
-            Format::Csv => say_raw!("{}", export::csv_string(&recs.iter().collect::<Vec<_>>())),
-            Format::Json => {
-                let all: Vec<export::JsonRecord> = recs.iter().map(export::to_json).collect();
-                say!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
-            }
-        }
-        return if failed {
-            ExitCode::from(1)
-        } else {
-            ExitCode::SUCCESS
-        };
     }
-    match analyse(path) {
-        Ok(rec) => {
-            match format {
-                Format::Json => say!("{}", export::json_string(&rec)),
-                Format::Csv => say_raw!("{}", export::csv_string(&[&rec])),
+    // One notebook named: its JSON document, as FORMAT.md gives it. Anything else: an array.
+    let single = paths.len() == 1 && !paths[0].is_dir();
+    let mut recs = Vec::new();
+    let mut failed = false;
+    for nb in notebooks_of(paths) {
+        match analyse(&nb) {
+            Ok(r) => recs.push((nb.display().to_string(), r)),
+            Err(f) => {
+                eprint!("{}", terminal::report(&f.report()));
+                failed = true;
             }
-            ExitCode::SUCCESS
         }
-        Err(f) => fail(&f),
+    }
+    let rows: Vec<(&str, &benchrec::judge::Record)> =
+        recs.iter().map(|(p, r)| (p.as_str(), r)).collect();
+    match format {
+        Format::Csv => say_raw!("{}", export::csv_string(&rows)),
+        Format::Json if single => {
+            if let Some((_, rec)) = rows.first() {
+                say!("{}", export::json_string(rec));
+            }
+        }
+        Format::Json => {
+            let all: Vec<export::JsonRecord> =
+                rows.iter().map(|(_, r)| export::to_json(r)).collect();
+            say!("{}", serde_json::to_string_pretty(&all).unwrap_or_default());
+        }
+    }
+    if failed {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
     }
 }
 
@@ -439,7 +515,7 @@ fn sign(path: &Path, req: &SignRequest) -> ExitCode {
         Some(k) => format!("with key {k}"),
         None => "by name only (no --key: not authenticated)".into(),
     };
-    say!(
+    status!(
         "signed {} as {} on {} {how} ({})",
         done.notebook.display(),
         e.by,
@@ -447,11 +523,11 @@ fn sign(path: &Path, req: &SignRequest) -> ExitCode {
         e.digest
     );
     if let Some(a) = &e.accepted {
-        say!("accepted with reservations: {a}");
+        status!("accepted with reservations: {a}");
     }
     match &done.rebuilt {
-        Some(p) => say!("rebuilt {}", p.display()),
-        None => say!(
+        Some(p) => status!("rebuilt {}", p.display()),
+        None => status!(
             "no PDF beside it yet: run `benchrec build {}` to make the signed record",
             path.display()
         ),
@@ -475,8 +551,8 @@ fn verify(path: &Path, signers: Option<&Path>) -> ExitCode {
             say!("{:<13} {}  {}", r.status.word(), r.path.display(), r.detail);
         }
         say!(
-            "{} record(s) checked, {} not valid{}",
-            reports.len(),
+            "{} checked, {} not valid{}",
+            count(reports.len(), "record", "records"),
             bad,
             if with_list {
                 ""
@@ -511,9 +587,9 @@ fn index(dir: &Path) -> ExitCode {
                 .iter()
                 .filter(|r| r.state == "error" || r.state == "mismatch")
                 .count();
-            say!(
-                "indexed {} record(s) ({} read, {} unchanged) into {} and {}{}",
-                ix.rows.len(),
+            status!(
+                "indexed {} ({} read, {} unchanged) into {} and {}{}",
+                count(ix.rows.len(), "record", "records"),
                 ix.read,
                 ix.rows.len() - ix.read,
                 ix.html.display(),
@@ -533,7 +609,7 @@ fn index(dir: &Path) -> ExitCode {
 fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     use notify::{RecursiveMode, Watcher};
     if !path.exists() {
-        eprintln!("error: {}: no such file or folder", path.display());
+        eprintln!("{}: {}", paint_err("error", Tone::Bad), missing(path));
         return ExitCode::from(1);
     }
     let (tx, rx) = std::sync::mpsc::channel();
@@ -567,7 +643,7 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     } else {
         None
     };
-    say!("watching {} (Ctrl-C to stop)", path.display());
+    status!("watching {} (Ctrl-C to stop)", path.display());
     let mut builds = 0usize;
     // Content last built per notebook: a save that changes nothing is not rebuilt.
     let mut last: std::collections::HashMap<PathBuf, Vec<u8>> = std::collections::HashMap::new();
@@ -577,15 +653,16 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
             pipeline::sweep_temps(dir);
         }
         match pipeline::build_file(nb, None) {
-            Ok(out) => say!(
-                "built {} in {:.2} s",
+            Ok(out) => status!(
+                "built       {}  ({:.2} s)",
                 out.display(),
                 t0.elapsed().as_secs_f64()
             ),
             Err(f) => {
-                eprint!("{}", f.report());
-                say!(
-                    "not built {} ({:.2} s): the last good PDF is kept",
+                eprint!("{}", terminal::report(&f.report()));
+                status!(
+                    "{}      {}  ({:.2} s): the last good PDF is kept",
+                    paint_err("FAILED", Tone::Bad),
                     nb.display(),
                     t0.elapsed().as_secs_f64()
                 );
@@ -617,8 +694,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
                 let p = canon(&p);
                 let wanted = match &single {
                     Some(s) => &p == s,
-                    None => pipeline::read_notebook_bytes(&p)
-                        .is_ok_and(|b| batch::looks_like_notebook(&String::from_utf8_lossy(&b))),
+                    None => pipeline::read_notebook_bytes(&p).is_ok_and(|b| {
+                        batch::head_kind(&String::from_utf8_lossy(&b)) != batch::Head::Other
+                    }),
                 };
                 if wanted && !changed.contains(&p) {
                     changed.push(p);
@@ -663,7 +741,7 @@ fn new_notebook(path: &Path, record: Option<String>) -> ExitCode {
     }
     match pipeline::write_atomic(path, text.as_bytes()) {
         Ok(()) => {
-            say!(
+            status!(
                 "wrote {}: edit it, then `benchrec build {}`",
                 path.display(),
                 path.display()

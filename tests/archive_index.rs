@@ -91,7 +91,8 @@ fn index_lists_every_record_with_its_state_and_counts() {
     assert!(run(&["build", s(d)]).status.success());
     let o = run(&["index", s(d)]);
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    assert!(String::from_utf8_lossy(&o.stdout).contains("4 read"));
+    // The summary is a status line, on standard error.
+    assert!(String::from_utf8_lossy(&o.stderr).contains("4 read"));
     let html = std::fs::read_to_string(d.join("index.html")).unwrap();
     let rows = table_rows(&html);
     assert_eq!(rows.len(), 4, "{rows:?}");
@@ -133,7 +134,7 @@ fn index_lists_every_record_with_its_state_and_counts() {
     assert!(pdf.starts_with(b"%PDF"));
     // Nothing changed: every row from the cache, the same bytes.
     let o = run(&["index", s(d)]);
-    assert!(String::from_utf8_lossy(&o.stdout).contains("0 read, 4 unchanged"));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("0 read, 4 unchanged"));
     assert_eq!(std::fs::read(d.join("index.pdf")).unwrap(), pdf);
     assert_eq!(std::fs::read_to_string(d.join("index.html")).unwrap(), html);
     // A changed reading: that record is read again and shows void.
@@ -146,7 +147,7 @@ fn index_lists_every_record_with_its_state_and_counts() {
     std::fs::write(d.join("tank.md"), t.replacen(&line, &bumped, 1)).unwrap();
     assert!(run(&["build", s(&d.join("tank.md"))]).status.success());
     let o = run(&["index", s(d)]);
-    assert!(String::from_utf8_lossy(&o.stdout).contains("1 read, 3 unchanged"));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("1 read, 3 unchanged"));
     let html = std::fs::read_to_string(d.join("index.html")).unwrap();
     let rows2 = table_rows(&html);
     assert_eq!(

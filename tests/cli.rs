@@ -370,7 +370,7 @@ fn folder_build_builds_good_reports_bad_skips_others_and_caches() {
         Some(1),
         "a failed notebook must make the exit status non-zero"
     );
-    let out = stdout(&o);
+    let out = stderr(&o);
     let err = stderr(&o);
     assert!(dir.path().join("lot1/a.pdf").is_file() && dir.path().join("lot1/sub/b.pdf").is_file());
     assert!(
@@ -400,9 +400,9 @@ fn folder_build_builds_good_reports_bad_skips_others_and_caches() {
     let o = run(&["build", &root]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(
-        stdout(&o).contains("0 built, 2 up to date"),
+        stderr(&o).contains("0 built, 2 up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
 
     // Touching one reading rebuilds exactly that notebook.
@@ -413,18 +413,18 @@ fn folder_build_builds_good_reports_bad_skips_others_and_caches() {
     std::fs::write(&a, t).unwrap();
     let o = run(&["build", &root]);
     assert!(
-        stdout(&o).contains("1 built, 1 up to date"),
+        stderr(&o).contains("1 built, 1 up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
     assert_ne!(std::fs::read(dir.path().join("lot1/a.pdf")).unwrap(), a_pdf);
 
     // --force rebuilds all.
     let o = run(&["build", &root, "--force"]);
     assert!(
-        stdout(&o).contains("2 built, 0 up to date"),
+        stderr(&o).contains("2 built, 0 up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
 }
 
@@ -444,12 +444,12 @@ fn a_changed_user_template_rebuilds_every_notebook_that_uses_it() {
     let root = dir.path().to_str().unwrap();
     let o = run(&["build", root]);
     assert!(o.status.success(), "{}", stderr(&o));
-    assert!(stdout(&o).contains("2 built"), "{}", stdout(&o));
+    assert!(stderr(&o).contains("2 built"), "{}", stderr(&o));
     let o = run(&["build", root]);
     assert!(
-        stdout(&o).contains("0 built, 2 up to date"),
+        stderr(&o).contains("0 built, 2 up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
     std::fs::write(
         &tpl,
@@ -461,9 +461,9 @@ fn a_changed_user_template_rebuilds_every_notebook_that_uses_it() {
     .unwrap();
     let o = run(&["build", root]);
     assert!(
-        stdout(&o).contains("2 built, 0 up to date"),
+        stderr(&o).contains("2 built, 0 up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
 }
 
@@ -523,7 +523,8 @@ fn watch_rebuilds_on_save_and_keeps_the_last_good_pdf() {
     };
     assert!(status.success());
     let out = child.wait_with_output().unwrap();
-    assert!(String::from_utf8_lossy(&out.stdout).contains("the last good PDF is kept"));
+    // Status lines are on standard error.
+    assert!(String::from_utf8_lossy(&out.stderr).contains("the last good PDF is kept"));
     assert_eq!(
         std::fs::read(&pdf).unwrap(),
         good,

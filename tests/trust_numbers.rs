@@ -276,7 +276,7 @@ fn hostile_notebooks_reduce_to_finite_numbers_everywhere() {
         assert_finite(&red, &format!("case {i}"));
         let rec = benchrec::judge::judge(nb, red).unwrap_or_else(|d| panic!("case {i}: {d:?}"));
         let json = benchrec::export::json_string(&rec);
-        let csv = benchrec::export::csv_string(&[&rec]);
+        let csv = benchrec::export::csv_string(&[("t.md", &rec)]);
         for text in [&json, &csv] {
             assert!(!non_finite_word(text), "case {i}: {text}");
         }

@@ -19,20 +19,9 @@ pub(super) fn list(keys: &[&str]) -> String {
         .join(", ")
 }
 
-/// Levenshtein distance over chars (short strings only).
+/// Levenshtein distance (strsim).
 fn edit_distance(a: &str, b: &str) -> usize {
-    let a: Vec<char> = a.chars().collect();
-    let b: Vec<char> = b.chars().collect();
-    let mut prev: Vec<usize> = (0..=b.len()).collect();
-    for (i, ca) in a.iter().enumerate() {
-        let mut cur = vec![i + 1; b.len() + 1];
-        for (j, cb) in b.iter().enumerate() {
-            let sub = prev[j] + usize::from(ca != cb);
-            cur[j + 1] = sub.min(prev[j + 1] + 1).min(cur[j] + 1);
-        }
-        prev = cur;
-    }
-    prev[b.len()]
+    strsim::levenshtein(a, b)
 }
 
 /// "did you mean …?" for a near miss among `known`.
