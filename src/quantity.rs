@@ -195,7 +195,13 @@ fn explain_unit(s: &str) -> (String, Option<String>) {
             prefixed_case_slip(s).map(|m| format!("units are case-sensitive: did you mean `{m}`?"))
         })
         .or_else(|| {
-            if s.contains(',') || s.starts_with(',') {
+            if thousands_grouped(s) {
+                Some(format!(
+                    "write `{}`; if the comma is a decimal comma, write `{}`",
+                    s.replace(',', ""),
+                    s.replacen(',', ".", 1)
+                ))
+            } else if s.contains(',') || s.starts_with(',') {
                 Some("use a decimal point, not a comma".to_string())
             } else {
                 None
@@ -219,6 +225,22 @@ fn prefixed_case_slip(s: &str) -> Option<String> {
         .iter()
         .find(|(sym, _, _, allowed)| *allowed && sym.to_lowercase() == rest)
         .map(|(sym, ..)| format!("{prefix}{sym}"))
+}
+
+/// `1,000` or `12,345.6`: groups of three digits after a comma, as a thousands separator.
+fn thousands_grouped(t: &str) -> bool {
+    let num = t.split_whitespace().next().unwrap_or("");
+    let int = num.split('.').next().unwrap_or("");
+    let int = int.strip_prefix(['-', '+']).unwrap_or(int);
+    let mut groups = int.split(',');
+    let head = groups.next().unwrap_or("");
+    let rest: Vec<&str> = groups.collect();
+    !rest.is_empty()
+        && (1..=3).contains(&head.len())
+        && head.chars().all(|c| c.is_ascii_digit())
+        && rest
+            .iter()
+            .all(|g| g.len() == 3 && g.chars().all(|c| c.is_ascii_digit()))
 }
 
 /// Length in bytes of a leading decimal number (sign, digits, point, exponent), or None.
@@ -339,6 +361,15 @@ pub fn parse_quantity(text: &str) -> Result<Quantity, QuantityError> {
         });
     }
     if unit_text.starts_with(',') && unit_text[1..].starts_with(|c: char| c.is_ascii_digit()) {
+        if thousands_grouped(t) {
+            return Err(QuantityError::new(
+                lead,
+                t.len(),
+                "a comma in a number is not accepted: this reads as a thousands separator",
+                format!("the number without it, `{}`", t.replace(',', "")),
+                t,
+            ));
+        }
         return Err(QuantityError::new(
             unit_off,
             unit_text.len(),

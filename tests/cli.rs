@@ -147,17 +147,7 @@ fn a_bad_notebook_exits_1_names_file_line_column_and_leaves_the_old_pdf() {
 fn usage_errors_exit_2_and_every_verb_has_help() {
     assert_eq!(run(&["build"]).status.code(), Some(2));
     assert_eq!(run(&["no-such-verb"]).status.code(), Some(2));
-    for verb in [
-        "build",
-        "check",
-        "results",
-        "sign",
-        "verify",
-        "watch",
-        "new",
-        "completions",
-        "man",
-    ] {
+    for verb in VERBS {
         let o = run(&[verb, "--help"]);
         assert!(o.status.success(), "{verb} --help failed");
         assert!(

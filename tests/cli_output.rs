@@ -128,18 +128,7 @@ fn a_near_miss_for_record_is_reported_not_skipped() {
 
 #[test]
 fn every_verb_explains_its_arguments_with_an_example_and_the_man_page_is_whole() {
-    for verb in [
-        "build",
-        "check",
-        "results",
-        "sign",
-        "verify",
-        "index",
-        "watch",
-        "new",
-        "completions",
-        "man",
-    ] {
+    for verb in VERBS {
         let o = run(&[verb, "--help"]);
         assert!(o.status.success(), "{verb}");
         let help = stdout(&o);

@@ -929,3 +929,60 @@ fn common_slips_get_a_suggestion_at_the_value() {
     );
     assert!(helps(&d).contains("`5%`"), "{}", helps(&d));
 }
+
+// Numbers as people paste them (common practice: spreadsheets and locales write `1,000`,
+// `1 000` and `0,47`); each gets one error that says what was probably meant.
+#[test]
+fn pasted_numbers_get_one_clear_error_each() {
+    let table = |rows: &str| {
+        nb(&format!(
+            "{}{rows}",
+            RC_OK.trim_end_matches("300   0.41  1.90\n")
+        ))
+    };
+    // A thousands separator.
+    let d = expect_at(&table("1,000 0.41 1.90\n"), "thousands separator", 21, 1);
+    assert!(
+        d.help.as_deref().unwrap_or("").contains("write `1000`"),
+        "{d:?}"
+    );
+    // Digit grouping with a space, pointed at, not the row's last cell.
+    let d = expect_at(
+        &table("1 000 0.41 1.90\n"),
+        "digits grouped by a space",
+        21,
+        1,
+    );
+    assert_eq!(d.help.as_deref(), Some("write `1000`"));
+    // A pasted table with decimal commas: one error with the count.
+    let src = table("300 0,41 1,90\n600 0,78 1,62\n");
+    let ds = errors(&src);
+    let commas: Vec<&Diagnostic> = ds
+        .iter()
+        .filter(|d| d.message.contains("decimal comma"))
+        .collect();
+    assert_eq!(commas.len(), 1, "{ds:?}");
+    assert!(
+        commas[0]
+            .message
+            .contains("(4 cells of this table, to line 22)"),
+        "{}",
+        commas[0].message
+    );
+    assert_eq!(line_col(&src, commas[0].span.start).0, 21);
+}
+
+// A YAML indentation slip names both lines and how to indent.
+#[test]
+fn a_yaml_indent_slip_says_how_to_indent() {
+    let src = "---\nrecord: a\ntitle: t\ndate: 2026-05-04\noperator: o\nparts:\n  C1:\n   kind: capacitor\n    nominal: 68 nF\n---\n";
+    let d = errors(src)
+        .into_iter()
+        .find(|d| d.message.contains("not valid YAML"))
+        .expect("a YAML error");
+    let h = d.help.unwrap_or_default();
+    assert!(
+        h.contains("`kind` (line 8) is indented 3 spaces and `nominal` (line 9) 4"),
+        "{h}"
+    );
+}

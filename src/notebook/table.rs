@@ -392,6 +392,7 @@ pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) ->
         serials: Vec::new(),
     };
     let mut heading: Option<Heading> = None;
+    let first_diag = d.len();
     for l in lines {
         let cend = content_end(src, l);
         if src[l.start..cend].trim().is_empty() {
@@ -407,7 +408,36 @@ pub(super) fn parse_table(src: &str, lines: &[Line], d: &mut Vec<Diagnostic>) ->
             }
         }
     }
+    one_decimal_comma_report(src, d, first_diag);
     table
+}
+
+/// A table pasted with decimal commas gives one error, at its first such cell, with a count,
+/// not one per cell.
+fn one_decimal_comma_report(src: &str, d: &mut Vec<Diagnostic>, from: usize) {
+    let is_comma = |dg: &Diagnostic| {
+        dg.message
+            .ends_with("decimal comma is not accepted; use a decimal point")
+    };
+    let hits: Vec<usize> = (from..d.len()).filter(|&i| is_comma(&d[i])).collect();
+    if hits.len() < 2 {
+        return;
+    }
+    let last = d[hits[hits.len() - 1]].span.start;
+    let (last_line, _) = crate::diag::line_col(src, last);
+    let n = hits.len();
+    for &i in hits[1..].iter().rev() {
+        d.remove(i);
+    }
+    let first = &mut d[hits[0]];
+    first.message = format!(
+        "{} ({n} cells of this table, to line {last_line})",
+        first.message
+    );
+    first.help = Some(format!(
+        "replace the decimal comma by a point in all {n} cells (a spreadsheet's export setting, \
+         or search and replace `,` by `.` in the table)"
+    ));
 }
 
 /// The heading row: its columns and symbols go into `table`.
@@ -537,6 +567,12 @@ fn table_row(
             }
         }
     }
+    if cells_tok.len() > ncols && !pipe {
+        if let Some(dg) = digit_grouping(src, &cells_tok) {
+            d.push(dg);
+            return None;
+        }
+    }
     if cells_tok.len() != ncols {
         // Too many cells: point at the first one the table has no column for.
         let at = match cells_tok.get(ncols) {
@@ -588,6 +624,29 @@ fn table_row(
         },
         serial,
     ))
+}
+
+/// `1 000` in a whitespace table: a group of one to three digits followed by one of three
+/// digits reads as digit grouping with a space (ISO 80000-1 allows it in print, not here),
+/// which the row's cell count would otherwise report at its last cell.
+fn digit_grouping(src: &str, toks: &[CellRange]) -> Option<Diagnostic> {
+    let digits = |t: &str| !t.is_empty() && t.chars().all(|c| c.is_ascii_digit());
+    (1..toks.len()).find_map(|j| {
+        let (a, b) = (toks[j - 1], toks[j]);
+        let (ta, tb) = (&src[a.start..a.end], &src[b.start..b.end]);
+        let lead = ta.strip_prefix(['-', '+']).unwrap_or(ta);
+        let int_b = tb.split('.').next().unwrap_or("");
+        let grouped = digits(lead) && lead.len() <= 3 && int_b.len() == 3 && digits(int_b);
+        grouped.then(|| {
+            Diagnostic::new(
+                Span::new(a.start, b.end),
+                format!("`{ta} {tb}` looks like one number with its digits grouped by a space"),
+            )
+            .expected("one number per cell, written without spaces")
+            .found(format!("`{ta} {tb}`"))
+            .help(format!("write `{ta}{tb}`"))
+        })
+    })
 }
 
 /// One cell in column `sym` (heading unit `unit` times `factor`); None when it is empty or

@@ -243,10 +243,42 @@ impl<'a> YamlLocator<'a> {
         }
         if line_has_tab || msg.contains("tab") {
             d = d.help("indent YAML with spaces, not tabs");
+        } else if let Some(h) = e.location().and_then(|l| self.indent_slip(l.line())) {
+            d = d.help(h);
         } else if msg.contains("mapping values are not allowed") {
             d = d.help("quote text that contains `: `, e.g. title: \"Run 2: sweep\"");
         }
         d
+    }
+
+    /// An indentation slip at or just above YAML line `line` (1-based): two neighbouring keys
+    /// whose indents differ by less than a level, so neither lines up nor nests.
+    fn indent_slip(&self, line: usize) -> Option<String> {
+        let key_line = |n: usize| -> Option<(usize, String, usize)> {
+            let l = self.lines.get(n.checked_sub(1)?)?;
+            let t = line_text(self.src, l);
+            let body = t.trim_start_matches(' ');
+            let key = body.split_once(':')?.0;
+            if key.is_empty() || !key.chars().all(|c| c.is_alphanumeric() || c == '_') {
+                return None;
+            }
+            let (fl, _) = line_col(self.src, l.start);
+            Some((t.len() - body.len(), key.to_string(), fl))
+        };
+        for n in [line, line.saturating_sub(1)] {
+            let (Some((ia, ka, la)), Some((ib, kb, lb))) =
+                (key_line(n.saturating_sub(1)), key_line(n))
+            else {
+                continue;
+            };
+            if ia != ib && ia.abs_diff(ib) < 2 {
+                return Some(format!(
+                    "`{ka}` (line {la}) is indented {ia} spaces and `{kb}` (line {lb}) {ib}: keys \
+                     of one entry line up, and a nested key goes at least two spaces deeper"
+                ));
+            }
+        }
+        None
     }
 
     /// The first `*alias` reference in the text, outside quotes and comments.

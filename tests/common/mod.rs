@@ -185,3 +185,8 @@ pub fn synthetic_front(record: &str, title: &str, date: &str) -> String {
         "---\nrecord: {record}\ntitle: {title}\ndate: {date}\noperator: T. Tester (synthetic)\ninstruments:\n  dmm:\n    what: bench meter\n    accuracy: 0.5% + 2\n    resolution: 0.1 mV\nparts:\n  R1:\n    kind: resistor\n    nominal: 2.2 kohm\n    tolerance: 1%\n  C1:\n    kind: capacitor\n    nominal: 68 nF\n    tolerance: K\n  R2:\n    kind: resistor\n    nominal: 47 ohm\n    tolerance: 1%\n  L1:\n    kind: inductor\n    nominal: 6.8 mH\n    tolerance: K\n    dcr: 1.9 ohm\n---\n\n"
     )
 }
+
+/// Every verb of the command line.
+pub const VERBS: [&str; 10] = [
+    "build", "check", "results", "sign", "verify", "index", "watch", "new", "completions", "man",
+];
