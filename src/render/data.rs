@@ -560,12 +560,13 @@ fn same_f(a: f64, b: f64) -> bool {
     (a - b).abs() <= 1e-9 * a.abs().max(b.abs()).max(1e-300)
 }
 
-/// The tolerance band to draw for a block: from its verdict, else from the part.
-fn band_for(
+/// What the block's main plot is judged against: the verdict's interval, nominal and block
+/// value ± U, else the tolerance of the block's part of the kind.
+fn judged_for<'a>(
     record: &Record,
     rb: &ReadingsBlock,
-    block: &BlockResult,
-) -> Option<(&'static str, f64, f64)> {
+    block: &'a BlockResult,
+) -> Option<plots::Judged<'static>> {
     let PlotKind::PerFrequency {
         band: (want, kind), ..
     } = block.network.descriptor().plot
@@ -575,9 +576,15 @@ fn band_for(
     if let Some(v) = record
         .verdicts
         .iter()
-        .find(|v| v.block == block.id && v.name == want)
+        .find(|v| v.block == block.id && v.name == want && v.serial.is_none())
     {
-        return Some((want, v.low, v.high));
+        return Some(plots::Judged {
+            name: want,
+            low: v.low,
+            high: v.high,
+            nominal: Some(v.nominal),
+            value: Some((v.value, v.expanded)),
+        });
     }
     rb.parts
         .iter()
@@ -586,7 +593,13 @@ fn band_for(
         .and_then(|p| {
             let nominal = p.nominal.as_ref()?.value;
             let (lo, hi) = crate::judge::tolerance_interval(nominal, p.tolerance.as_ref()?);
-            Some((want, lo, hi))
+            Some(plots::Judged {
+                name: want,
+                low: lo,
+                high: hi,
+                nominal: Some(nominal),
+                value: None,
+            })
         })
 }
 
@@ -1033,7 +1046,7 @@ fn readings_json(
     let mut plots_json = Vec::new();
     let thinned = thin_for_plotting(block);
     let block_for_plot = thinned.as_ref().unwrap_or(block);
-    for (n, p) in plots::block_plots(block_for_plot, band_for(record, rb, block))?
+    for (n, p) in plots::block_plots(block_for_plot, judged_for(record, rb, block))?
         .into_iter()
         .enumerate()
     {

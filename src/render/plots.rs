@@ -80,14 +80,28 @@ fn legend_name(name: &str) -> String {
     }
 }
 
+/// What the main panel's quantity is judged against (SI): the tolerance interval, the
+/// nominal, and the block's value with its expanded uncertainty, so that a verdict can be seen.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Judged<'a> {
+    pub name: &'a str,
+    pub low: f64,
+    pub high: f64,
+    pub nominal: Option<f64>,
+    pub value: Option<(f64, f64)>,
+}
+
 /// A panel to draw: series with error bars, curves, markers, an optional band.
 struct Panel<'a> {
     series: Vec<&'a (String, Vec<(f64, f64, f64)>)>,
     curves: Vec<&'a (String, Vec<(f64, f64)>)>,
     markers: Vec<&'a (String, f64)>,
     band: Option<(f64, f64, String)>,
-    /// Computed residual points (x, y) when the panel is a residual panel.
-    residuals: Vec<(f64, f64)>,
+    /// The nominal (dashed line) and the block value ± U (solid line, dotted bounds).
+    nominal: Option<f64>,
+    value: Option<(f64, f64, String)>,
+    /// Computed residual points (x, y, u) when the panel is a residual panel.
+    residuals: Vec<(f64, f64, f64)>,
     residual_name: String,
     y: YKind,
 }
@@ -118,12 +132,8 @@ fn interp(curve: &[(f64, f64)], x: f64) -> Option<f64> {
     None
 }
 
-/// The figures for a block. `band` is the tolerance interval (SI) of the quantity named,
-/// e.g. ("C", low, high).
-pub fn block_plots(
-    block: &BlockResult,
-    band: Option<(&str, f64, f64)>,
-) -> Result<Vec<Plot>, String> {
+/// The figures for a block, the main panel drawn against `judged` when given.
+pub fn block_plots(block: &BlockResult, judged: Option<Judged>) -> Result<Vec<Plot>, String> {
     let p = &block.plot;
     let mut panels: Vec<Panel> = Vec::new();
     let empty = |y| Panel {
@@ -131,6 +141,8 @@ pub fn block_plots(
         curves: Vec::new(),
         markers: Vec::new(),
         band: None,
+        nominal: None,
+        value: None,
         residuals: Vec::new(),
         residual_name: String::new(),
         y,
@@ -146,10 +158,12 @@ pub fn block_plots(
                         .series
                         .extend(beside.iter().filter_map(|n| find(p, n)));
                 }
-                if let Some((q, lo, hi)) = band {
-                    if q == first.0 {
-                        panel.band = Some((lo, hi, format!("tolerance of {q}")));
-                    }
+                if let Some(j) = judged.filter(|j| j.name == first.0) {
+                    panel.band = Some((j.low, j.high, format!("tolerance of {}", j.name)));
+                    panel.nominal = j.nominal;
+                    panel.value = j
+                        .value
+                        .map(|(v, u)| (v, u, format!("block {} ± U", j.name)));
                 }
                 panels.push(panel);
             }
@@ -174,12 +188,13 @@ pub fn block_plots(
                 let mut lower = empty(ykind(&first.0));
                 lower.residual_name = format!("{} − fit", ykind(&first.0).symbol);
                 if let Some(r) = find(p, "residual") {
-                    lower.residuals = r.1.iter().map(|&(x, y, _)| (x, y)).collect();
+                    lower.residuals = r.1.clone();
                 } else if let Some((_, curve)) = panel.curves.first() {
+                    // The reading's own U bounds its residual (the curve is taken as exact).
                     lower.residuals = first
                         .1
                         .iter()
-                        .filter_map(|&(x, y, _)| interp(curve, x).map(|c| (x, y - c)))
+                        .filter_map(|&(x, y, u)| interp(curve, x).map(|c| (x, y - c, u)))
                         .collect();
                 }
                 panels.push(panel);
@@ -199,18 +214,7 @@ pub fn block_plots(
     if panels.is_empty() {
         return Ok(Vec::new());
     }
-    let caption = match kind {
-        PlotKind::PerFrequency { .. } => format!(
-            "Block {}: {} against frequency with expanded uncertainties (k as in the results), and phase.",
-            block.id,
-            panels.first().map(|p| p.y.symbol).unwrap_or("result")
-        ),
-        PlotKind::Resonance => format!(
-            "Block {}: admittance sweep with the fitted series model, resonance and half-power markers; residuals below.",
-            block.id
-        ),
-        PlotKind::Series => format!("Block {}: results.", block.id),
-    };
+    let caption = caption(block, kind, &panels);
     let (svg, height) = draw(&panels).map_err(|e| format!("plot of block `{}`: {e}", block.id))?;
     let (drawing, labels) = labels::split(&svg);
     Ok(vec![Plot {
@@ -221,6 +225,93 @@ pub fn block_plots(
         height,
         labels,
     }])
+}
+
+/// The figure's caption, naming only the panels and lines drawn.
+fn caption(block: &BlockResult, kind: PlotKind, panels: &[Panel]) -> String {
+    match kind {
+        PlotKind::PerFrequency { .. } => {
+            let main = panels.first();
+            let sym = main.map(|p| p.y.symbol).unwrap_or("result");
+            let mut what = format!(
+                "Block {}: {sym} against frequency with expanded uncertainties (k as in the results)",
+                block.id
+            );
+            if let Some(p) = main.filter(|p| p.band.is_some()) {
+                what.push_str(", the tolerance interval");
+                if p.nominal.is_some() {
+                    what.push_str(", the nominal (dashed)");
+                }
+                if p.value.is_some() {
+                    what.push_str(" and the block value ± U (solid, dotted bounds)");
+                }
+            }
+            if panels.iter().skip(1).any(|p| p.y.symbol == "φ") {
+                what.push_str("; phase below");
+            }
+            what.push('.');
+            what
+        }
+        PlotKind::Resonance => {
+            let mut what = format!(
+                "Block {}: admittance sweep with the fitted series model and the resonance and half-power markers",
+                block.id
+            );
+            if panels.len() > 1 {
+                what.push_str("; residuals below, with each reading's U");
+            }
+            what.push('.');
+            what
+        }
+        PlotKind::Series => format!("Block {}: results.", block.id),
+    }
+}
+
+/// The decimals that print every tick plotters puts on a linear axis alike (`96, 98, 100`,
+/// not `96.0, 98.0, 100`): the fewest that show each tick exactly.
+fn tick_decimals(lo: f64, hi: f64, n: usize) -> usize {
+    if !(hi > lo && lo.is_finite() && hi.is_finite()) {
+        return 0;
+    }
+    let ticks = plotters::coord::types::RangedCoordf64::from(lo..hi).key_points(n);
+    (0..=9)
+        .find(|&d| {
+            let m = 10f64.powi(d as i32);
+            ticks.iter().all(|t| {
+                let x = t * m;
+                (x - x.round()).abs() <= 1e-6 * x.abs().max(1.0)
+            })
+        })
+        .unwrap_or(3)
+}
+
+/// The legend corner with the fewest points under it (fractions of the plot area), preferring
+/// the upper right.
+fn legend_corner(points: &[(f64, f64)]) -> SeriesLabelPosition {
+    let corners = [
+        (SeriesLabelPosition::UpperRight, true, true),
+        (SeriesLabelPosition::UpperLeft, false, true),
+        (SeriesLabelPosition::LowerRight, true, false),
+        (SeriesLabelPosition::LowerLeft, false, false),
+    ];
+    let under = |right: bool, upper: bool| {
+        points
+            .iter()
+            .filter(|(fx, fy)| {
+                let x_in = if right { *fx > 0.55 } else { *fx < 0.45 };
+                let y_in = if upper { *fy > 0.6 } else { *fy < 0.4 };
+                x_in && y_in
+            })
+            .count()
+    };
+    let mut best = (usize::MAX, SeriesLabelPosition::UpperRight);
+    for (pos, right, upper) in corners {
+        let n = under(right, upper);
+        if n < best.0 {
+            best = (n, pos);
+        }
+    }
+    best.1
 }
 
 /// Range of finite values with padding; never empty.
@@ -320,7 +411,7 @@ fn y_scale(panel: &Panel) -> (f64, String, String) {
 }
 
 macro_rules! panel_body {
-    ($area:expr, $panel:expr, $xr:expr, $xdiv:expr, $xdesc:expr, $last:expr, $xspec:expr) => {{
+    ($area:expr, $panel:expr, $xr:expr, $xdiv:expr, $xdesc:expr, $last:expr, $xspec:expr, $xfmt:expr, $xfrac:expr) => {{
         let panel: &Panel = $panel;
         let (ydiv, ysym, yunit) = y_scale(panel);
         let xdiv: f64 = $xdiv;
@@ -336,7 +427,10 @@ macro_rules! panel_body {
         for c in &panel.curves {
             yvals.extend(c.1.iter().map(|t| sy(t.1)));
         }
-        yvals.extend(panel.residuals.iter().map(|t| sy(t.1)));
+        for &(_, y, u) in &panel.residuals {
+            yvals.push(sy(y - u.abs()));
+            yvals.push(sy(y + u.abs()));
+        }
         if !panel.residuals.is_empty() {
             yvals.push(0.0);
         }
@@ -344,7 +438,13 @@ macro_rules! panel_body {
             yvals.push(sy(*lo));
             yvals.push(sy(*hi));
         }
+        yvals.extend(panel.nominal.map(sy));
+        if let Some((v, u, _)) = &panel.value {
+            yvals.push(sy(v - u));
+            yvals.push(sy(v + u));
+        }
         let (y0, y1) = padded(yvals.into_iter(), false);
+        let ydec = tick_decimals(y0, y1, 6);
         let font = (PLOT_FONT, 17).into_font();
         let mut chart = ChartBuilder::on($area)
             .margin_left(10)
@@ -355,8 +455,8 @@ macro_rules! panel_body {
             .y_label_area_size(70)
             .build_cartesian_2d($xspec, y0..y1)
             .map_err(|e| e.to_string())?;
-        let xfmt = |v: &f64| print::sig(*v, 3);
-        let yfmt = |v: &f64| print::sig(*v, 3);
+        let xfmt = $xfmt;
+        let yfmt = |v: &f64| print::fixed(*v, ydec);
         let ydesc = if yunit == "1" {
             ysym.clone()
         } else {
@@ -389,6 +489,60 @@ macro_rules! panel_body {
                 .map_err(|e| e.to_string())?
                 .label(label.clone())
                 .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 18, y + 5)], grey.filled()));
+            let small = TextStyle::from((PLOT_FONT, 14).into_font());
+            for (at, word, vpos) in [
+                (*hi, "upper limit", VPos::Top),
+                (*lo, "lower limit", VPos::Bottom),
+            ] {
+                chart
+                    .draw_series(std::iter::once(Text::new(
+                        word,
+                        (xa, sy(at)),
+                        small.clone().pos(Pos::new(HPos::Left, vpos)),
+                    )))
+                    .map_err(|e| e.to_string())?;
+            }
+        }
+        if let Some(n) = panel.nominal {
+            let (xa, xb) = $xr;
+            chart
+                .draw_series(DashedLineSeries::new(
+                    vec![(xa, sy(n)), (xb, sy(n))],
+                    8,
+                    5,
+                    BLACK.stroke_width(1),
+                ))
+                .map_err(|e| e.to_string())?
+                .label("nominal")
+                .legend(|(x, y)| {
+                    EmptyElement::at((x, y))
+                        + PathElement::new(vec![(0, 0), (7, 0)], BLACK)
+                        + PathElement::new(vec![(11, 0), (18, 0)], BLACK)
+                });
+        }
+        if let Some((v, u, label)) = &panel.value {
+            let (xa, xb) = $xr;
+            let grey = RGBColor(90, 90, 90);
+            for b in [v - u, v + u] {
+                chart
+                    .draw_series(DashedLineSeries::new(
+                        vec![(xa, sy(b)), (xb, sy(b))],
+                        2,
+                        3,
+                        grey.stroke_width(1),
+                    ))
+                    .map_err(|e| e.to_string())?;
+            }
+            chart
+                .draw_series(LineSeries::new(
+                    vec![(xa, sy(*v)), (xb, sy(*v))],
+                    grey.stroke_width(2),
+                ))
+                .map_err(|e| e.to_string())?
+                .label(label.clone())
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 18, y)], grey.stroke_width(2))
+                });
         }
         for (i, c) in panel.curves.iter().enumerate() {
             let pts: Vec<(f64, f64)> =
@@ -483,12 +637,32 @@ macro_rules! panel_body {
                     BLACK,
                 )))
                 .map_err(|e| e.to_string())?;
-            let pts: Vec<(f64, f64)> = panel
+            let with_u: Vec<(f64, f64, f64)> = panel
                 .residuals
                 .iter()
                 .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
-                .map(|t| (sx(t.0), sy(t.1)))
+                .map(|t| {
+                    (
+                        sx(t.0),
+                        sy(t.1),
+                        if t.2.is_finite() {
+                            t.2.abs() / ydiv
+                        } else {
+                            0.0
+                        },
+                    )
+                })
                 .collect();
+            let pts: Vec<(f64, f64)> = with_u.iter().map(|t| (t.0, t.1)).collect();
+            // Each residual's error bar, capped, beside its stem.
+            chart
+                .draw_series(
+                    with_u
+                        .iter()
+                        .filter(|t| t.2 > 0.0)
+                        .map(|&(x, y, u)| PathElement::new(vec![(x, y - u), (x, y + u)], BLACK)),
+                )
+                .map_err(|e| e.to_string())?;
             chart
                 .draw_series(
                     pts.iter()
@@ -530,11 +704,23 @@ macro_rules! panel_body {
                 )))
                 .map_err(|e| e.to_string())?;
         }
-        let labelled = panel.series.len() + panel.curves.len() + usize::from(panel.band.is_some());
+        let labelled = panel.series.len()
+            + panel.curves.len()
+            + usize::from(panel.band.is_some())
+            + usize::from(panel.nominal.is_some())
+            + usize::from(panel.value.is_some());
+        let xfrac = $xfrac;
+        let fractions: Vec<(f64, f64)> = panel
+            .series
+            .iter()
+            .flat_map(|s| s.1.iter())
+            .filter(|t| t.0.is_finite() && t.1.is_finite() && t.0 > 0.0)
+            .map(|t| (xfrac(sx(t.0)), (sy(t.1) - y0) / (y1 - y0)))
+            .collect();
         if labelled > 1 {
             chart
                 .configure_series_labels()
-                .position(SeriesLabelPosition::UpperRight)
+                .position(legend_corner(&fractions))
                 .background_style(WHITE.mix(0.9))
                 .border_style(BLACK)
                 .label_font((PLOT_FONT, 16).into_font())
@@ -553,7 +739,18 @@ fn draw_panel_lin(
     xdesc: &str,
     last: bool,
 ) -> Result<(), String> {
-    panel_body!(area, panel, xr, xdiv, xdesc, last, xr.0..xr.1)
+    let dec = tick_decimals(xr.0, xr.1, 8);
+    panel_body!(
+        area,
+        panel,
+        xr,
+        xdiv,
+        xdesc,
+        last,
+        xr.0..xr.1,
+        |v: &f64| print::fixed(*v, dec),
+        |x: f64| (x - xr.0) / (xr.1 - xr.0)
+    )
 }
 
 fn draw_panel_log(
@@ -573,7 +770,10 @@ fn draw_panel_log(
         last,
         (xr.0..xr.1)
             .log_scale()
-            .with_key_points(log_ticks(xr.0, xr.1))
+            .with_key_points(log_ticks(xr.0, xr.1)),
+        // 1-2-5 ticks print each in its shortest form: 0.5, 1, 2, 5.
+        |v: &f64| print::trim_sig(*v, 3),
+        |x: f64| (x / xr.0).ln() / (xr.1 / xr.0).ln()
     )
 }
 
@@ -638,8 +838,17 @@ mod tests {
             curves: vec![],
             markers: vec![],
         };
-        let plots =
-            block_plots(&block(Network::RC, plot), Some(("C", 313.5e-9, 346.5e-9))).unwrap();
+        let plots = block_plots(
+            &block(Network::RC, plot),
+            Some(Judged {
+                name: "C",
+                low: 313.5e-9,
+                high: 346.5e-9,
+                nominal: Some(330e-9),
+                value: Some((331e-9, 1.5e-9)),
+            }),
+        )
+        .unwrap();
         assert_eq!(plots.len(), 1);
         let svg = &plots[0].svg;
         let text: Vec<&str> = plots[0].labels.iter().map(|l| l.text.as_str()).collect();
@@ -653,6 +862,18 @@ mod tests {
         assert!(text.contains(&"f / kHz"));
         assert!(text.contains(&"φ / °"));
         assert!(text.contains(&"tolerance of C"));
+        // The verdict can be read off the figure: nominal, block value ± U, labelled limits.
+        for t in ["nominal", "block C ± U", "upper limit", "lower limit"] {
+            assert!(text.contains(&t), "no `{t}` in {text:?}");
+        }
+        assert!(plots[0].caption.contains("the nominal (dashed)"));
+        assert!(plots[0].caption.ends_with("; phase below."));
+        // Log axis ticks in their shortest form; y ticks with one number of decimals.
+        assert!(
+            text.contains(&"0.5") && text.contains(&"1") && text.contains(&"5"),
+            "{text:?}"
+        );
+        assert!(!text.contains(&"0.500") && !text.contains(&"1.00"));
         assert!(
             plots[0].labels.iter().any(|l| l.rotate == 270.0),
             "y label turned"
@@ -701,5 +922,24 @@ mod tests {
         assert!(block_plots(&block(Network::RC, PlotData::default()), None)
             .unwrap()
             .is_empty());
+    }
+
+    // Ticks of one axis print alike (the issue of mixed "8.00" beside "12.0"): plotters puts
+    // 96, 98, …, 104 on this range, so no decimals; 0.25-steps need two.
+    #[test]
+    fn tick_labels_share_their_decimals() {
+        assert_eq!(tick_decimals(95.1, 104.9, 6), 0);
+        assert_eq!(tick_decimals(0.0, 1.0, 6), 1);
+        assert_eq!(tick_decimals(0.01, 0.06, 6), 2);
+    }
+
+    // The legend goes to the corner with the fewest points under it.
+    #[test]
+    fn the_legend_avoids_the_points() {
+        let upper_right = [(0.9, 0.9), (0.8, 0.95), (0.2, 0.1)];
+        assert_eq!(legend_corner(&upper_right), SeriesLabelPosition::UpperLeft);
+        let busy_top = [(0.9, 0.9), (0.1, 0.9), (0.2, 0.1)];
+        assert_eq!(legend_corner(&busy_top), SeriesLabelPosition::LowerRight);
+        assert_eq!(legend_corner(&[]), SeriesLabelPosition::UpperRight);
     }
 }

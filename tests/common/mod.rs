@@ -188,5 +188,14 @@ pub fn synthetic_front(record: &str, title: &str, date: &str) -> String {
 
 /// Every verb of the command line.
 pub const VERBS: [&str; 10] = [
-    "build", "check", "results", "sign", "verify", "index", "watch", "new", "completions", "man",
+    "build",
+    "check",
+    "results",
+    "sign",
+    "verify",
+    "index",
+    "watch",
+    "new",
+    "completions",
+    "man",
 ];
