@@ -9,7 +9,6 @@
 //! costs a text extraction per PDF and is not repeated here.
 
 use crate::pipeline::{self, Failure};
-use crate::render::world::RecordWorld;
 use crate::signoff::{self, SignState};
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -441,24 +440,5 @@ fn index_pdf(rows: &[Row]) -> Result<Vec<u8>, String> {
     let data = serde_json::json!({ "rows": rows, "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")) });
     let mut files = BTreeMap::new();
     files.insert("/data.json".to_string(), data.to_string().into_bytes());
-    let world = RecordWorld::new(INDEX_TEMPLATE.to_string(), BTreeMap::new(), files, date)
-        .ok_or("cannot set up the typesetting world")?;
-    let doc = typst::compile::<typst_layout::PagedDocument>(&world)
-        .output
-        .map_err(|e| {
-            format!(
-                "the index could not be typeset: {}",
-                e.first().map(|d| d.message.as_str()).unwrap_or("?")
-            )
-        })?;
-    let options = typst_pdf::PdfOptions {
-        ident: typst::foundations::Smart::Custom("benchrec:index".into()),
-        ..typst_pdf::PdfOptions::default()
-    };
-    typst_pdf::pdf(&doc, &options).map_err(|e| {
-        format!(
-            "the index could not be written as PDF: {}",
-            e.first().map(|d| d.message.as_str()).unwrap_or("?")
-        )
-    })
+    crate::render::world::typeset_pdf(INDEX_TEMPLATE, files, date, "benchrec:index", "the index")
 }

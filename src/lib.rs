@@ -24,4 +24,5 @@ pub mod quantity;
 pub mod render;
 pub mod signoff;
 pub mod starter;
+pub mod trend;
 pub mod uncertainty;

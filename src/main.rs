@@ -183,6 +183,33 @@ enum Verb {
         /// The archive folder (searched recursively)
         dir: PathBuf,
     },
+    /// Follow a check standard (a part, or a lot unit's serial) through every record under a
+    /// folder: its values with U by date, an individuals control chart and the drift
+    #[command(
+        after_help = "Example:\n  benchrec trend lab/ --part CS-100n -o lab/CS-100n-trend.pdf"
+    )]
+    Trend {
+        /// The folder of notebooks to search
+        dir: PathBuf,
+        /// The part's name as the notebooks give it, or a lot unit's serial
+        #[arg(long)]
+        part: String,
+        /// The judged result to follow when the part has several (C, L, R)
+        #[arg(long)]
+        result: Option<String>,
+        /// Where to write the trend record (default: DIR/trend-PART.pdf)
+        #[arg(short = 'o', long = "output")]
+        output: Option<PathBuf>,
+    },
+    /// Compare the judged results two notebooks give for the same parts by the E_n number
+    /// (ISO 13528): |E_n| ≤ 1 is satisfactory
+    #[command(after_help = "Example:\n  benchrec compare before.md after.md")]
+    Compare {
+        /// The first notebook
+        first: PathBuf,
+        /// The second notebook
+        second: PathBuf,
+    },
     /// Rebuild a notebook (or every notebook under a folder) each time it is saved
     #[command(after_help = "Example:\n  benchrec watch lab/notebook.md")]
     Watch {
@@ -254,6 +281,13 @@ fn main() -> ExitCode {
         Verb::Verify { path, signers } => verify(&path, signers.as_deref()),
         Verb::Watch { path, max_builds } => watch(&path, max_builds),
         Verb::Index { dir } => index(&dir),
+        Verb::Trend {
+            dir,
+            part,
+            result,
+            output,
+        } => trend(&dir, &part, result.as_deref(), output.as_deref()),
+        Verb::Compare { first, second } => compare(&first, &second),
         Verb::New { path, record } => new_notebook(&path, record),
         Verb::Completions { shell } => {
             use clap_complete::Shell as S;
@@ -604,6 +638,122 @@ fn index(dir: &Path) -> ExitCode {
         }
         Err(f) => fail(&f),
     }
+}
+
+fn trend(dir: &Path, part: &str, result: Option<&str>, output: Option<&Path>) -> ExitCode {
+    if !dir.is_dir() {
+        eprintln!(
+            "{}: {}: not a folder",
+            paint_err("error", Tone::Bad),
+            dir.display()
+        );
+        return ExitCode::from(1);
+    }
+    let mut recs = Vec::new();
+    let mut failed = false;
+    for nb in notebooks_of(&[dir.to_path_buf()]) {
+        match analyse(&nb) {
+            Ok(r) => recs.push((nb.display().to_string(), r)),
+            Err(f) => {
+                eprint!("{}", terminal::report(&f.report()));
+                failed = true;
+            }
+        }
+    }
+    let t = benchrec::trend::gather(part, result, &recs);
+    if t.points.is_empty() {
+        eprintln!(
+            "{}: no record under {} has a judged result for `{part}`{}",
+            paint_err("error", Tone::Bad),
+            dir.display(),
+            result.map(|r| format!(" ({r})")).unwrap_or_default()
+        );
+        return ExitCode::from(1);
+    }
+    for p in &t.points {
+        say!(
+            "{}  {:<14} {}  {}",
+            p.date,
+            p.record,
+            benchrec::print::value_u(p.value, p.expanded, t.unit),
+            p.path
+        );
+    }
+    match &t.chart {
+        Some(c) => say!(
+            "centre {}, limits [{}, {}] (x̄ ± 2.66·MR̄, NIST/SEMATECH §6.3.2.2)",
+            benchrec::render::trend::at_values_place(&t, c.mean),
+            benchrec::render::trend::at_values_place(&t, c.lcl),
+            benchrec::render::trend::at_values_place(&t, c.ucl)
+        ),
+        None => say!("one value: no control chart"),
+    }
+    for w in benchrec::render::trend::warnings(&t) {
+        say!("  {}: {w}", paint("warning", Tone::Warn));
+    }
+    let out = output
+        .map(Path::to_path_buf)
+        .unwrap_or_else(|| dir.join(format!("trend-{}.pdf", part.replace(['/', '\\'], "_"))));
+    let written = benchrec::render::trend::trend_pdf(&t)
+        .and_then(|pdf| pipeline::write_atomic(&out, &pdf).map_err(|e| e.to_string()));
+    match written {
+        Ok(()) => status!("wrote {}", out.display()),
+        Err(e) => {
+            eprintln!("{}: {}: {e}", paint_err("error", Tone::Bad), out.display());
+            return ExitCode::from(1);
+        }
+    }
+    if failed {
+        ExitCode::from(1)
+    } else {
+        ExitCode::SUCCESS
+    }
+}
+
+fn compare(first: &Path, second: &Path) -> ExitCode {
+    let (a, b) = match (analyse(first), analyse(second)) {
+        (Ok(a), Ok(b)) => (a, b),
+        (Err(f), _) | (_, Err(f)) => return fail(&f),
+    };
+    let mut rows = 0;
+    for va in &a.verdicts {
+        let Some(vb) = b
+            .verdicts
+            .iter()
+            .find(|v| v.part == va.part && v.name == va.name && v.serial == va.serial)
+        else {
+            continue;
+        };
+        let Some(en) = benchrec::trend::e_n(va.value, va.expanded, vb.value, vb.expanded) else {
+            continue;
+        };
+        let word = if en.abs() <= 1.0 {
+            paint("satisfactory", Tone::Good)
+        } else {
+            paint("unsatisfactory", Tone::Bad)
+        };
+        let who = match &va.serial {
+            Some(s) => format!("{} of {} unit {s}", va.name, va.part),
+            None => format!("{} of {}", va.name, va.part),
+        };
+        say!(
+            "{who}: {} against {}: E_n = {} {word}",
+            benchrec::print::value_u(va.value, va.expanded, va.unit),
+            benchrec::print::value_u(vb.value, vb.expanded, vb.unit),
+            benchrec::print::fixed(en, 2)
+        );
+        rows += 1;
+    }
+    if rows == 0 {
+        eprintln!(
+            "{}: {} and {} judge no result of the same part",
+            paint_err("error", Tone::Bad),
+            first.display(),
+            second.display()
+        );
+        return ExitCode::from(1);
+    }
+    ExitCode::SUCCESS
 }
 
 fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {

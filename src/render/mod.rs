@@ -7,6 +7,7 @@ pub mod lot;
 pub mod markup;
 pub mod metrics;
 pub mod plots;
+pub mod trend;
 pub mod world;
 
 use std::collections::BTreeMap;

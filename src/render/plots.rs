@@ -269,7 +269,7 @@ fn caption(block: &BlockResult, kind: PlotKind, panels: &[Panel]) -> String {
 
 /// The decimals that print every tick plotters puts on a linear axis alike (`96, 98, 100`,
 /// not `96.0, 98.0, 100`): the fewest that show each tick exactly.
-fn tick_decimals(lo: f64, hi: f64, n: usize) -> usize {
+pub(crate) fn tick_decimals(lo: f64, hi: f64, n: usize) -> usize {
     if !(hi > lo && lo.is_finite() && hi.is_finite()) {
         return 0;
     }

@@ -238,3 +238,30 @@ mod tests {
             .any(|(name, _)| name == "DejaVu Sans Mono"));
     }
 }
+
+/// Typesets `template` over `files` (its `/data.json` and any images) to PDF bytes: the
+/// small documents beside the records (the archive index, a trend). `what` names it in errors.
+pub fn typeset_pdf(
+    template: &str,
+    files: BTreeMap<String, Vec<u8>>,
+    date: NaiveDate,
+    ident: &str,
+    what: &str,
+) -> Result<Vec<u8>, String> {
+    let world = RecordWorld::new(template.to_string(), BTreeMap::new(), files, date)
+        .ok_or("cannot set up the typesetting world")?;
+    let first = |e: &[typst::diag::SourceDiagnostic]| {
+        e.first()
+            .map(|d| d.message.to_string())
+            .unwrap_or_else(|| "?".into())
+    };
+    let doc = typst::compile::<typst_layout::PagedDocument>(&world)
+        .output
+        .map_err(|e| format!("{what} could not be typeset: {}", first(&e)))?;
+    let options = typst_pdf::PdfOptions {
+        ident: typst::foundations::Smart::Custom(ident.into()),
+        ..typst_pdf::PdfOptions::default()
+    };
+    typst_pdf::pdf(&doc, &options)
+        .map_err(|e| format!("{what} could not be written as PDF: {}", first(&e)))
+}

@@ -187,13 +187,15 @@ pub fn synthetic_front(record: &str, title: &str, date: &str) -> String {
 }
 
 /// Every verb of the command line.
-pub const VERBS: [&str; 10] = [
+pub const VERBS: [&str; 12] = [
     "build",
     "check",
     "results",
     "sign",
     "verify",
     "index",
+    "trend",
+    "compare",
     "watch",
     "new",
     "completions",
