@@ -693,6 +693,18 @@ fn verdict_value(v: &crate::judge::Verdict) -> String {
     }
 }
 
+/// The printed `<name>_clean` of a verdict's block (the judged result without the rows that
+/// carry warnings), where the network gives one.
+fn clean_of(record: &Record, v: &crate::judge::Verdict) -> Option<String> {
+    let b = record.reduction.blocks.iter().find(|b| b.id == v.block)?;
+    let want = format!("{}_clean", v.name);
+    let r = b
+        .results
+        .iter()
+        .find(|r| r.name == want && v.serial.is_none())?;
+    Some(print::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit))
+}
+
 /// The verdicts table.
 fn verdicts_json(record: &Record) -> Vec<Value> {
     // Blocks with warnings: their verdicts are marked in the summary.
@@ -715,7 +727,10 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
                 "part": v.part,
                 "nominal": print::quantity(v.nominal, v.unit),
                 "interval": print::interval(v.low, v.high, v.unit),
-                "value": verdict_value(v),
+                "value": match clean_of(record, v) {
+                    Some(c) => format!("{}; without the rows with warnings {}", verdict_value(v), c),
+                    None => verdict_value(v),
+                },
                 "outcome": outcome_word(v.outcome),
                 "warned": warned_blocks.contains(v.block.as_str()),
             })
