@@ -100,6 +100,10 @@ pub struct JsonVerdict {
     pub low: f64,
     pub high: f64,
     pub verdict: String,
+    /// The Monte Carlo coverage interval [low, high] the verdict used, where the GUM
+    /// interval failed the JCGM 101 §8 check.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub mc_interval: Option<[f64; 2]>,
 }
 
 fn result(r: &NamedResult) -> JsonResult {
@@ -170,6 +174,7 @@ pub fn to_json(rec: &Record) -> JsonRecord {
                         low: v.low,
                         high: v.high,
                         verdict: v.outcome.word().to_string(),
+                        mc_interval: v.mc.map(|i| [i.low, i.high]),
                     })
                     .collect(),
                 flags,

@@ -32,6 +32,21 @@ pub struct Verdict {
     pub outcome: Outcome,
     /// The unit's serial, for a verdict on one unit of a lot.
     pub serial: Option<String>,
+    /// The Monte Carlo coverage interval the verdict used in place of value ± U, where the
+    /// GUM interval failed the JCGM 101 §8 check.
+    pub mc: Option<McUsed>,
+}
+
+/// A Monte Carlo coverage interval used for a verdict (probabilistically symmetric, JCGM 101
+/// §7.7.2, at the notebook's coverage probability).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct McUsed {
+    pub low: f64,
+    pub high: f64,
+    /// Trials kept and drawn: fewer kept than drawn makes the interval conditional on the
+    /// model being defined (the dropped trials are not in it).
+    pub trials: usize,
+    pub dropped: usize,
 }
 
 /// The lot figures of one lot block (FORMAT.md 1.1, "Lots"), over the units' values of the
@@ -161,6 +176,44 @@ pub fn decide(value: f64, expanded: f64, low: f64, high: f64, rule: Decision) ->
     }
 }
 
+/// Conformity decision on a coverage interval [y_low, y_high] (a Monte Carlo interval, which
+/// need not be symmetric about the value): the ILAC-G8 rules of [`decide`] with value − U and
+/// value + U replaced by the interval's ends. Simple acceptance still uses the value alone.
+pub fn decide_interval(
+    value: f64,
+    y_low: f64,
+    y_high: f64,
+    low: f64,
+    high: f64,
+    rule: Decision,
+) -> Outcome {
+    match rule {
+        Decision::Simple => decide(value, 0.0, low, high, rule),
+        Decision::Guarded => {
+            if y_low >= low && y_high <= high {
+                Outcome::Pass
+            } else if y_high < low || y_low > high {
+                Outcome::Fail
+            } else {
+                Outcome::Inconclusive
+            }
+        }
+    }
+}
+
+/// The Monte Carlo interval of `m` when the GUM interval failed its §8 check.
+pub fn mc_in_place_of_gum(m: &crate::uncertainty::Measured) -> Option<McUsed> {
+    let mc =
+        m.mc.as_ref()
+            .filter(|mc| !mc.gum_validated && mc.trials >= 2)?;
+    Some(McUsed {
+        low: mc.low,
+        high: mc.high,
+        trials: mc.trials,
+        dropped: mc.dropped,
+    })
+}
+
 /// The kind of part a block result is judged against, as its network says.
 fn kind_for_result(res: &BlockResult, name: &str) -> Option<PartKind> {
     let judged = res.network.descriptor().judged;
@@ -192,6 +245,12 @@ fn verdicts_for(
             continue;
         };
         let (low, high) = tolerance_interval(nominal.value, tol);
+        let mc = mc_in_place_of_gum(&r.m);
+        let rule = nb.front.decision;
+        let outcome = match mc {
+            Some(i) => decide_interval(r.m.value, i.low, i.high, low, high, rule),
+            None => decide(r.m.value, r.m.expanded, low, high, rule),
+        };
         out.push(Verdict {
             block: block.id.clone(),
             name: r.name.clone(),
@@ -203,8 +262,9 @@ fn verdicts_for(
             value: r.m.value,
             expanded: r.m.expanded,
             k: r.m.k,
-            outcome: decide(r.m.value, r.m.expanded, low, high, nb.front.decision),
+            outcome,
             serial: unit.map(str::to_string),
+            mc,
         });
     }
     out
@@ -780,6 +840,75 @@ mod tests {
         assert!(at("b.XC@1500Hz").is_err());
         assert!(at("b.XC@2000V").is_err());
         assert!(at("b.C").is_ok() && at("b.XC").is_err() && at("c.C").is_err());
+    }
+
+    /// ILAC-G8 guarded acceptance applied to the ends of a Monte Carlo interval (JCGM 101
+    /// §7.7), which need not be symmetric: [9.2, 10.4] passes, [9.6, 11.2] straddles the upper
+    /// limit although 10.0 ± 0.8 would pass, [11.1, 11.9] fails; simple acceptance still uses
+    /// the value alone.
+    #[test]
+    fn monte_carlo_interval_ends_are_judged() {
+        use Outcome::*;
+        let g = |v, a, b| decide_interval(v, a, b, LO, HI, Decision::Guarded);
+        assert_eq!(g(10.0, 9.2, 10.4), Pass);
+        assert_eq!(decide(10.0, 0.8, LO, HI, Decision::Guarded), Pass);
+        assert_eq!(g(10.0, 9.6, 11.2), Inconclusive);
+        assert_eq!(g(11.5, 11.1, 11.9), Fail);
+        assert_eq!(
+            g(11.0, 9.0, 11.0),
+            Pass,
+            "touching a limit from inside is inside"
+        );
+        assert_eq!(
+            decide_interval(10.9, 9.6, 11.9, LO, HI, Decision::Simple),
+            Pass
+        );
+    }
+
+    /// A verdict on a result whose GUM interval failed the JCGM 101 §8 check uses the Monte
+    /// Carlo interval and carries it; a validated one keeps value ± U.
+    #[test]
+    fn a_verdict_uses_the_monte_carlo_interval_where_the_gum_one_fails() {
+        let nb = notebook("1000 1.0 1.6\n2000 1.2 1.0\n");
+        let mut red = crate::networks::reduce(&nb).expect("reduces");
+        let Some(Item::Readings(block)) = nb.items.iter().find(|i| matches!(i, Item::Readings(_)))
+        else {
+            panic!("no block")
+        };
+        let c = red.blocks[0]
+            .results
+            .iter_mut()
+            .find(|r| r.name == "C")
+            .unwrap();
+        let (v, tol_hi) = (c.m.value, 1.1e-6);
+        // An interval reaching past the upper limit, from a model skewed to high values.
+        let mc = |gum_validated| crate::uncertainty::McInterval {
+            trials: 990_000,
+            dropped: 10_000,
+            mean: v,
+            u: 1e-9,
+            low: v - 1e-9,
+            high: tol_hi + 1e-9,
+            gum_validated,
+        };
+        c.m.mc = Some(mc(true));
+        let before = verdicts_for(&nb, block, &red.blocks[0], None);
+        let c = red.blocks[0]
+            .results
+            .iter_mut()
+            .find(|r| r.name == "C")
+            .unwrap();
+        c.m.mc = Some(mc(false));
+        let after = verdicts_for(&nb, block, &red.blocks[0], None);
+        let (b, a) = (&before[0], &after[0]);
+        assert!(
+            b.value + b.expanded < tol_hi,
+            "the GUM interval is inside: {b:?}"
+        );
+        assert_eq!((b.outcome, b.mc), (Outcome::Pass, None));
+        assert_eq!(a.outcome, Outcome::Inconclusive);
+        let used = a.mc.expect("the interval is carried");
+        assert_eq!((used.high, used.dropped), (tol_hi + 1e-9, 10_000));
     }
 
     /// A safety check over its limit is a reservation; one within it is not.

@@ -191,6 +191,23 @@ pub fn welch_satterthwaite(contribs: &[(f64, Option<f64>)]) -> Option<f64> {
     }
 }
 
+/// Adds to `m` one further contribution, independent of its other inputs (a method term such
+/// as an interpolation error, or the scatter beyond the stated uncertainties of a fit), as its
+/// own budget line: u² grows by the line's contribution², ν_eff follows Welch–Satterthwaite
+/// (GUM G.4.1) over the two parts, and k and U are recomputed at `coverage`.
+pub fn add_term(m: &mut Measured, line: BudgetLine, coverage: f64) {
+    let c = line.contribution.abs();
+    if !c.is_finite() || c == 0.0 {
+        return;
+    }
+    let u = m.u.hypot(c);
+    m.dof = welch_satterthwaite(&[(m.u, m.dof), (c, line.dof)]);
+    m.u = u;
+    m.k = coverage_factor(coverage, m.dof);
+    m.expanded = m.k * u;
+    m.budget.push(line);
+}
+
 /// Type A evaluation of n repeated observations (GUM 4.2): returns (mean q̄, s(q̄) = s/√n,
 /// ν = n − 1). n = 1 gives (q, 0, 0); an empty slice gives (0, 0, 0).
 pub fn type_a(samples: &[f64]) -> (f64, f64, f64) {

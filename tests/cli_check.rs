@@ -31,8 +31,9 @@ fn check_prints_warnings_at_their_row_and_strict_fails_on_them() {
     let out = String::from_utf8_lossy(&o.stdout);
     let want = format!("warning: {snub}:{line}:1: Kirchhoff check at 1.2 kHz");
     assert!(out.contains(&want), "{want} not in\n{out}");
-    // The same 1.2 kHz row also makes the frequencies disagree on C (χ² test).
-    assert!(out.contains("2 warnings, 1 note"), "{out}");
+    // The same 1.2 kHz row also makes the frequencies disagree on C (χ² test); the notes are
+    // the column without an instrument and C without the warned row (C_clean).
+    assert!(out.contains("2 warnings, 2 notes"), "{out}");
     assert!(
         out.contains(&format!("warning: {snub}:")) && out.contains("C: the frequencies disagree"),
         "{out}"
@@ -43,7 +44,12 @@ fn check_prints_warnings_at_their_row_and_strict_fails_on_them() {
         "{out}"
     );
     let v = run(&["check", "-v", &snub]);
-    assert!(String::from_utf8_lossy(&v.stdout).contains("note: "));
+    let verbose = String::from_utf8_lossy(&v.stdout);
+    assert!(verbose.contains("note: "));
+    assert!(
+        verbose.contains("without the rows with warnings (1.2 kHz), C_clean = "),
+        "{verbose}"
+    );
     assert_eq!(run(&["check", "--strict", &snub]).status.code(), Some(1));
     // The sensor tank has notes but no warning and passes: --strict accepts it.
     let o = run(&["check", "--strict", &demo("sensor-tank.md")]);

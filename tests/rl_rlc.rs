@@ -461,3 +461,104 @@ fn rlc_fit_intervals_cover_the_truth() {
         );
     }
 }
+
+/// Parses tests/reference/rlc_scatter.out (written by rlc_scatter.py): (f, VR) readings,
+/// scipy's optimum, its covariance with absolute_sigma=False, and χ²/ν at the stated u.
+fn scatter_reference() -> (Vec<[f64; 2]>, [f64; 3], [[f64; 3]; 3], f64) {
+    let text = include_str!("reference/rlc_scatter.out");
+    let (mut data, mut popt, mut pcov, mut rc2) = (Vec::new(), [0.0; 3], Vec::new(), 0.0);
+    for line in text.lines() {
+        let mut it = line.split_whitespace();
+        let key = it.next().unwrap_or("#");
+        let v: Vec<f64> = it.filter_map(|s| s.parse().ok()).collect();
+        match key {
+            "data" => data.push([v[0], v[1]]),
+            "popt" => popt = [v[0], v[1], v[2]],
+            "pcov_scaled" => pcov.push([v[0], v[1], v[2]]),
+            "chi2_per_nu" => rc2 = v[0],
+            _ => {}
+        }
+    }
+    (data, popt, [pcov[0], pcov[1], pcov[2]], rc2)
+}
+
+// Scatter far beyond the stated u (χ²/ν ≈ 123 against a 95 % limit of 1.54 at ν = 22): the
+// fit covariance scaled by χ²/ν (the Birge ratio R_B², Birge 1932) is scipy.optimize.curve_fit's
+// covariance with absolute_sigma=False on the same data (rlc_scatter.py); the block's f0, Q
+// and BW carry exactly that u, Rtotal that plus the shared gain and resistor (rectangular,
+// GUM 4.3.7), each budget shows the scatter as its own line, and U = k·u is the scaled one.
+#[test]
+fn rlc_scatter_beyond_u_scales_the_covariance_as_curve_fit_does() {
+    let (data, popt, pcov, rc2) = scatter_reference();
+    let f: Vec<f64> = data.iter().map(|d| d[0]).collect();
+    let y: Vec<f64> = data.iter().map(|d| d[1] / 100.0).collect();
+    let fit = rlc::fit_resonance(&f, &y, &vec![1e-6; y.len()]).expect("fits");
+    let rb = rlc::birge_ratio(&fit).expect("χ²/ν is above its limit");
+    let p = [fit.f0(), fit.q(), fit.rt()];
+    for a in 0..3 {
+        assert!(
+            rel(p[a], popt[a]) < 1e-7,
+            "param {a}: {} vs {}",
+            p[a],
+            popt[a]
+        );
+        for b in 0..3 {
+            let ours = p[a] * fit.cov_theta[a][b] * rb * rb * p[b];
+            let scale = (pcov[a][a] * pcov[b][b]).sqrt();
+            assert!((ours - pcov[a][b]).abs() < 1e-4 * scale, "cov[{a}][{b}]");
+        }
+    }
+    // The block: VR read by the meter (2 counts of 0.1 mV per reading), source level 1 V.
+    let rows: Vec<Vec<f64>> = data.iter().map(|d| vec![d[0], d[1]]).collect();
+    let mut env = Env {
+        instruments: BTreeMap::new(),
+        parts: BTreeMap::new(),
+    };
+    env.instruments.insert("dmm".into(), dmm());
+    env.parts.insert(
+        "R8".into(),
+        part("R8", PartKind::Resistor, 100.0, Unit::Ohm, None),
+    );
+    let mut b = block(Network::RLC, &[("f", Unit::Hz), ("VR", Unit::V)], &rows);
+    b.parts = vec![named("R8")];
+    b.source = Some(1.0);
+    let out = rlc::reduce(&env.ctx(), &b).expect("reduces");
+    let rb_text = format!(
+        "Birge ratio R_B = {}",
+        benchrec::print::plain(rc2.sqrt(), 3)
+    );
+    assert!(
+        out.flags
+            .iter()
+            .any(|f| f.message.contains(&rb_text) && f.message.contains("scaled by χ²/ν")),
+        "{:?}",
+        out.flags
+    );
+    let (f0, qf) = (popt[0], popt[1]);
+    let u_bw = (f0 / qf)
+        * (pcov[0][0] / (f0 * f0) + pcov[1][1] / (qf * qf) - 2.0 * pcov[0][1] / (f0 * qf)).sqrt();
+    let shared = (0.002f64 / 3f64.sqrt()).hypot(0.005 / 3f64.sqrt()) * popt[2];
+    for (name, want) in [
+        ("f0", pcov[0][0].sqrt()),
+        ("Q", pcov[1][1].sqrt()),
+        ("BW", u_bw),
+        ("Rtotal", pcov[2][2].sqrt().hypot(shared)),
+    ] {
+        let m = &block_result(&out, name).m;
+        assert!(rel(m.u, want) < 2e-3, "u({name}) = {} vs {want}", m.u);
+        let line = m
+            .budget
+            .iter()
+            .find(|l| {
+                l.input
+                    .starts_with("scatter beyond stated u, Birge ratio R_B = ")
+            })
+            .expect("the scatter is a budget line");
+        assert_eq!(line.dof, Some(22.0));
+        assert!(rel(m.expanded, coverage_factor(0.95, m.dof) * m.u) < 1e-12);
+        assert!(
+            m.dof.is_some() && m.k > coverage_factor(0.95, None),
+            "ν_eff is finite (the scatter has ν = 22), so k is a t quantile"
+        );
+    }
+}

@@ -104,6 +104,38 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         unit: Unit::F,
         m: block_c,
     });
+    // The block C again without the rows that carry a warning: printed beside C, not judged.
+    let flagged = flagged_groups(block, &bi, &flags);
+    if flagged.iter().any(|&x| x) && flagged.iter().any(|&x| !x) {
+        let clean: Vec<usize> = (0..ng).filter(|&g| !flagged[g]).collect();
+        let w: Vec<(usize, f64)> = clean
+            .iter()
+            .filter_map(|&g| outs.index(Out::Row(g, "C")))
+            .map(|k| (k, 1.0 / clean.len() as f64))
+            .collect();
+        let m = p.linear(&bi.model(), &w, ctx.coverage).at_block(block)?;
+        let at: Vec<String> = (0..ng)
+            .filter(|&g| flagged[g])
+            .filter_map(|g| bi.groups[g].f.map(hz))
+            .collect();
+        flags.push(Flag {
+            warn: false,
+            span: Some(block.span),
+            message: format!(
+                "without the rows with warnings ({}), C_clean = {} from {} of {} frequencies; it is printed beside C, and only C is judged",
+                at.join(", "),
+                crate::print::value_u_k(m.value, m.expanded, m.k, Unit::F),
+                clean.len(),
+                ng
+            ),
+        });
+        results.push(NamedResult {
+            name: "C_clean".into(),
+            f: None,
+            unit: Unit::F,
+            m,
+        });
+    }
     Ok(BlockResult {
         id: block.id.clone(),
         network: block.network,
@@ -113,6 +145,26 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         flags,
         plot,
     })
+}
+
+/// Per group, whether a warning flag points into one of its rows.
+fn flagged_groups(block: &ReadingsBlock, bi: &BlockInputs, flags: &[Flag]) -> Vec<bool> {
+    let inside = |r: usize, sp: crate::diag::Span| {
+        block
+            .rows
+            .get(r)
+            .is_some_and(|row| sp.start >= row.span.start && sp.end <= row.span.end)
+    };
+    bi.groups
+        .iter()
+        .map(|g| {
+            flags
+                .iter()
+                .filter(|f| f.warn)
+                .filter_map(|f| f.span)
+                .any(|sp| g.rows.iter().any(|&r| inside(r, sp)))
+        })
+        .collect()
 }
 
 /// Flags on the readings themselves: shift without period, VR or VC above Vs.
@@ -617,6 +669,71 @@ mod tests {
             "Kirchhoff check at 50 Hz: Vs − √(VR² + VC²) = "
         ));
         assert!((find(&off, "residual", 50.0).m.value - 3.0 * u).abs() < 1e-9);
+    }
+
+    // Exact readings by phasor arithmetic (num-complex) at four frequencies, and a fifth whose
+    // VC is misread by 10 %: the Kirchhoff check (common practice) warns at that row, the block
+    // C (mean of all five) is pulled off, and C_clean, the mean without the warned row, gives
+    // the chosen C back; it is not a judged result. A clean block has no C_clean.
+    #[test]
+    fn block_c_without_the_warned_rows() {
+        let (r, c, vs) = (1500.0, 100e-9, 2.0);
+        let fs = [300.0, 600.0, 1200.0, 2400.0, 4800.0];
+        let run = |bad: Option<usize>| {
+            let rows: Vec<Vec<f64>> = fs
+                .iter()
+                .enumerate()
+                .map(|(k, &f)| {
+                    let (vr, vc, _) = ideal(r, c, vs, f);
+                    let vc = if bad == Some(k) { vc * 0.9 } else { vc };
+                    vec![f, vs, vr, vc]
+                })
+                .collect();
+            let mut env = Env::new();
+            env.parts.insert(
+                "R1".into(),
+                resistor("R1", r, Some(Tolerance::Relative(0.001))),
+            );
+            env.instruments.insert(
+                "dmm".into(),
+                instrument(
+                    "dmm",
+                    Some(Accuracy::Relative {
+                        fraction: 0.002,
+                        counts: 2.0,
+                    }),
+                    Some(Quantity {
+                        value: 1e-4,
+                        unit: Unit::V,
+                    }),
+                ),
+            );
+            let mut b = block(
+                Network::RC,
+                &[
+                    ("f", Unit::Hz),
+                    ("Vs", Unit::V),
+                    ("VR", Unit::V),
+                    ("VC", Unit::V),
+                ],
+                &rows,
+            );
+            b.parts = vec![named("R1")];
+            b.meter = Some(named("dmm"));
+            reduce(&env.ctx(), &b).unwrap()
+        };
+        let clean = run(None);
+        assert!(!clean.results.iter().any(|x| x.name == "C_clean"));
+        let out = run(Some(2));
+        assert!(warned(&out, "Kirchhoff check at 1.2 kHz"));
+        let get = |n: &str| &out.results.iter().find(|x| x.name == n).unwrap().m;
+        assert!((get("C_clean").value / c - 1.0).abs() < 1e-9);
+        assert!((get("C").value / c - 1.0).abs() > 0.01);
+        assert!(get("C_clean").u > 0.0);
+        assert!(out.flags.iter().any(|f| !f.warn
+            && f.message
+                .starts_with("without the rows with warnings (1.2 kHz), C_clean = ")));
+        assert!(!NETWORK.judged.iter().any(|(n, _)| *n == "C_clean"));
     }
 
     // |VR| and |VC| are at most |Vs| in a series circuit (common practice).

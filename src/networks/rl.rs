@@ -326,14 +326,17 @@ fn weights_of(us: &[f64]) -> Vec<f64> {
 
 /// The flag for Monte Carlo trials left out of a row because their triangle did not close.
 fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<Flag> {
+    let drawn = iv.trials + iv.dropped;
+    // Above 1 % dropped the interval describes a visibly different population: a warning.
     (iv.dropped > 0).then(|| Flag {
-        warn: false,
+        warn: iv.dropped as f64 > 0.01 * drawn as f64,
         span: grp.map(|gr| gr.span),
         message: format!(
-            "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close and were left out: the Monte Carlo interval describes only the trials that close it{}",
+            "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close ({}) and were left out: the Monte Carlo interval is conditional on the triangle closing{}",
             f.map(hz).unwrap_or_default(),
             iv.dropped,
-            iv.trials + iv.dropped,
+            drawn,
+            crate::print::percent(crate::print::round_sig(iv.dropped as f64 / drawn as f64, 2)),
             if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
         ),
     })
@@ -750,7 +753,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
             warn: false,
             span: Some(block.span),
             message: format!(
-                "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: prefer the Monte Carlo intervals there",
+                "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: the record prints the Monte Carlo intervals there (probabilistically symmetric, JCGM 101 §7.7.2) beside the GUM ones",
                 not_validated.join("; ")
             ),
         });
@@ -902,6 +905,35 @@ fn plot_of(rows: &[NamedResult]) -> PlotData {
 
 #[cfg(test)]
 mod tests {
+    /// Dropped trials (JCGM 101 §7: the model is undefined for part of the input law) are
+    /// counted and make the interval conditional; above 1 % the flag is a warning.
+    #[test]
+    fn dropped_trials_are_counted_and_warned_above_one_percent() {
+        let iv = |trials, dropped| McInterval {
+            trials,
+            dropped,
+            mean: 0.0,
+            u: 1.0,
+            low: -2.0,
+            high: 2.0,
+            gum_validated: false,
+        };
+        assert!(dropped_flag(&iv(1000, 0), Some(100.0), None).is_none());
+        let many = dropped_flag(&iv(790_000, 210_000), Some(100.0), None).unwrap();
+        assert!(many.warn);
+        assert!(many.message.contains("210000 of 1000000") && many.message.contains("(21 %)"));
+        assert!(many.message.contains("conditional"));
+        assert!(
+            !dropped_flag(&iv(995_000, 5_000), Some(100.0), None)
+                .unwrap()
+                .warn
+        );
+        assert!(
+            dropped_flag(&iv(989_000, 11_000), Some(100.0), None)
+                .unwrap()
+                .warn
+        );
+    }
     use super::super::inputs::testutil::*;
     use super::*;
     use crate::notebook::Network;

@@ -364,6 +364,7 @@ fn result_json(r: &NamedResult) -> Value {
             "u": with_unit(sig(mc.u / div, 2)),
             "interval": with_unit(format!("[{}, {}]", sig(lo, 5), sig(hi, 5))),
             "validated": mc.gum_validated,
+            "conditional": mc_conditional(mc),
         })
     });
     json!({
@@ -384,6 +385,39 @@ fn result_json(r: &NamedResult) -> Value {
     })
 }
 
+/// "" or, for an interval from fewer trials than were drawn, what it is conditional on.
+fn mc_conditional(mc: &crate::uncertainty::McInterval) -> String {
+    if mc.dropped == 0 {
+        return String::new();
+    }
+    format!(
+        "conditional on the model being defined: {} of {} trials ({}) dropped",
+        mc.dropped,
+        mc.trials + mc.dropped,
+        print::percent(print::round_sig(
+            mc.dropped as f64 / (mc.trials + mc.dropped) as f64,
+            2
+        ))
+    )
+}
+
+/// A per-frequency result as printed: value ± U, and the Monte Carlo interval where the GUM
+/// interval failed the JCGM 101 §8 check.
+fn row_text(r: &NamedResult) -> String {
+    let gum = print::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit);
+    match r.m.mc.as_ref().filter(|mc| !mc.gum_validated) {
+        None => gum,
+        Some(mc) => {
+            let c = mc_conditional(mc);
+            format!(
+                "{gum}; Monte Carlo {}{}",
+                print::interval(mc.low, mc.high, r.unit),
+                if c.is_empty() { c } else { format!(", {c}") }
+            )
+        }
+    }
+}
+
 /// The per-frequency results: long form and a grid (one column per result name).
 fn frequency_json(block: &BlockResult) -> (Value, Value) {
     let long: Vec<Value> = block
@@ -394,7 +428,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
             json!({
                 "name": r.name,
                 "f": r.f.map(|f| print::quantity(f, Unit::Hz)),
-                "text": print::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit),
+                "text": row_text(r),
                 "k": k_text(r.m.k),
             })
         })
@@ -651,6 +685,39 @@ fn image_ext(path: &str, bytes: &[u8]) -> &'static str {
     }
 }
 
+/// A verdict's value: value ± U, or with the Monte Carlo interval it was judged by.
+fn verdict_value(v: &crate::judge::Verdict) -> String {
+    let gum = print::value_u_k(v.value, v.expanded, v.k, v.unit);
+    match v.mc {
+        None => gum,
+        Some(i) => format!(
+            "{gum}; judged by the Monte Carlo interval {}{}",
+            print::interval(i.low, i.high, v.unit),
+            if i.dropped > 0 {
+                format!(
+                    ", conditional: {} of {} trials dropped",
+                    i.dropped,
+                    i.trials + i.dropped
+                )
+            } else {
+                String::new()
+            }
+        ),
+    }
+}
+
+/// The printed `<name>_clean` of a verdict's block (the judged result without the rows that
+/// carry warnings), where the network gives one.
+fn clean_of(record: &Record, v: &crate::judge::Verdict) -> Option<String> {
+    let b = record.reduction.blocks.iter().find(|b| b.id == v.block)?;
+    let want = format!("{}_clean", v.name);
+    let r = b
+        .results
+        .iter()
+        .find(|r| r.name == want && v.serial.is_none())?;
+    Some(print::value_u_k(r.m.value, r.m.expanded, r.m.k, r.unit))
+}
+
 /// The verdicts table.
 fn verdicts_json(record: &Record) -> Vec<Value> {
     // Blocks with warnings: their verdicts are marked in the summary.
@@ -673,7 +740,10 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
                 "part": v.part,
                 "nominal": print::quantity(v.nominal, v.unit),
                 "interval": print::interval(v.low, v.high, v.unit),
-                "value": print::value_u_k(v.value, v.expanded, v.k, v.unit),
+                "value": match clean_of(record, v) {
+                    Some(c) => format!("{}; without the rows with warnings {}", verdict_value(v), c),
+                    None => verdict_value(v),
+                },
                 "outcome": outcome_word(v.outcome),
                 "warned": warned_blocks.contains(v.block.as_str()),
             })

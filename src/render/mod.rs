@@ -514,6 +514,7 @@ pub(crate) mod tests {
                 k: 2.06,
                 outcome: Outcome::Pass,
                 serial: None,
+                mc: None,
             }],
             lots: Vec::new(),
             safety: vec![SafetyCheck {
