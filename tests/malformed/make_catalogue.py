@@ -209,6 +209,7 @@ csvcase("tbl-heading-unit-unknown", tsub("f/Hz,VR/V", "f/Hz,VR/⟦Q"), "unknown 
 csvcase("tbl-bom-crlf-skip", "\ufeffexported by the bench PC\r\nf/Hz;VR/V;VC/V\r\n400;0,5279;1,4040\r\n800;0,9015;⟦x\r\n\r\n", "not a number", "BOM, CRLF, a skipped line and a trailing empty line; the error still at its line and column", extra='delimiter: ";"\ndecimal: comma\nskip: 1\n')
 csvcase("tbl-quoted-bad", tsub("1600,1.2491", "1600,\"1.2491 ⟦mA\""), "in volts", "a quoted field in a unit the column cannot take")
 csvcase("tbl-empty-file", "⟦", "is empty", "an empty table file")
+csvcase("tbl-range-not-listed", tsub("f/Hz,VR/V,VC/V", "f/Hz,VR/V,VC/V@⟦5V"), "does not list", "a heading in the file names a range the meter does not list", nb=ranged("    ranges: [2 V, 20 V]\n", FM + PROSE + file_head("tbl-range-not-listed") + TAIL))
 # Errors in the notebook's header keys.
 case("tbl-delimiter-bad", FM + PROSE + file_head("tbl-any", 'delimiter: ⟦"|"\n') + TAIL, "not a separator", "delimiter | is not offered")
 case("tbl-decimal-bad", FM + PROSE + file_head("tbl-any", "decimal: ⟦dot\n") + TAIL, "names no decimal separator", "decimal: dot")
