@@ -122,7 +122,8 @@ pub fn sign_file(path: &Path, req: &SignRequest) -> Result<Signed, Failure> {
     };
     let src = pipeline::read_source(&target)?;
     let edited = signoff::set_signoff(&src.text, &entry).map_err(|e| io(path, e))?;
-    signoff::check_edit(&edited, &entry).map_err(|e| io(path, e))?;
+    signoff::check_edit_with(&edited, &entry, &rec.notebook.tables.files)
+        .map_err(|e| io(path, e))?;
     pipeline::write_atomic(&target, edited.as_bytes()).map_err(|e| io(&target, e))?;
     let pdf = pipeline::default_output(path);
     let rebuilt = if pdf.is_file() {
@@ -206,7 +207,7 @@ fn verify_inner(path: &Path, signers: Option<&Signers>) -> Result<(Status, Strin
     let bytes = pipeline::read_regular(path, PDF_MAX_BYTES).map_err(|r| io(path, r))?;
     if !bytes.starts_with(b"%PDF") {
         let src = pipeline::read_source(path)?;
-        let rec = pipeline::analyse_text(path, &src.text)?;
+        let rec = pipeline::analyse_file(&src)?;
         return Ok(sign_status(&rec, signers));
     }
     let files = signoff::pdf_attachments(&bytes).map_err(|e| io(path, e))?;
@@ -228,7 +229,9 @@ fn verify_inner(path: &Path, signers: Option<&Signers>) -> Result<(Status, Strin
     };
     let text = String::from_utf8(source.clone())
         .map_err(|_| io(path, "the attached notebook is not UTF-8 text"))?;
-    let rec = pipeline::analyse_text(&PathBuf::from(&name), &text)?;
+    let rec = pipeline::analyse_with(&PathBuf::from(&name), &text, |nb| {
+        Ok(attached_tables(nb, &name, &files))
+    })?;
     if let Some(why) = pages_mismatch(&bytes, &name, &source, &rec) {
         return Ok((
             Status::Mismatch,
@@ -236,6 +239,22 @@ fn verify_inner(path: &Path, signers: Option<&Signers>) -> Result<(Status, Strin
         ));
     }
     Ok(sign_status(&rec, signers))
+}
+
+/// The table files a notebook reads, taken from the PDF's attachments beside it (by the names
+/// the record gave them); a file not attached is left out, and the notebook reports it.
+pub fn attached_tables(
+    nb: &crate::notebook::Notebook,
+    source_name: &str,
+    files: &[(String, Vec<u8>)],
+) -> pipeline::TableBytes {
+    render::data::table_attachments(nb, source_name)
+        .into_iter()
+        .filter_map(|(rel, att)| {
+            let (_, bytes) = files.iter().find(|(n, _)| *n == att)?;
+            Some((rel, att, bytes.clone()))
+        })
+        .collect()
 }
 
 /// Why the pages of `pdf` do not belong to its attachment, or `None` when they do. The digests

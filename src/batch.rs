@@ -165,7 +165,7 @@ pub fn key_path(output: &Path) -> PathBuf {
 }
 
 /// The content key of a build: tool version, built-in template, the notebook bytes, and the
-/// bytes of every file it names (a user template, images). Named files are read only through
+/// bytes of every file it names (a user template, images, table files). Named files are read only through
 /// [`pipeline::read_named`], so nothing outside the folder, no special file and nothing over
 /// its cap is opened; a file refused or missing hashes as absent and the build reports it.
 pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
@@ -186,6 +186,9 @@ pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
             for (rel, _) in pipeline::image_refs_in(&nb.items) {
                 let cap = pipeline::image_cap(&rel);
                 named.push((rel, cap));
+            }
+            for (rel, _) in notebook::table_refs(&nb) {
+                named.push((rel, notebook::TABLE_MAX_BYTES));
             }
             for (n, cap) in named {
                 h.update(b"\0file\0");

@@ -93,21 +93,60 @@ fn notes(d: &Diagnostic) -> Vec<String> {
     n
 }
 
+/// A file beside the notebook that spans may point into (a readings table, `table:`): its
+/// text takes the span offsets `base ..= base + text.len()`, past the notebook's end.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Extra {
+    /// The name printed before `:line:col`.
+    pub name: String,
+    pub text: String,
+    pub base: usize,
+}
+
+/// The file a diagnostic points into (the notebook, or one of `extras` when its span lies past
+/// the notebook's end) with the span made relative to that file.
+fn place<'a>(
+    file_name: &'a str,
+    src: &'a str,
+    extras: &'a [Extra],
+    d: &Diagnostic,
+) -> (&'a str, &'a str, Diagnostic) {
+    let mut d = shorten(d);
+    let start = d.span.start;
+    match extras
+        .iter()
+        .rev()
+        .find(|x| start > src.len() && start >= x.base)
+    {
+        Some(x) => {
+            d.span = Span::new(start - x.base, d.span.end.max(start) - x.base);
+            (&x.name, &x.text, d)
+        }
+        None => (file_name, src, d),
+    }
+}
+
 /// All diagnostics as plain text (no colour): `file:line:col`, the source line with a caret
 /// under the span, then `expected:`, `found:` and `help:` notes.
 pub fn render(file_name: &str, src: &str, diags: &[Diagnostic]) -> String {
+    render_in(file_name, src, &[], diags)
+}
+
+/// [`render`] where spans past the notebook's end point into one of `extras`.
+pub fn render_in(file_name: &str, src: &str, extras: &[Extra], diags: &[Diagnostic]) -> String {
     use codespan_reporting::diagnostic::{Diagnostic as CsDiag, Label};
     use codespan_reporting::files::SimpleFile;
     use codespan_reporting::term::{self, Chars, Config};
 
-    let file = SimpleFile::new(file_name, src);
     let config = Config {
         chars: Chars::ascii(),
         ..Config::default()
     };
     let mut out = String::new();
     for d in diags {
-        let d = &shorten(d);
+        let (file_name, src, d) = place(file_name, src, extras, d);
+        let d = &d;
+        let file = SimpleFile::new(file_name, src);
         let s = clamp_span(src, d.span);
         // A line too long to show (a pasted 10 MB cell) gets the one-line form.
         let (ls, le) = (
@@ -163,7 +202,13 @@ fn shorten(d: &Diagnostic) -> Diagnostic {
 
 /// `file:line:col: message (expected …, found …)`.
 pub fn one_line(file_name: &str, src: &str, d: &Diagnostic) -> String {
-    let d = &shorten(d);
+    one_line_in(file_name, src, &[], d)
+}
+
+/// [`one_line`] where spans past the notebook's end point into one of `extras`.
+pub fn one_line_in(file_name: &str, src: &str, extras: &[Extra], d: &Diagnostic) -> String {
+    let (file_name, src, d) = place(file_name, src, extras, d);
+    let d = &d;
     let (line, col) = line_col(src, d.span.start);
     let mut extra = Vec::new();
     if let Some(e) = &d.expected {

@@ -1,6 +1,5 @@
 //! Results export: the JSON document of FORMAT.md and a flat CSV table, both in SI units.
 
-use crate::diag::line_col;
 use crate::judge::Record;
 use crate::networks::NamedResult;
 use serde::Serialize;
@@ -125,13 +124,16 @@ fn result(r: &NamedResult) -> JsonResult {
     }
 }
 
-/// A flag as printed in the export: `line N: message` where the notebook location is known.
+/// A flag as printed in the export: `line N: message` where the notebook location is known
+/// (`FILE line N: message` in a table file).
 pub fn flag_text(rec: &Record, f: &crate::networks::Flag) -> String {
     match f.span {
-        Some(s) => {
-            let (line, col) = line_col(&rec.notebook.source, s.start);
-            format!("line {line}, column {col}: {}", f.message)
-        }
+        Some(s) => match rec.notebook.locate(s) {
+            (None, line, col) => format!("line {line}, column {col}: {}", f.message),
+            (Some(t), line, col) => {
+                format!("{} line {line}, column {col}: {}", t.path, f.message)
+            }
+        },
         None => f.message.clone(),
     }
 }

@@ -204,6 +204,13 @@ fn read_row(rel: &str, path: &Path) -> Row {
             return error_row(rel, &format!("the attached notebook does not parse: {why}"));
         }
     };
+    // Table files (`table:`) count in the digest: take them from the attachments beside.
+    let md_name = files
+        .iter()
+        .find(|(n, _)| n.ends_with(".md"))
+        .map_or("", |(n, _)| n.as_str());
+    let tables = crate::attest::attached_tables(&nb, md_name, &files);
+    let (nb, _) = crate::notebook::read_tables(nb, tables);
     let digest = signoff::digest(&nb);
     let sign = signoff::state(&nb, &digest);
     let fm = &nb.front;

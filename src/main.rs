@@ -440,8 +440,9 @@ fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
                 );
                 let at = |f: &benchrec::networks::Flag| match f.span {
                     Some(sp) => {
-                        let (l, c) = benchrec::diag::line_col(&rec.notebook.source, sp.start);
-                        format!("{}:{l}:{c}", nb.display())
+                        let (file, l, c) = rec.notebook.locate(sp);
+                        let name = file.map_or(nb.display().to_string(), |t| t.name.clone());
+                        format!("{name}:{l}:{c}")
                     }
                     None => nb.display().to_string(),
                 };
@@ -795,8 +796,9 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
     };
     status!("watching {} (Ctrl-C to stop)", path.display());
     let mut builds = 0usize;
-    // Content last built per notebook: a save that changes nothing is not rebuilt.
-    let mut last: std::collections::HashMap<PathBuf, Vec<u8>> = std::collections::HashMap::new();
+    // Build key last built per notebook (its bytes and the files it names, table files
+    // included): a save that changes nothing is not rebuilt.
+    let mut last: std::collections::HashMap<PathBuf, String> = std::collections::HashMap::new();
     let build_one = |nb: &Path, builds: &mut usize| {
         let t0 = std::time::Instant::now();
         if let Some(dir) = nb.parent() {
@@ -838,7 +840,17 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
                 continue;
             }
             for p in ev.paths {
-                if p.extension().and_then(|e| e.to_str()) != Some("md") || !p.is_file() {
+                if p.extension().and_then(|e| e.to_str()) != Some("md") {
+                    // Another file (a table a notebook reads): look again at every notebook
+                    // seen, the build key tells which it changes.
+                    for nb in single.iter().chain(last.keys()) {
+                        if !changed.contains(nb) {
+                            changed.push(nb.clone());
+                        }
+                    }
+                    continue;
+                }
+                if !p.is_file() {
                     continue;
                 }
                 let p = canon(&p);
@@ -857,10 +869,11 @@ fn watch(path: &Path, max_builds: Option<usize>) -> ExitCode {
             let Ok(bytes) = pipeline::read_notebook_bytes(&nb) else {
                 continue;
             };
-            if last.get(&nb) == Some(&bytes) {
+            let key = batch::build_key(&nb, &bytes);
+            if last.get(&nb) == Some(&key) {
                 continue;
             }
-            last.insert(nb.clone(), bytes);
+            last.insert(nb.clone(), key);
             build_one(&nb, &mut builds);
         }
     }

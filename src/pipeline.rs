@@ -20,6 +20,8 @@ pub enum Failure {
         path: PathBuf,
         source: String,
         diags: Vec<Diagnostic>,
+        /// Table files (`table:`) that spans past the notebook's end point into.
+        tables: Vec<diag::Extra>,
     },
     Render {
         path: PathBuf,
@@ -36,7 +38,8 @@ impl Failure {
                 path,
                 source,
                 diags,
-            } => diag::render(&path.display().to_string(), source, diags),
+                tables,
+            } => diag::render_in(&path.display().to_string(), source, tables, diags),
             Failure::Render { path, message } => {
                 format!(
                     "error: {}: the report could not be typeset: {message}\n",
@@ -61,6 +64,7 @@ impl Failure {
                 path,
                 source,
                 diags,
+                tables,
             } => match diags.first() {
                 Some(d) => {
                     let more = if diags.len() > 1 {
@@ -70,7 +74,7 @@ impl Failure {
                     };
                     format!(
                         "{}{more}",
-                        diag::one_line(&path.display().to_string(), source, d)
+                        diag::one_line_in(&path.display().to_string(), source, tables, d)
                     )
                 }
                 None => format!("{}: invalid notebook", path.display()),
@@ -320,22 +324,103 @@ pub fn read_source(path: &Path) -> Result<Source, Failure> {
                 path: path.to_path_buf(),
                 source: lossy,
                 diags: vec![d],
+                tables: Vec::new(),
             })
         }
     }
 }
 
-/// Parse, reduce and judge one notebook's text. Pure: no file system access.
+/// Parse, reduce and judge one notebook's text. Pure: no file system access (a block that
+/// reads its table from a file is reported: use [`analyse_file`] or [`analyse_with`]).
 pub fn analyse_text(path: &Path, text: &str) -> Result<Record, Failure> {
-    let fail = |source: &str, diags| Failure::Notebook {
+    analyse_with(path, text, |_| Ok(Vec::new()))
+}
+
+/// Table files as [`notebook::read_tables`] takes them: (path as written, name, bytes).
+pub type TableBytes = Vec<(String, String, Vec<u8>)>;
+
+/// Parse, read the table files `tables` hands over for the parsed notebook, reduce and judge.
+/// Pure apart from what `tables` does.
+pub fn analyse_with(
+    path: &Path,
+    text: &str,
+    tables: impl FnOnce(&notebook::Notebook) -> Result<TableBytes, Vec<Diagnostic>>,
+) -> Result<Record, Failure> {
+    let fail = |nb: &notebook::Notebook, diags| Failure::Notebook {
         path: path.to_path_buf(),
-        source: source.to_string(),
+        source: nb.source.clone(),
         diags,
+        tables: nb.extras(),
     };
-    let nb = notebook::parse(text).map_err(|d| fail(text, d))?;
-    let red = networks::reduce(&nb).map_err(|d| fail(&nb.source, d))?;
+    let nb = notebook::parse(text).map_err(|diags| Failure::Notebook {
+        path: path.to_path_buf(),
+        source: text.to_string(),
+        diags,
+        tables: Vec::new(),
+    })?;
+    let files = tables(&nb).map_err(|d| fail(&nb, d))?;
+    let (nb, d) = notebook::read_tables(nb, files);
+    if !d.is_empty() {
+        return Err(fail(&nb, d));
+    }
+    let red = networks::reduce(&nb).map_err(|d| fail(&nb, d))?;
+    let extras = nb.extras();
     let src = nb.source.clone();
-    judge::judge(nb, red).map_err(|d| fail(&src, d))
+    judge::judge(nb, red).map_err(|diags| Failure::Notebook {
+        path: path.to_path_buf(),
+        source: src,
+        diags,
+        tables: extras,
+    })
+}
+
+/// [`analyse_with`] for a notebook on disk: each table file it names is read through
+/// [`read_named`] (inside the notebook's folder, links included, at most
+/// [`notebook::TABLE_MAX_BYTES`]), as images are.
+pub fn analyse_file(src: &Source) -> Result<Record, Failure> {
+    analyse_with(&src.path, &src.text, |nb| read_table_files(&src.path, nb))
+}
+
+/// The bytes of every table file `nb` names, or a diagnostic at each `table:` refused.
+pub fn read_table_files(
+    path: &Path,
+    nb: &notebook::Notebook,
+) -> Result<TableBytes, Vec<Diagnostic>> {
+    let refs = notebook::table_refs(nb);
+    if refs.is_empty() {
+        return Ok(Vec::new());
+    }
+    let folder = notebook_folder(path).map_err(|e| {
+        vec![Diagnostic::new(
+            refs[0].1,
+            format!("the notebook's folder cannot be read: {e}"),
+        )
+        .expected("a readable folder")]
+    })?;
+    let mut files = Vec::new();
+    let mut diags = Vec::new();
+    for (rel, span) in refs {
+        match read_named(&folder, &rel, notebook::TABLE_MAX_BYTES) {
+            Ok(bytes) => {
+                let name = match path.parent() {
+                    Some(p) if !p.as_os_str().is_empty() => p.join(&rel).display().to_string(),
+                    _ => rel.clone(),
+                };
+                files.push((rel, name, bytes));
+            }
+            Err(r) => diags.push(
+                Diagnostic::new(span, format!("table file `{rel}` {r}"))
+                    .expected("a CSV or TSV file relative to the notebook, inside its folder")
+                    .found(rel.clone())
+                    .help("copy the file next to the notebook (or into a subfolder) and name it by a relative path"),
+            ),
+        }
+    }
+    if diags.is_empty() {
+        Ok(files)
+    } else {
+        Err(diags)
+    }
 }
 
 /// The most prose (Markdown outside readings blocks) a notebook may hold, in bytes. Typesetting
@@ -477,6 +562,7 @@ pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
             path: src.path.clone(),
             source: rec.notebook.source.clone(),
             diags,
+            tables: Vec::new(),
         })
     }
 }
@@ -651,13 +737,14 @@ pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
 /// too (and drop the bytes), so they accept exactly what `build` accepts.
 pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     let src = read_source(path)?;
-    let rec = analyse_text(path, &src.text)?;
+    let rec = analyse_file(&src)?;
     let too_long = prose_limits(&rec.notebook.items);
     if !too_long.is_empty() {
         return Err(Failure::Notebook {
             path: path.to_path_buf(),
             source: rec.notebook.source.clone(),
             diags: too_long,
+            tables: Vec::new(),
         });
     }
     let mut assets = gather_assets(&src, &rec)?;
@@ -720,6 +807,7 @@ fn render_failure(path: &Path, rec: &Record, assets: &Assets, e: RenderError) ->
         path: path.to_path_buf(),
         source: rec.notebook.source.clone(),
         diags,
+        tables: Vec::new(),
     }
 }
 

@@ -8,6 +8,7 @@
 mod common;
 
 use common::*;
+use std::path::Path;
 
 struct Case {
     file: String,
@@ -15,6 +16,8 @@ struct Case {
     col: Option<usize>,
     needles: Vec<String>,
     what: String,
+    /// The file the location is in when it is not the notebook (a table file beside it).
+    within: Option<String>,
 }
 
 fn read_manifest() -> Vec<Case> {
@@ -42,6 +45,7 @@ fn read_manifest() -> Vec<Case> {
             },
             needles: f[3].split('|').map(str::to_string).collect(),
             what: f.get(4).unwrap_or(&"").to_string(),
+            within: f.get(5).filter(|w| **w != "-").map(|w| w.to_string()),
         });
     }
     out
@@ -169,6 +173,11 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
     // is for the path and not for a missing file.
     std::fs::write(root.path().join("x.png"), TINY_PNG).unwrap();
     std::fs::write(root.path().join("elsewhere.typ"), "OUTSIDE-TEMPLATE-TEXT\n").unwrap();
+    std::fs::write(
+        root.path().join("x.csv"),
+        "f/Hz,VR/V,VC/V\n400,0.5279,1.4040\n",
+    )
+    .unwrap();
 
     // One real good build; its PDF and cache key are the "earlier build" of every case.
     let good_dir = root.path().join("good");
@@ -209,6 +218,11 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
             std::fs::create_dir_all(kp.parent().unwrap()).unwrap();
             std::fs::write(&kp, k).unwrap();
         }
+        // A table file of the case (`table:`, same name, .csv) goes beside the notebook.
+        let table = malformed_dir().join(Path::new(&name).with_extension("csv"));
+        if table.is_file() {
+            std::fs::copy(&table, dir.join(table.file_name().unwrap())).unwrap();
+        }
         // The notebook is overwritten with the bad one and rebuilt to the same path.
         std::fs::write(&nb, &bad).unwrap();
         let before = files_in(&dir);
@@ -218,7 +232,8 @@ fn malformed_catalogue_fails_cleanly_and_keeps_the_earlier_pdf() {
         if o.status.code() != Some(1) {
             problems.push(format!("exit status {:?}, expected 1", o.status.code()));
         }
-        problems.extend(located_wording(&diagnostics(&err, s(&nb)), c));
+        let within = c.within.as_ref().map_or(nb.clone(), |w| dir.join(w));
+        problems.extend(located_wording(&diagnostics(&err, s(&within)), c));
         // A message echoes what it needs, not a 10 MB line (three times).
         if err.len() > 64 * 1024 {
             problems.push(format!(

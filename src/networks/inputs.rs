@@ -376,7 +376,14 @@ fn column_ranges(
                         } else {
                             format!("one of the ranges of {iname}: {}", listed.join(", "))
                         })
-                        .found(format!("`@{}`", &ctx.source[r.span.start..r.span.end])),
+                        .found(format!(
+                            "`@{}`",
+                            // A heading in a table file stands past the notebook's end.
+                            ctx.source.get(r.span.start..r.span.end).map_or_else(
+                                || crate::print::quantity(r.full_scale.value, r.full_scale.unit),
+                                str::to_string
+                            )
+                        )),
                     );
                     continue;
                 }

@@ -1,12 +1,13 @@
 //! One readings block: fences, the YAML header, the table, and the checks across them.
 
 use super::front::Defined;
-use super::table::{parse_table, Table};
+use super::table::{content_end, parse_heading, parse_table, CellRange, Table, UNIT_COLUMN};
 use super::values::{undefined, ValueReader};
 use super::words::{list, one_of};
 use super::yaml::{kind_name, YamlLocator};
 use super::{
-    line_text, required_columns, split_lines, LotSpec, Named, Network, ReadingsBlock, MAX_HEADER,
+    line_text, required_columns, split_lines, Decimal, LotSpec, MappedColumn, Named, Network,
+    ReadingsBlock, TableSpec, MAX_HEADER,
 };
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::Unit;
@@ -14,8 +15,24 @@ use serde_yaml::Value;
 use std::collections::BTreeMap;
 
 const HEADER_KEYS: &[&str] = &[
-    "id", "network", "parts", "meter", "phase", "counter", "note", "source", "unit_of",
+    "id",
+    "network",
+    "parts",
+    "meter",
+    "phase",
+    "counter",
+    "note",
+    "source",
+    "unit_of",
+    "table",
+    "delimiter",
+    "decimal",
+    "columns",
+    "skip",
 ];
+
+/// Header keys that only a block reading its table from a file (`table:`) may give.
+const FILE_KEYS: &[&str] = &["delimiter", "decimal", "columns", "skip"];
 
 pub(super) struct BlockCtx<'a> {
     pub(super) src: &'a str,
@@ -27,14 +44,19 @@ pub(super) fn parse_block(
     r: Span,
     ids: &mut BTreeMap<String, Span>,
     d: &mut Vec<Diagnostic>,
-) -> Option<ReadingsBlock> {
+) -> Option<(ReadingsBlock, Option<TableSpec>)> {
     let src = cx.src;
     let (open_span, body) = fenced_body(src, r, d)?;
     let blines = split_lines(src, body.start, body.end);
-    let Some(sep) = blines
+    let sep = blines
         .iter()
-        .position(|l| line_text(src, l).trim() == "---")
-    else {
+        .position(|l| line_text(src, l).trim() == "---");
+    // With `table:` the fence may hold the header alone; without, the `---` line is required
+    // and a header that runs into the table is not read (one message, not a YAML error).
+    let mut hd = Vec::new();
+    let header_end = sep.map_or(body.end, |s| blines[s].start);
+    let mut header = header(cx, Span::new(body.start, header_end), open_span, &mut hd);
+    if sep.is_none() && header.file.table.is_none() {
         d.push(
             Diagnostic::new(
                 open_span,
@@ -44,39 +66,94 @@ pub(super) fn parse_block(
             .found("no `---` line"),
         );
         return None;
-    };
-    let sep_line = blines[sep];
-    let header = header(cx, Span::new(body.start, sep_line.start), open_span, d);
+    }
+    d.append(&mut hd);
     // Ids are unique even among blocks that fail elsewhere.
     if let Some((name, span)) = &header.id {
         unique_id(src, name, *span, ids, d);
     }
-    let table = parse_table(src, &blines[sep + 1..], d);
-    let sep_span = Span::new(sep_line.start, sep_line.end);
-    check_table(&table, header.network.map(|n| n.0), sep_span, d);
-    let lot = lot_spec(header.unit_of, &table, d);
+    let fence = sep.map_or(open_span, |s| Span::new(blines[s].start, blines[s].end));
+    let rest = sep.map_or(&[][..], |s| &blines[s + 1..]);
+    let (table, lot, spec) = match header.file.table.take() {
+        Some((path, span)) => {
+            fence_holds_no_table(src, rest, &path, d);
+            let spec = TableSpec {
+                block: header.id.as_ref().map_or(String::new(), |i| i.0.clone()),
+                delimiter: header.file.delimiter.unwrap_or(default_delimiter(&path)),
+                path,
+                span,
+                decimal: header.file.decimal.unwrap_or(Decimal::Point),
+                columns: std::mem::take(&mut header.file.columns),
+                skip: header.file.skip.unwrap_or(0),
+                unit_of: header.unit_of.take(),
+                fence,
+            };
+            (Table::default(), None, Some(spec))
+        }
+        None => {
+            let table = parse_table(src, rest, d);
+            check_table(&table, header.network.map(|n| n.0), fence, d);
+            let lot = lot_spec(header.unit_of.take(), &table, d);
+            (table, lot, None)
+        }
+    };
     let (id, id_span) = header.id?;
-    Some(ReadingsBlock {
-        id,
-        id_span,
-        network: header.network?.0,
-        network_span: header.network?.1,
-        parts: header.parts,
-        meter: header.meter,
-        phase: header.phase,
-        counter: header.counter,
-        note: header.note,
-        source: header.source,
-        columns: table.columns,
-        rows: table.rows,
-        span: r,
-        body: src[body.start..body.end].to_string(),
-        lot,
-    })
+    Some((
+        ReadingsBlock {
+            id,
+            id_span,
+            network: header.network?.0,
+            network_span: header.network?.1,
+            parts: header.parts,
+            meter: header.meter,
+            phase: header.phase,
+            counter: header.counter,
+            note: header.note,
+            source: header.source,
+            columns: table.columns,
+            rows: table.rows,
+            span: r,
+            body: src[body.start..body.end].to_string(),
+            lot,
+        },
+        spec,
+    ))
+}
+
+/// A block that reads a file holds only its header: table lines after `---` are refused.
+fn fence_holds_no_table(src: &str, rest: &[super::Line], path: &str, d: &mut Vec<Diagnostic>) {
+    let Some(l) = rest
+        .iter()
+        .find(|l| !src[l.start..content_end(src, l)].trim().is_empty())
+    else {
+        return;
+    };
+    d.push(
+        Diagnostic::new(
+            Span::new(l.start, content_end(src, l)),
+            format!("this block reads its table from `{path}`, so the fence holds no table"),
+        )
+        .expected("only the block header (the `---` line may be left out)")
+        .found("table lines in the fence")
+        .help("remove `table:` to type the readings here, or remove these lines"),
+    );
+}
+
+/// The separator a file's name implies: `.tsv` tab, otherwise comma (`.csv`).
+fn default_delimiter(path: &str) -> u8 {
+    if path.to_ascii_lowercase().ends_with(".tsv") {
+        b'\t'
+    } else {
+        b','
+    }
 }
 
 /// A lot needs both `unit_of` and the `unit` column; either alone is an error at it.
-fn lot_spec(unit_of: Option<Named>, table: &Table, d: &mut Vec<Diagnostic>) -> Option<LotSpec> {
+pub(super) fn lot_spec(
+    unit_of: Option<Named>,
+    table: &Table,
+    d: &mut Vec<Diagnostic>,
+) -> Option<LotSpec> {
     match (unit_of, table.unit_heading) {
         (Some(part), Some(heading)) => Some(LotSpec {
             part,
@@ -149,6 +226,20 @@ struct Header {
     source: Option<f64>,
     /// The part whose units vary, in a lot.
     unit_of: Option<Named>,
+    /// `table` and the keys that go with it.
+    file: FileKeys,
+}
+
+/// The header keys of a table read from a file; each is None when absent or wrong.
+#[derive(Default)]
+struct FileKeys {
+    table: Option<(String, Span)>,
+    delimiter: Option<u8>,
+    decimal: Option<Decimal>,
+    columns: Vec<MappedColumn>,
+    skip: Option<usize>,
+    /// Where each of [`FILE_KEYS`] was given, to refuse it without `table`.
+    given: Vec<(&'static str, Span)>,
 }
 
 /// The YAML header in `region` (between the opening fence and the `---` line).
@@ -218,7 +309,19 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
                 let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
                 h.source = ex.positive(&path, q, "the source level").map(|q| q.value);
             }
-            _ => {}
+            k => file_key(cx, &mut ex, k, val, &mut h.file),
+        }
+    }
+    if h.file.table.is_none() {
+        for (k, at) in &h.file.given {
+            ex.err(
+                Diagnostic::new(
+                    *at,
+                    format!("`{k}` applies only to a table read from a file"),
+                )
+                .expected("a header line `table: <file>.csv` beside it, or no `{k}`")
+                .found(format!("`{k}` without `table`")),
+            );
         }
     }
     if !entries.iter().any(|(k, _)| k == "id") {
@@ -241,6 +344,118 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
         );
     }
     h
+}
+
+/// One of `table`, `delimiter`, `decimal`, `columns`, `skip` (FORMAT.md 1.1).
+fn file_key(cx: &BlockCtx, ex: &mut ValueReader, key: &str, val: &Value, f: &mut FileKeys) {
+    let path = [key];
+    let y = ex.y;
+    let at = y.value_span(&path);
+    if let Some(k) = FILE_KEYS.iter().find(|k| **k == key) {
+        f.given.push((k, y.key_span(&path)));
+    }
+    let bad = |what: &str, expected: &str, found: String| {
+        Diagnostic::new(at, format!("`{key}` {what}"))
+            .expected(expected.to_string())
+            .found(found)
+    };
+    match key {
+        "table" => {
+            if let Some(t) = ex.nonempty_text(&path, val) {
+                f.table = Some((t.trim().to_string(), at));
+            }
+        }
+        "delimiter" => match ex.text(&path, val).as_deref().map(str::trim) {
+            Some(",") => f.delimiter = Some(b','),
+            Some(";") => f.delimiter = Some(b';'),
+            Some("tab") => f.delimiter = Some(b'\t'),
+            Some(other) => ex.err(bad(
+                "is not a separator a table file may use",
+                "`,`, `;` or `tab`",
+                format!("`{other}`"),
+            )),
+            None => {}
+        },
+        "decimal" => match ex.text(&path, val).as_deref().map(str::trim) {
+            Some("point") => f.decimal = Some(Decimal::Point),
+            Some("comma") => f.decimal = Some(Decimal::Comma),
+            Some(other) => ex.err(bad(
+                "names no decimal separator",
+                "`point` or `comma`",
+                format!("`{other}`"),
+            )),
+            None => {}
+        },
+        "skip" => match val.as_u64().and_then(|n| usize::try_from(n).ok()) {
+            Some(n) if n <= MAX_SKIP => f.skip = Some(n),
+            _ => ex.err(bad(
+                "must be a count of lines",
+                &format!("a whole number from 0 to {MAX_SKIP}"),
+                format!("`{}`", short_value(y.src, at)),
+            )),
+        },
+        "columns" => f.columns = mapped_columns(cx.src, ex, val),
+        _ => {}
+    }
+}
+
+/// Most lines `skip` may pass over before the header row.
+const MAX_SKIP: usize = 10_000;
+
+fn short_value(src: &str, at: Span) -> String {
+    super::words::short(src.get(at.start..at.end).unwrap_or(""))
+}
+
+/// `columns`: each key is one of our headings (read as a table heading, at the key), each
+/// value the file's header text.
+fn mapped_columns(src: &str, ex: &mut ValueReader, val: &Value) -> Vec<MappedColumn> {
+    let y = ex.y;
+    let mut out: Vec<MappedColumn> = Vec::new();
+    let mut symbols: Vec<(String, Span)> = Vec::new();
+    for (ours, v) in ex.entries(&["columns"], val, None) {
+        let path = ["columns", ours.as_str()];
+        let Some(theirs) = ex.nonempty_text(&path, v) else {
+            continue;
+        };
+        let mut k = y.key_span(&path);
+        if src[k.start..k.end].starts_with(['"', '\'']) && k.end - k.start >= 2 {
+            k = Span::new(k.start + 1, k.end - 1);
+        }
+        let column = if ours.trim() == UNIT_COLUMN {
+            None
+        } else {
+            let tok = CellRange {
+                start: k.start,
+                end: k.end,
+            };
+            let (sym, col) = parse_heading(src, tok, ex.d);
+            if let Some(first) = sym.and_then(|s| {
+                let seen = symbols.iter().find(|(x, _)| *x == s).map(|p| p.1);
+                symbols.push((s, k));
+                seen
+            }) {
+                let (fl, fc) = line_col(src, first.start);
+                ex.err(
+                    Diagnostic::new(k, "this column is mapped twice in `columns`")
+                        .expected("each of our columns once")
+                        .found(format!("`{ours}` again"))
+                        .help(format!("first at line {fl}, column {fc}")),
+                );
+                continue;
+            }
+            match col {
+                Some(c) => Some(c),
+                None => continue,
+            }
+        };
+        out.push(MappedColumn {
+            column,
+            ours: k,
+            theirs: theirs.trim().to_string(),
+            theirs_span: y.value_span(&path),
+        });
+    }
+    out
 }
 
 /// The header's `parts`: a YAML list or comma-separated text, each name defined in the front
@@ -316,7 +531,12 @@ fn unique_id(
 
 /// Checks across the header and the table: a heading and rows, the network's required
 /// columns, `shift` with `period`.
-fn check_table(table: &Table, network: Option<Network>, sep_span: Span, d: &mut Vec<Diagnostic>) {
+pub(super) fn check_table(
+    table: &Table,
+    network: Option<Network>,
+    sep_span: Span,
+    d: &mut Vec<Diagnostic>,
+) {
     let Some(hspan) = table.heading else {
         d.push(
             Diagnostic::new(sep_span, "readings block has no table")

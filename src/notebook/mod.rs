@@ -16,6 +16,7 @@
 //! `words` the wording of near misses. This file holds the public types and [`parse`].
 
 mod block;
+mod file_table;
 mod front;
 pub mod prose;
 mod table;
@@ -23,6 +24,7 @@ mod values;
 mod words;
 mod yaml;
 
+pub use file_table::{read_tables, table_refs, TABLE_MAX_BYTES};
 pub use front::{parse_accuracy, parse_iso_date, same_range};
 pub use table::UNIT_COLUMN;
 
@@ -46,6 +48,102 @@ pub struct Notebook {
     /// Byte range of the front matter YAML text (between the fences).
     pub front_span: Span,
     pub items: Vec<Item>,
+    /// Blocks that read their table from a file (`table:`), and the files once read.
+    pub tables: Tables,
+}
+
+/// The blocks whose table comes from a file (FORMAT.md 1.1, "Readings from a file") and, once
+/// the edge has read them ([`read_tables`]), those files. Empty for a notebook without `table:`.
+#[derive(Debug, Clone, Default)]
+pub struct Tables {
+    pub specs: Vec<TableSpec>,
+    pub files: Vec<TableFile>,
+}
+
+/// What a block's header says about its table file.
+#[derive(Debug, Clone)]
+pub struct TableSpec {
+    /// The block's id.
+    pub block: String,
+    /// The path as written (relative to the notebook) and the span of the value.
+    pub path: String,
+    pub span: Span,
+    /// Field separator byte (`delimiter`; default from the extension).
+    pub delimiter: u8,
+    pub decimal: Decimal,
+    /// `columns`: our heading → the file's header text, in the order written.
+    pub columns: Vec<MappedColumn>,
+    /// Lines before the header row (`skip`).
+    pub skip: usize,
+    /// The block's `unit_of`, checked against the file's `unit` column when it is read.
+    pub unit_of: Option<Named>,
+    /// The `---` line, when the fence has one (a table with no heading is reported there).
+    pub fence: Span,
+}
+
+/// The decimal separator of a table file (`decimal`); never guessed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Decimal {
+    Point,
+    Comma,
+}
+
+/// One entry of `columns`: our heading (in the notebook) and the file's header text.
+#[derive(Debug, Clone)]
+pub struct MappedColumn {
+    /// The heading read as a column, or None for the serial column `unit`.
+    pub column: Option<(Column, f64)>,
+    /// Our heading's span in the notebook (the key).
+    pub ours: Span,
+    /// The file's header text and its span in the notebook (the value).
+    pub theirs: String,
+    pub theirs_span: Span,
+}
+
+/// A table file as read by the edge: its bytes (for the digest and the attachment) and its text.
+/// Spans into it are offset by `base`, past the notebook's end, so a diagnostic or a flag
+/// at one of its cells points at the file's own line and column ([`crate::diag::Extra`]).
+#[derive(Debug, Clone)]
+pub struct TableFile {
+    /// The path as written in the notebook.
+    pub path: String,
+    /// The name printed in diagnostics (the file's path as the user gave the notebook's).
+    pub name: String,
+    pub bytes: Vec<u8>,
+    /// The text, UTF-8 BOM removed.
+    pub text: String,
+    pub base: usize,
+}
+
+impl Notebook {
+    /// The table files as extra sources for [`crate::diag::render_in`].
+    pub fn extras(&self) -> Vec<crate::diag::Extra> {
+        self.tables
+            .files
+            .iter()
+            .map(|f| crate::diag::Extra {
+                name: f.name.clone(),
+                text: f.text.clone(),
+                base: f.base,
+            })
+            .collect()
+    }
+
+    /// `(file, line, column)` of a span: in a table file, or (None) in the notebook.
+    pub fn locate(&self, span: Span) -> (Option<&TableFile>, usize, usize) {
+        let at = span.start;
+        let file = self
+            .tables
+            .files
+            .iter()
+            .rev()
+            .find(|f| at > self.source.len() && at >= f.base);
+        let (l, c) = match file {
+            Some(f) => crate::diag::line_col(&f.text, at - f.base),
+            None => crate::diag::line_col(&self.source, at),
+        };
+        (file, l, c)
+    }
 }
 
 /// What each run of prose among `items` refers to, in order.
@@ -530,6 +628,7 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         defined: &defined,
     };
     let mut items = Vec::new();
+    let mut tables = Tables::default();
     let mut ids: BTreeMap<String, Span> = BTreeMap::new();
     let mut prev = base;
     let mut depth = 0usize;
@@ -570,8 +669,9 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
                                 });
                             }
                             prev = r.end.max(prev);
-                            if let Some(b) = parse_block(&cx, r, &mut ids, &mut d) {
+                            if let Some((b, spec)) = parse_block(&cx, r, &mut ids, &mut d) {
                                 check_lot_part(&front.parts, &b, &mut d);
+                                tables.specs.extend(spec);
                                 items.push(Item::Readings(b));
                             }
                         }
@@ -598,11 +698,16 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         front,
         front_span,
         items,
+        tables,
     })
 }
 
 /// A lot's `unit_of` names a part of the block (`parts`) of a kind its network judges.
-fn check_lot_part(parts: &BTreeMap<String, Part>, b: &ReadingsBlock, d: &mut Vec<Diagnostic>) {
+pub(super) fn check_lot_part(
+    parts: &BTreeMap<String, Part>,
+    b: &ReadingsBlock,
+    d: &mut Vec<Diagnostic>,
+) {
     let Some(lot) = &b.lot else { return };
     // A name the front matter does not define is reported where the header is read.
     let Some(part) = parts.get(&lot.part.name) else {

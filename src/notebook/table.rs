@@ -10,9 +10,9 @@ use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse
 // Readings blocks.
 
 #[derive(Debug, Clone, Copy)]
-struct CellRange {
-    start: usize,
-    end: usize,
+pub(super) struct CellRange {
+    pub(super) start: usize,
+    pub(super) end: usize,
 }
 
 /// End of a table line's content: before `#` and trailing whitespace.
@@ -137,7 +137,7 @@ fn is_separator_row(src: &str, cells: &[CellRange]) -> bool {
 }
 
 /// A column heading: (symbol if recognised, column and prefix factor if fully valid).
-fn parse_heading(
+pub(super) fn parse_heading(
     src: &str,
     tok: CellRange,
     d: &mut Vec<Diagnostic>,
@@ -355,6 +355,7 @@ fn out_of_range(sym: &str, v: f64, text: &str, at: Span) -> Option<Diagnostic> {
 }
 
 /// A block's table as read.
+#[derive(Default)]
 pub(super) struct Table {
     pub(super) columns: Vec<Column>,
     pub(super) rows: Vec<Row>,
@@ -651,7 +652,7 @@ fn digit_grouping(src: &str, toks: &[CellRange]) -> Option<Diagnostic> {
 
 /// One cell in column `sym` (heading unit `unit` times `factor`); None when it is empty or
 /// not a number. A reading out of range is reported and kept.
-fn cell(
+pub(super) fn cell(
     src: &str,
     tok: CellRange,
     cend: usize,

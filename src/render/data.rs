@@ -645,6 +645,36 @@ fn outcome_word(o: Outcome) -> &'static str {
     }
 }
 
+/// The attachment name of each table file the notebook reads (`table:`), in the order of
+/// `notebook::table_refs`: (path as written, name). The name is the path made safe (`/` becomes
+/// `_`), never one of the record's other attachments or a `.md` name (a PDF carries one notebook),
+/// and unique. `verify` and `index` find the files again by these names.
+pub fn table_attachments(
+    nb: &crate::notebook::Notebook,
+    source_name: &str,
+) -> Vec<(String, String)> {
+    let mut taken = vec![
+        attachment_name(source_name),
+        SUMMARY_PATH.trim_start_matches('/').to_string(),
+    ];
+    let mut out = Vec::new();
+    for (rel, _) in crate::notebook::table_refs(nb) {
+        let mut name = attachment_name(&rel.replace(['/', '\\'], "_"));
+        if name.ends_with(".md") || name == "notebook.md" {
+            name = format!("{name}.txt");
+        }
+        let mut unique = name.clone();
+        let mut n = 2;
+        while taken.contains(&unique) {
+            unique = format!("{n}-{name}");
+            n += 1;
+        }
+        taken.push(unique.clone());
+        out.push((rel, unique));
+    }
+    out
+}
+
 /// A file name safe as a PDF attachment name and a virtual path.
 fn attachment_name(source_name: &str) -> String {
     let base = source_name.rsplit(['/', '\\']).next().unwrap_or("");
@@ -883,6 +913,19 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
     };
     files.insert(attachment.clone(), bytes);
     files.insert(SUMMARY_PATH.into(), summary_json(record).into_bytes());
+    let mut tables = Vec::new();
+    for (rel, name) in table_attachments(nb, &assets.source_name) {
+        if let Some(f) = nb.tables.files.iter().find(|f| f.path == rel) {
+            let path = format!("/{name}");
+            files.insert(path.clone(), f.bytes.clone());
+            let mime = if f.path.to_ascii_lowercase().ends_with(".tsv") {
+                "text/tab-separated-values"
+            } else {
+                "text/csv"
+            };
+            tables.push(json!({ "path": path, "name": name, "written": rel, "mime": mime }));
+        }
+    }
 
     let date = fm.date;
     use chrono::Datelike;
@@ -918,6 +961,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
             "inductor_current": print::percent(record.derating.inductor_current),
         },
         "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
+        "tables": tables,
         "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),
     });
     let text = serde_json::to_vec(&data).map_err(|e| format!("template data: {e}"))?;

@@ -462,6 +462,7 @@ pub(crate) mod tests {
             },
             front_span: s,
             items,
+            tables: Tables::default(),
         };
         let c_block = NamedResult {
             name: "C".into(),

@@ -48,6 +48,9 @@ fn canonical_front(yaml_text: &str) -> String {
 
 /// The canonical form hashed by [`digest`]: front matter (less `signoff`) and every readings
 /// block, in order. Prose is left out, so editing the narrative does not void a sign-off.
+/// A notebook whose blocks read table files (`table:`) gets one more section, the SHA-256 of
+/// each file's bytes in block order; without `table:` the form is what it always was, so
+/// earlier records keep their digest.
 pub fn canonical_form(nb: &Notebook) -> String {
     let front = nb
         .source
@@ -61,6 +64,12 @@ pub fn canonical_form(nb: &Notebook) -> String {
             out.push_str("[readings]\n");
             out.push_str(&canonical_lines(&block.body));
         }
+    }
+    for spec in &nb.tables.specs {
+        let file = nb.tables.files.iter().find(|f| f.path == spec.path);
+        out.push_str(&format!("[table {}]\n", spec.path));
+        out.push_str(&file.map_or("not read".into(), |f| sha256_hex(&f.bytes)));
+        out.push('\n');
     }
     out
 }
@@ -215,7 +224,17 @@ pub fn parse_time(on: &str) -> Option<chrono::NaiveDateTime> {
 /// Checks that `edited` (the notebook after [`set_signoff`]) still parses, carries exactly the
 /// entry written, and has the digest the entry names.
 pub fn check_edit(edited: &str, entry: &Entry) -> Result<(), String> {
-    let nb = crate::notebook::parse(edited).map_err(|d| {
+    check_edit_with(edited, entry, &[])
+}
+
+/// [`check_edit`] for a notebook whose blocks read the table files `tables` (as the record
+/// built before signing read them; signing does not touch them).
+pub fn check_edit_with(
+    edited: &str,
+    entry: &Entry,
+    tables: &[crate::notebook::TableFile],
+) -> Result<(), String> {
+    let mut nb = crate::notebook::parse(edited).map_err(|d| {
         format!(
             "the signed notebook would not parse ({}); nothing was written",
             d.first().map(|d| d.message.as_str()).unwrap_or("?")
@@ -237,6 +256,7 @@ pub fn check_edit(edited: &str, entry: &Entry) -> Result<(), String> {
             "the signed notebook would read back a different sign-off; nothing was written".into(),
         );
     }
+    nb.tables.files = tables.to_vec();
     if digest(&nb) != entry.digest {
         return Err("signing would change the notebook's digest; nothing was written".into());
     }

@@ -180,8 +180,46 @@ PIPE = """| unit | f/Hz | VR/V | VC/V |
 """
 case("lot-empty-serial", FM + PROSE + HEAD.replace("meter: dmm\n", "meter: dmm\nunit_of: C1\n") + PIPE + TAIL, "empty serial", "a row with no serial")
 case("lot-unit-column-twice", sub("unit  f/Hz    VR/V     VC/V", "unit  f/Hz    VR/V     VC/V  ⟦unit", LOT).replace("0.4732\n", "0.4732 A2\n").replace("1.4040\n", "1.4040 A1\n").replace("1.1989\n", "1.1989 A1\n").replace("0.8305\n", "0.8305 A2\n"), "appears twice", "two unit columns")
+
+# --- readings from a file (FORMAT.md 1.1): `table:`. A case with a table file has the file
+# beside it (same name, .csv) and the marker in the file when the error must point there.
+csv_cases = []  # (name, notebook text, table text, needle, note)
+TABLE_CSV = """f/Hz,VR/V,VC/V
+400,0.5279,1.4040
+800,0.9015,1.1989
+1600,1.2491,0.8305
+3200,1.4234,0.4732
+"""
+def file_head(name, extra=""):
+    return HEAD.replace("meter: dmm\n---\n", "meter: dmm\ntable: " + name + ".csv\n" + extra)
+def csvcase(name, table, needle, note, extra="", nb=None):
+    text = nb if nb is not None else FM + PROSE + file_head(name, extra) + TAIL
+    assert (("⟦" in text) + ("⟦" in table)) == 1, name
+    csv_cases.append((name, text, table, needle, note))
+def tsub(old, new, src=TABLE_CSV):
+    assert old in src, old
+    return src.replace(old, new, 1)
+csvcase("tbl-ragged-row", tsub("800,0.9015,1.1989", "800,0.9015,1.1989,⟦0.77"), "but the header row has 3", "a row of the table file with a field too many")
+csvcase("tbl-not-a-number", tsub("0.9015", "⟦O.9015"), "not a number", "letter O for zero in the table file")
+csvcase("tbl-decimal-comma", tsub("800;0.9015", "800;0⟦,9015", TABLE_CSV.replace(",", ";")), "decimal comma", "a decimal comma in a file read with decimal: point", extra='delimiter: ";"\n')
+csvcase("tbl-decimal-point", tsub("800;0,9015", "800;0⟦.9015", TABLE_CSV.replace(",", ";").replace(".", ",")), "decimal point", "a decimal point in a file read with decimal: comma", extra='delimiter: ";"\ndecimal: comma\n')
+csvcase("tbl-missing-mapped-column", tsub("f/Hz,VR/V,VC/V", "⟦Freq,CH1 RMS,CH3 RMS"), "has no column", "columns names a header the file lacks", extra='columns:\n  f/Hz: Freq\n  VR/V: CH1 RMS\n  VC/V: "CH2 RMS"\n')
+csvcase("tbl-missing-required", "⟦f/Hz,VR/V\n400,0.5279\n800,0.9015\n", "lacks column `VC`", "an RC table file without its VC column")
+csvcase("tbl-heading-unit-unknown", tsub("f/Hz,VR/V", "f/Hz,VR/⟦Q"), "unknown unit", "an unknown unit in the file's header row")
+csvcase("tbl-bom-crlf-skip", "\ufeffexported by the bench PC\r\nf/Hz;VR/V;VC/V\r\n400;0,5279;1,4040\r\n800;0,9015;⟦x\r\n\r\n", "not a number", "BOM, CRLF, a skipped line and a trailing empty line; the error still at its line and column", extra='delimiter: ";"\ndecimal: comma\nskip: 1\n')
+csvcase("tbl-quoted-bad", tsub("1600,1.2491", "1600,\"1.2491 ⟦mA\""), "in volts", "a quoted field in a unit the column cannot take")
+csvcase("tbl-empty-file", "⟦", "is empty", "an empty table file")
+csvcase("tbl-range-not-listed", tsub("f/Hz,VR/V,VC/V", "f/Hz,VR/V,VC/V@⟦5V"), "does not list", "a heading in the file names a range the meter does not list", nb=ranged("    ranges: [2 V, 20 V]\n", FM + PROSE + file_head("tbl-range-not-listed") + TAIL))
+# Errors in the notebook's header keys.
+case("tbl-delimiter-bad", FM + PROSE + file_head("tbl-any", 'delimiter: ⟦"|"\n') + TAIL, "not a separator", "delimiter | is not offered")
+case("tbl-decimal-bad", FM + PROSE + file_head("tbl-any", "decimal: ⟦dot\n") + TAIL, "names no decimal separator", "decimal: dot")
+case("tbl-skip-bad", FM + PROSE + file_head("tbl-any", "skip: ⟦-1\n") + TAIL, "count of lines", "a negative skip")
+case("tbl-key-without-table", sub("meter: dmm\n", "meter: dmm\n⟦skip: 2\n"), "applies only to a table read from a file", "skip in a block typed in the notebook")
+case("tbl-fence-has-rows", sub("meter: dmm\n---\nf/Hz    VR/V     VC/V\n", "meter: dmm\ntable: tbl-any.csv\n---\n⟦f/Hz    VR/V     VC/V\n"), "holds no table", "table: and rows in the fence as well")
+case("tbl-outside", FM + PROSE + file_head("tbl-any").replace("table: tbl-any.csv", "table: ⟦../x.csv") + TAIL, "points outside the notebook's folder", "a table file outside the folder")
+case("tbl-missing-file", FM + PROSE + file_head("tbl-any").replace("table: tbl-any.csv", "table: ⟦not-here.csv") + TAIL, "does not exist", "a table file that does not exist")
 for f in os.listdir(OUT):
-    if f.endswith(".md") and not f.startswith("ok-"):
+    if (f.endswith(".md") or f.endswith(".csv")) and not f.startswith("ok-"):
         os.remove(os.path.join(OUT, f))
 rows = []
 for name, text, needle, note in cases:
@@ -197,6 +235,20 @@ for name, text, needle, note in cases:
     for alt in needle.split("|"):
         assert alt.lower() not in clean.lower(), (name, alt)
     rows.append(f"{fn}\t{line}\t{'-' if lineonly else col}\t{needle}\t{note}")
+for name, text, table, needle, note in csv_cases:
+    marked = table if "⟦" in table else text
+    i = marked.index("⟦")
+    before = marked[:i].lstrip("\ufeff")
+    line = before.count("\n") + 1
+    col = len(before) - (before.rfind("\n") + 1) + 1
+    with open(os.path.join(OUT, name + ".md"), "w", encoding="utf-8", newline="") as fh:
+        fh.write(text.replace("⟦", ""))
+    with open(os.path.join(OUT, name + ".csv"), "w", encoding="utf-8", newline="") as fh:
+        fh.write(table.replace("⟦", ""))
+    for alt in needle.split("|"):
+        assert alt.lower() not in (text + table).lower(), (name, alt)
+    where = name + ".csv" if "⟦" in table else "-"
+    rows.append(f"{name}.md\t{line}\t{col}\t{needle}\t{note}\t{where}")
 # non-UTF-8 bytes in prose: 0xff at line 23 col 3
 raw = BASE.replace("A synthetic series pair", "A \x00synthetic series pair").encode()
 raw = raw.replace(b"\x00", b"\xff")
@@ -204,7 +256,7 @@ open(os.path.join(OUT, "enc-not-utf8.md"), "wb").write(raw)
 pre = BASE[:BASE.index("A synthetic")]
 rows.append(f"enc-not-utf8.md\t{pre.count(chr(10))+1}\t3\tnot valid UTF-8\tbyte 0xff in the prose")
 with open(os.path.join(OUT, "EXPECT.tsv"), "w") as fh:
-    fh.write("# file\tline\tcol\tmessage must contain (any of, |-separated, case-insensitive)\twhat is wrong\n")
+    fh.write("# file\tline\tcol\tmessage must contain (any of, |-separated, case-insensitive)\twhat is wrong\t[file the location is in, when not the notebook; the case's table file beside it]\n")
     fh.write("\n".join(rows) + "\n")
     fh.write("@huge-line.md\t32\t9\tnumber out of range\ta 10 MB cell of digits, generated by the test (huge_line_notebook)\n")
 with open(os.path.join(OUT, "ok-minimal.md"), "w") as fh:
