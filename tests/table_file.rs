@@ -171,19 +171,19 @@ fn a_folder_build_rebuilds_when_only_the_table_file_changes() {
     let d = s(dir.path());
     let o = run(&["build", d]);
     assert!(
-        stdout(&o).contains("built "),
+        stderr(&o).contains("built "),
         "{}{}",
-        stdout(&o),
+        stderr(&o),
         stderr(&o)
     );
     let o = run(&["build", d]);
-    assert!(stdout(&o).contains("up to date"), "{}", stdout(&o));
+    assert!(stderr(&o).contains("up to date"), "{}", stderr(&o));
     std::fs::write(&csv, scope_csv().replace(";ok", ";checked")).unwrap();
     let o = run(&["build", d]);
     assert!(
-        stdout(&o).contains("built ") && !stdout(&o).contains("up to date"),
+        stderr(&o).contains("built ") && !stderr(&o).contains("up to date"),
         "{}",
-        stdout(&o)
+        stderr(&o)
     );
 }
 
