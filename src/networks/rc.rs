@@ -751,4 +751,103 @@ mod tests {
             "VC = 80 V exceeds"
         ));
     }
+
+    /// The 3-4-5 triangle with a scope reading the trace to ±0.05 div (rectangular), so the
+    /// measured phase has a U of about 1°, and the given columns only.
+    fn triangle_on_scope(cols: &[(&str, Unit)], row: Vec<f64>) -> BlockResult {
+        let mut env = Env::new();
+        env.parts.insert("R1".into(), resistor("R1", 30.0, None));
+        let mut scope = instrument("scope", None, None);
+        scope.reading = Some(Quantity {
+            value: 0.05,
+            unit: Unit::Div,
+        });
+        env.instruments.insert("scope".into(), scope);
+        let mut b = block(Network::RC, cols, &[row]);
+        b.parts = vec![named("R1")];
+        b.phase = Some(named("scope"));
+        reduce(&env.ctx(), &b).unwrap()
+    }
+
+    // The quadrant check allows the measured phase its U on both sides (common practice for a
+    // limit check): 0.02 div of 10 (0.72°) and 2.49 div (89.6°) are inside within U; −0.2 div
+    // (−7.2°) and 2.7 div (97.2°) are not.
+    #[test]
+    fn the_quadrant_check_allows_the_phase_its_uncertainty() {
+        let at =
+            |shift: f64| triangle_on_scope(&FULL_RC6, vec![50.0, 100.0, 60.0, 80.0, shift, 10.0]);
+        let u = find(&at(0.02), "phase_measured", 50.0).m.expanded;
+        assert!(
+            u.to_degrees() > 0.9 && u.to_degrees() < 3.0,
+            "U = {}°",
+            u.to_degrees()
+        );
+        assert!(!warned(&at(0.02), "outside 0° to 90°"));
+        assert!(!warned(&at(2.49), "outside 0° to 90°"));
+        assert!(warned(&at(-0.2), "outside 0° to 90°"));
+        assert!(warned(&at(2.7), "outside 0° to 90°"));
+    }
+
+    // A shift needs its period: alone, it gives a note and no measured phase.
+    #[test]
+    fn shift_without_period_gives_a_note_and_no_measured_phase() {
+        let cols = [
+            ("f", Unit::Hz),
+            ("VR", Unit::V),
+            ("VC", Unit::V),
+            ("shift", Unit::Div),
+        ];
+        let out = triangle_on_scope(&cols, vec![50.0, 60.0, 80.0, 1.4758]);
+        let note = "shift and period are read together";
+        assert!(out
+            .flags
+            .iter()
+            .any(|f| !f.warn && f.message.starts_with(note)));
+        assert!(!out.rows.iter().any(|r| r.name == "phase_measured"));
+        let both = triangle_on_scope(&FULL_RC6, vec![50.0, 100.0, 60.0, 80.0, 1.4758, 10.0]);
+        assert!(!both.flags.iter().any(|f| f.message.starts_with(note)));
+        assert!(both.rows.iter().any(|r| r.name == "phase_measured"));
+    }
+
+    // Rounding of the square root is not a failed Kirchhoff check: a residual of 1e-9 V on
+    // 100 V with no instrument (U = 0) is within the 1e-9·Vs allowance; 1e-6 V is not.
+    #[test]
+    fn the_kirchhoff_allowance_is_relative_to_the_source() {
+        let at = |vs: f64| {
+            let mut env = Env::new();
+            env.parts.insert("R1".into(), resistor("R1", 30.0, None));
+            let mut b = block(Network::RC, &FULL_RC, &[vec![50.0, vs, 60.0, 80.0]]);
+            b.parts = vec![named("R1")];
+            reduce(&env.ctx(), &b).unwrap()
+        };
+        assert!(!warned(&at(100.0 + 1e-9), "Kirchhoff"));
+        assert!(warned(&at(100.0 + 1e-6), "Kirchhoff"));
+    }
+
+    // Each plot series holds its frequencies' points in order (the outputs' groups).
+    #[test]
+    fn plot_series_follow_the_groups() {
+        let (r, c, vs) = (2200.0, 68e-9, 1.6);
+        let freqs = [120.0, 470.0, 1300.0];
+        let data: Vec<Vec<f64>> = freqs
+            .iter()
+            .map(|&f| {
+                let (vr, vc, _) = ideal(r, c, vs, f);
+                vec![f, vr, vc]
+            })
+            .collect();
+        let mut env = Env::new();
+        env.parts.insert("R7".into(), resistor("R7", r, None));
+        let mut b = block(
+            Network::RC,
+            &[("f", Unit::Hz), ("VR", Unit::V), ("VC", Unit::V)],
+            &data,
+        );
+        b.parts = vec![named("R7")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        for (name, pts) in &out.plot.series {
+            let xs: Vec<f64> = pts.iter().map(|p| p.0).collect();
+            assert_eq!(xs, freqs, "series {name}");
+        }
+    }
 }
