@@ -2,128 +2,73 @@
 //! scipy.optimize.curve_fit (tests/reference/rlc_curve_fit.py and its .out), and the
 //! statistical coverage of the fit's stated intervals.
 
-use benchrec::diag::Span;
 use benchrec::networks::{rl, rlc, BlockResult, Context};
 use benchrec::notebook::*;
-use benchrec::quantity::{Quantity, Unit};
 use benchrec::uncertainty::{coverage_factor, propagate, Dist, Input, Model};
 use num_complex::Complex64;
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution as _, StandardNormal};
-use std::collections::BTreeMap;
 use std::f64::consts::PI;
 
-fn named(n: &str) -> Named {
-    Named {
-        name: n.into(),
-        span: Span::default(),
-    }
-}
+/// A part of the fixture: name, kind word, nominal (SI), and an inductor's winding resistance.
+struct P<'a>(&'a str, &'a str, f64, Option<f64>);
 
-fn q(value: f64, unit: Unit) -> Quantity {
-    Quantity { value, unit }
-}
-
-fn dmm() -> Instrument {
-    Instrument {
-        name: "dmm".into(),
-        what: None,
-        accuracy: Some(Accuracy::Relative {
-            fraction: 0.002,
-            counts: 2.0,
-        }),
-        resolution: Some(q(1e-4, Unit::V)),
-        bandwidth: None,
-        calibrated: None,
-        due: None,
-        reading: None,
-        distribution: Distribution::Rectangular,
-        ranges: Vec::new(),
-        range_accuracy: Vec::new(),
-        span: Span::default(),
-    }
-}
-
-fn part(name: &str, kind: PartKind, nominal: f64, unit: Unit, dcr: Option<f64>) -> Part {
-    Part {
-        name: name.into(),
-        kind,
-        nominal: Some(q(nominal, unit)),
-        tolerance: Some(Tolerance::Relative(0.005)),
-        measured: None,
-        measured_by: None,
-        dcr: dcr.map(|v| q(v, Unit::Ohm)),
-        dcr_by: None,
-        rating: None,
-        span: Span::default(),
-    }
-}
-
-fn block(network: Network, cols: &[(&str, Unit)], rows: &[Vec<f64>]) -> ReadingsBlock {
-    let mut pos = 0;
-    let mut sp = || {
-        pos += 8;
-        Span::new(pos - 8, pos - 1)
+/// A notebook with the test meter `dmm` (0.2 % + 2 counts of 0.1 mV, rectangular), the given
+/// parts (0.5 % tolerance), coverage 0.95 and one readings block `sweep-1` of `network` with
+/// the SI readings `rows` under `headings` (SI units), built from its text by the parser. Values are written in Rust's
+/// shortest round-trip form, so the parser reads back the very same f64.
+fn parsed(
+    network: &str,
+    parts: &[P],
+    source: Option<f64>,
+    headings: &[&str],
+    rows: &[Vec<f64>],
+) -> Notebook {
+    let unit = |kind: &str| match kind {
+        "resistor" => "ohm",
+        "capacitor" => "F",
+        _ => "H",
     };
-    let columns = cols
-        .iter()
-        .map(|(s, u)| Column {
-            symbol: s.to_string(),
-            unit: *u,
-            heading: format!("{s}/{}", u.symbol()),
-            range: None,
-            span: sp(),
-        })
-        .collect();
-    let rows = rows
-        .iter()
-        .map(|r| Row {
-            cells: r
-                .iter()
-                .map(|v| Cell {
-                    value: *v,
-                    text: format!("{v}"),
-                    span: sp(),
-                })
-                .collect(),
-            span: sp(),
-        })
-        .collect();
-    ReadingsBlock {
-        id: "sweep-1".into(),
-        id_span: Span::default(),
-        network,
-        network_span: Span::new(0, 0),
-        parts: Vec::new(),
-        meter: Some(named("dmm")),
-        phase: None,
-        counter: None,
-        note: None,
-        source: None,
-        columns,
-        rows,
-        span: Span::new(0, 1),
-        body: String::new(),
-        lot: None,
-    }
-}
-
-struct Env {
-    instruments: BTreeMap<String, Instrument>,
-    parts: BTreeMap<String, Part>,
-}
-
-impl Env {
-    fn ctx(&self) -> Context<'_> {
-        Context {
-            source: "",
-            coverage: 0.95,
-            date: chrono::NaiveDate::from_ymd_opt(2026, 5, 4).unwrap(),
-            instruments: &self.instruments,
-            parts: &self.parts,
+    let mut t = String::from(
+        "---\nrecord: RL-RLC\ntitle: t\ndate: 2026-05-04\noperator: test\ncoverage: 0.95\n\
+         instruments:\n  dmm:\n    accuracy: 0.2% + 2\n    resolution: 0.1 mV\nparts:\n",
+    );
+    for P(name, kind, nominal, dcr) in parts {
+        t.push_str(&format!(
+            "  {name}:\n    kind: {kind}\n    nominal: {nominal:?} {}\n    tolerance: 0.5%\n",
+            unit(kind)
+        ));
+        if let Some(d) = dcr {
+            t.push_str(&format!("    dcr: {d:?} ohm\n"));
         }
     }
+    let names: Vec<&str> = parts.iter().map(|p| p.0).collect();
+    t.push_str(&format!(
+        "---\n\n```readings\nid: sweep-1\nnetwork: {network}\nparts: [{}]\nmeter: dmm\n",
+        names.join(", ")
+    ));
+    if let Some(v) = source {
+        t.push_str(&format!("source: {v:?} V\n"));
+    }
+    t.push_str(&format!("---\n{}\n", headings.join(" ")));
+    for r in rows {
+        let cells: Vec<String> = r.iter().map(|v| format!("{v:?}")).collect();
+        t.push_str(&format!("{}\n", cells.join(" ")));
+    }
+    t.push_str("```\n");
+    parse(&t).unwrap_or_else(|d| panic!("the fixture parses: {d:?}\n{t}"))
+}
+
+/// The notebook's one readings block.
+fn the_block(nb: &Notebook) -> &ReadingsBlock {
+    nb.items
+        .iter()
+        .find_map(|i| match i {
+            Item::Readings(b) => Some(b),
+            Item::Prose { .. } => None,
+        })
+        .expect("a readings block")
 }
 
 fn block_result<'a>(b: &'a BlockResult, name: &str) -> &'a benchrec::networks::NamedResult {
@@ -151,31 +96,17 @@ fn rl_exact_readings_reduce_back() {
             vec![f, vs, (i * r).norm(), (i * zl).norm()]
         })
         .collect();
-    let mut env = Env {
-        instruments: BTreeMap::new(),
-        parts: BTreeMap::new(),
-    };
-    env.instruments.insert("dmm".into(), dmm());
-    env.parts.insert(
-        "R5".into(),
-        part("R5", PartKind::Resistor, r, Unit::Ohm, None),
-    );
-    env.parts.insert(
-        "L5".into(),
-        part("L5", PartKind::Inductor, l, Unit::H, Some(rc)),
-    );
-    let mut b = block(
-        Network::RL,
+    let nb = parsed(
+        "RL",
         &[
-            ("f", Unit::Hz),
-            ("Vs", Unit::V),
-            ("VR", Unit::V),
-            ("VL", Unit::V),
+            P("R5", "resistor", r, None),
+            P("L5", "inductor", l, Some(rc)),
         ],
+        None,
+        &["f/Hz", "Vs/V", "VR/V", "VL/V"],
         &data,
     );
-    b.parts = vec![named("R5"), named("L5")];
-    let out = rl::reduce(&env.ctx(), &b).expect("reduces");
+    let out = rl::reduce(&Context::new(&nb), the_block(&nb)).expect("reduces");
     for &f in &freqs {
         let get = |n: &str| {
             &out.rows
@@ -233,35 +164,18 @@ fn rlc_exact_readings_reduce_back() {
             vec![f, vs, vr, ph]
         })
         .collect();
-    let mut env = Env {
-        instruments: BTreeMap::new(),
-        parts: BTreeMap::new(),
-    };
-    env.instruments.insert("dmm".into(), dmm());
-    env.parts.insert(
-        "R8".into(),
-        part("R8", PartKind::Resistor, r, Unit::Ohm, None),
-    );
-    env.parts.insert(
-        "L8".into(),
-        part("L8", PartKind::Inductor, l, Unit::H, Some(rc)),
-    );
-    env.parts.insert(
-        "C8".into(),
-        part("C8", PartKind::Capacitor, c, Unit::F, None),
-    );
-    let mut b = block(
-        Network::RLC,
+    let nb = parsed(
+        "RLC",
         &[
-            ("f", Unit::Hz),
-            ("Vs", Unit::V),
-            ("VR", Unit::V),
-            ("phi", Unit::Rad),
+            P("R8", "resistor", r, None),
+            P("L8", "inductor", l, Some(rc)),
+            P("C8", "capacitor", c, None),
         ],
+        None,
+        &["f/Hz", "Vs/V", "VR/V", "phi/rad"],
         &data,
     );
-    b.parts = vec![named("R8"), named("L8"), named("C8")];
-    let out = rlc::reduce(&env.ctx(), &b).expect("reduces");
+    let out = rlc::reduce(&Context::new(&nb), the_block(&nb)).expect("reduces");
     for (name, want) in [
         ("f0", f0),
         ("Q", qf),
@@ -303,22 +217,14 @@ fn rlc_monotonic_sweep_is_flagged() {
         .map(|k| 100.0 * (1.3f64).powi(k))
         .map(|f| vec![f, vs, rlc_point(r, rc, l, c, vs, f).0])
         .collect();
-    let mut env = Env {
-        instruments: BTreeMap::new(),
-        parts: BTreeMap::new(),
-    };
-    env.instruments.insert("dmm".into(), dmm());
-    env.parts.insert(
-        "R8".into(),
-        part("R8", PartKind::Resistor, r, Unit::Ohm, None),
-    );
-    let mut b = block(
-        Network::RLC,
-        &[("f", Unit::Hz), ("Vs", Unit::V), ("VR", Unit::V)],
+    let nb = parsed(
+        "RLC",
+        &[P("R8", "resistor", r, None)],
+        None,
+        &["f/Hz", "Vs/V", "VR/V"],
         &data,
     );
-    b.parts = vec![named("R8")];
-    let out = rlc::reduce(&env.ctx(), &b).expect("flags, not an error");
+    let out = rlc::reduce(&Context::new(&nb), the_block(&nb)).expect("flags, not an error");
     assert!(
         out.flags
             .iter()
@@ -510,19 +416,14 @@ fn rlc_scatter_beyond_u_scales_the_covariance_as_curve_fit_does() {
     }
     // The block: VR read by the meter (2 counts of 0.1 mV per reading), source level 1 V.
     let rows: Vec<Vec<f64>> = data.iter().map(|d| vec![d[0], d[1]]).collect();
-    let mut env = Env {
-        instruments: BTreeMap::new(),
-        parts: BTreeMap::new(),
-    };
-    env.instruments.insert("dmm".into(), dmm());
-    env.parts.insert(
-        "R8".into(),
-        part("R8", PartKind::Resistor, 100.0, Unit::Ohm, None),
+    let nb = parsed(
+        "RLC",
+        &[P("R8", "resistor", 100.0, None)],
+        Some(1.0),
+        &["f/Hz", "VR/V"],
+        &rows,
     );
-    let mut b = block(Network::RLC, &[("f", Unit::Hz), ("VR", Unit::V)], &rows);
-    b.parts = vec![named("R8")];
-    b.source = Some(1.0);
-    let out = rlc::reduce(&env.ctx(), &b).expect("reduces");
+    let out = rlc::reduce(&Context::new(&nb), the_block(&nb)).expect("reduces");
     let rb_text = format!(
         "Birge ratio R_B = {}",
         benchrec::print::plain(rc2.sqrt(), 3)
