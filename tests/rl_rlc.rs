@@ -56,6 +56,7 @@ fn part(name: &str, kind: PartKind, nominal: f64, unit: Unit, dcr: Option<f64>) 
         dcr: dcr.map(|v| q(v, Unit::Ohm)),
         dcr_by: None,
         rating: None,
+        loss: Default::default(),
         span: Span::default(),
     }
 }

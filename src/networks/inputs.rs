@@ -1179,6 +1179,7 @@ pub(crate) mod testutil {
             dcr: None,
             dcr_by: None,
             rating: None,
+            loss: Default::default(),
             span: Span::default(),
         }
     }

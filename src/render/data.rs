@@ -210,7 +210,7 @@ fn break_points(name: &str) -> String {
 fn symbol_unit(sym: &str) -> Option<&'static str> {
     match sym {
         "Vs" | "VR" | "VC" | "VL" | "V" => Some("V"),
-        "I" => Some("A"),
+        "I" | "IR" | "IC" | "IL" => Some("A"),
         "f" => Some("Hz"),
         "shift" | "period" => Some("div"),
         _ => None,
