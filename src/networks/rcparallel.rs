@@ -47,7 +47,7 @@ pub const METHOD: Method = Method {
     ],
     resolve: &["D"],
     block: &["R", "C", "D"],
-    agree: &["R", "C"],
+    agree: &["C"],
     row: row_value,
 };
 const AMPLITUDE: &str = "an amplitude is never zero or negative here";

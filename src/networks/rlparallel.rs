@@ -46,7 +46,7 @@ pub const METHOD: Method = Method {
     ],
     resolve: &["Rac", "L"],
     block: &["R", "L", "Rac"],
-    agree: &["R", "L"],
+    agree: &["L"],
     row: row_value,
 };
 const AMPLITUDE: &str = "an amplitude is never zero or negative here";
