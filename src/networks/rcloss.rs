@@ -71,7 +71,8 @@ fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagn
 }
 
 /// The three-voltmeter results of a series R + capacitor at one frequency:
-/// [I, XC, C, ESR, D, Q] (NaN where the triangle does not close).
+/// [I, XC, C, ESR, D, Q], the order of `METHOD.outputs` (NaN where the triangle does not
+/// close).
 pub fn three_voltmeter(vs: f64, vr: f64, vc: f64, r: f64, f: f64) -> [f64; 6] {
     let c = super::rl::cos_theta(vs, vr, vc);
     series_values(vr / r, vc, c, (1.0 - c * c).sqrt(), f)
@@ -87,28 +88,16 @@ fn row_value(bi: &BlockInputs, x: &[f64], g: usize, name: &str) -> f64 {
     let (c, s) = cos_sin(bi, &METHOD, g, x);
     let i = bi.voltage("VR", g, x) / bi.r(x);
     let y = series_values(i, bi.voltage("VC", g, x), c, s, bi.f(g, x));
-    match name {
-        "I" => y[0],
-        "XC" => y[1],
-        "C" => y[2],
-        "ESR" => y[3],
-        "D" => y[4],
-        "Q" => y[5],
-        _ => f64::NAN,
-    }
+    triangle::pick(&METHOD, &y, name)
 }
 
 #[cfg(test)]
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
-    use crate::notebook::{Accuracy, Network, Tolerance};
+    use crate::notebook::{Accuracy, Tolerance};
     use crate::quantity::Quantity;
     use num_complex::Complex64;
-
-    fn network() -> Network {
-        Network::all().find(|n| n.name() == "RCloss").unwrap()
-    }
 
     /// Readings of R in series with (ESR + 1/(jωC)), by complex arithmetic.
     fn ideal(r: f64, c: f64, esr: f64, vs: f64, f: f64) -> Vec<f64> {
@@ -166,7 +155,7 @@ mod tests {
         let freqs = [200.0, 700.0, 2400.0];
         let data: Vec<Vec<f64>> = freqs.iter().map(|&f| ideal(r, c, esr, 2.5, f)).collect();
         let env = env(r);
-        let mut b = block(network(), &COLS, &data);
+        let mut b = block(network("RCloss"), &COLS, &data);
         b.parts = vec![named("R2")];
         b.meter = Some(named("dmm"));
         let out = reduce(&env.ctx(), &b).unwrap();
@@ -205,7 +194,7 @@ mod tests {
         let f = 1600.0;
         let esr = 3e-4 / (2.0 * PI * f * c);
         let env = env(r);
-        let mut b = block(network(), &COLS, &[ideal(r, c, esr, 2.0, f)]);
+        let mut b = block(network("RCloss"), &COLS, &[ideal(r, c, esr, 2.0, f)]);
         b.parts = vec![named("R2")];
         b.meter = Some(named("dmm"));
         let out = reduce(&env.ctx(), &b).unwrap();
@@ -226,7 +215,7 @@ mod tests {
         let env = env(1000.0);
         // Vs above VR + VC; then VC far above Vs + VR.
         let rows = [vec![1000.0, 3.0, 1.0, 1.0], vec![2000.0, 1.0, 0.2, 2.0]];
-        let mut b = block(network(), &COLS, &rows);
+        let mut b = block(network("RCloss"), &COLS, &rows);
         b.parts = vec![named("R2")];
         let out = reduce(&env.ctx(), &b).unwrap();
         let open: Vec<_> = out

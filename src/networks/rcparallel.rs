@@ -64,7 +64,8 @@ fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagn
     triangle::reduce(&METHOD, ctx, block)
 }
 
-/// The three-ammeter results of R ‖ capacitor at one frequency: [R, XC, C, D, Q].
+/// The three-ammeter results of R ‖ capacitor at one frequency: [R, XC, C, D, Q], the order
+/// of `METHOD.outputs`.
 pub fn three_ammeter(v: f64, i: f64, ir: f64, ic: f64, f: f64) -> [f64; 5] {
     let c = super::rl::cos_theta(i, ir, ic);
     parallel_values(v, ir, ic, (c, (1.0 - c * c).sqrt()), f)
@@ -79,27 +80,16 @@ fn parallel_values(v: f64, ir: f64, ic: f64, (c, s): (f64, f64), f: f64) -> [f64
 fn row_value(bi: &BlockInputs, x: &[f64], g: usize, name: &str) -> f64 {
     let [v, ir, ic] = ["V", "IR", "IC"].map(|s| bi.voltage(s, g, x));
     let y = parallel_values(v, ir, ic, cos_sin(bi, &METHOD, g, x), bi.f(g, x));
-    match name {
-        "R" => y[0],
-        "XC" => y[1],
-        "C" => y[2],
-        "D" => y[3],
-        "Q" => y[4],
-        _ => f64::NAN,
-    }
+    triangle::pick(&METHOD, &y, name)
 }
 
 #[cfg(test)]
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
-    use crate::notebook::{Accuracy, Network};
+    use crate::notebook::Accuracy;
     use crate::quantity::Quantity;
     use num_complex::Complex64;
-
-    fn network() -> Network {
-        Network::all().find(|n| n.name() == "RCparallel").unwrap()
-    }
 
     /// Readings of R ‖ (G + jωC) on V, by complex arithmetic.
     fn ideal(r: f64, c: f64, g: f64, v: f64, f: f64) -> Vec<f64> {
@@ -149,7 +139,7 @@ mod tests {
         let freqs = [300.0, 1000.0, 3300.0];
         let data: Vec<Vec<f64>> = freqs.iter().map(|&f| ideal(r, c, g, 3.3, f)).collect();
         let env = env();
-        let mut b = block(network(), &COLS, &data);
+        let mut b = block(network("RCparallel"), &COLS, &data);
         b.meter = Some(named("dmm"));
         let out = reduce(&env.ctx(), &b).unwrap();
         for &f in &freqs {
@@ -177,7 +167,11 @@ mod tests {
     #[test]
     fn currents_that_break_kirchhoff_are_flagged() {
         let env = env();
-        let b = block(network(), &COLS, &[vec![1000.0, 1.0, 0.9, 0.3, 0.4]]);
+        let b = block(
+            network("RCparallel"),
+            &COLS,
+            &[vec![1000.0, 1.0, 0.9, 0.3, 0.4]],
+        );
         let out = reduce(&env.ctx(), &b).unwrap();
         let f = out
             .flags

@@ -63,7 +63,8 @@ fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagn
     triangle::reduce(&METHOD, ctx, block)
 }
 
-/// The three-ammeter results of R ‖ coil at one frequency: [R, Rac, XL, L, Q].
+/// The three-ammeter results of R ‖ coil at one frequency: [R, Rac, XL, L, Q], the order of
+/// `METHOD.outputs`.
 pub fn three_ammeter(v: f64, i: f64, ir: f64, il: f64, f: f64) -> [f64; 5] {
     let c = super::rl::cos_theta(i, ir, il);
     coil_values(v, ir, il, (c, (1.0 - c * c).sqrt()), f)
@@ -78,26 +79,15 @@ fn coil_values(v: f64, ir: f64, il: f64, (c, s): (f64, f64), f: f64) -> [f64; 5]
 fn row_value(bi: &BlockInputs, x: &[f64], g: usize, name: &str) -> f64 {
     let [v, ir, il] = ["V", "IR", "IL"].map(|s| bi.voltage(s, g, x));
     let y = coil_values(v, ir, il, cos_sin(bi, &METHOD, g, x), bi.f(g, x));
-    match name {
-        "R" => y[0],
-        "Rac" => y[1],
-        "XL" => y[2],
-        "L" => y[3],
-        "Q" => y[4],
-        _ => f64::NAN,
-    }
+    triangle::pick(&METHOD, &y, name)
 }
 
 #[cfg(test)]
 mod tests {
     use super::super::inputs::testutil::*;
     use super::*;
-    use crate::notebook::{Accuracy, Network};
+    use crate::notebook::Accuracy;
     use num_complex::Complex64;
-
-    fn network() -> Network {
-        Network::all().find(|n| n.name() == "RLparallel").unwrap()
-    }
 
     /// Readings of R ‖ (Rac + jωL) on V, by complex arithmetic.
     fn ideal(r: f64, l: f64, rac: f64, v: f64, f: f64) -> Vec<f64> {
@@ -143,7 +133,7 @@ mod tests {
                 None,
             ),
         );
-        let mut b = block(network(), &COLS, &data);
+        let mut b = block(network("RLparallel"), &COLS, &data);
         b.meter = Some(named("dmm"));
         let out = reduce(&env.ctx(), &b).unwrap();
         for &f in &freqs {
@@ -172,7 +162,7 @@ mod tests {
             vec![100.0, 1.0, 0.1, 0.5, 0.8],
             vec![200.0, 1.0, 0.9, 0.5, 0.4],
         ];
-        let b = block(network(), &COLS, &rows);
+        let b = block(network("RLparallel"), &COLS, &rows);
         let out = reduce(&env.ctx(), &b).unwrap();
         let msgs: Vec<&str> = out
             .flags

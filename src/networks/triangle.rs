@@ -56,6 +56,12 @@ pub struct Method {
     pub row: fn(&BlockInputs, &[f64], usize, &str) -> f64,
 }
 
+/// Row output `name` from a row's values `y`, laid out in the order of `m.outputs`.
+pub fn pick(m: &Method, y: &[f64], name: &str) -> f64 {
+    let k = m.outputs.iter().position(|o| o.0 == name);
+    k.and_then(|k| y.get(k).copied()).unwrap_or(f64::NAN)
+}
+
 /// Within this of ±1, cos θ is taken as exactly ±1 (common practice: readings of six or seven
 /// digits cannot tell a flat triangle from one this close to flat).
 const FLAT: f64 = 1e-9;
@@ -204,13 +210,7 @@ pub fn reduce(
     let ok = row_checks(m, &bi, &pc, &mut flags);
     let outs = layout(m, &ok);
     let model = |x: &[f64]| outs.eval(|g, n| (m.row)(&bi, x, g, n), |_, _| f64::NAN);
-    let pattern: Vec<Vec<usize>> = (0..outs.len())
-        .map(|k| {
-            outs.group_of(k)
-                .map(|g| bi.group_inputs(g))
-                .unwrap_or_default()
-        })
-        .collect();
+    let pattern = outs.pattern(&bi);
     let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     let rows = outs.rows(&p.results, |g| bi.groups.get(g).and_then(|gr| gr.f));
     unresolved_flags(m, &bi, &rows, &mut flags);
