@@ -267,7 +267,56 @@ fn verdicts_for(
             mc,
         });
     }
+    out.extend(loss_verdicts(nb, block, res, unit));
     out
+}
+
+/// Block results D and ESR held against the capacitor's `max_D` and `max_esr`: one-sided,
+/// only the upper limit is tested; the interval shown is [0, limit] with the ideal 0 as
+/// nominal (a loss is never negative).
+fn loss_verdicts(
+    nb: &Notebook,
+    block: &ReadingsBlock,
+    res: &BlockResult,
+    unit: Option<&str>,
+) -> Vec<Verdict> {
+    let only = block.lot.as_ref().map(|l| l.part.name.as_str());
+    let part = block
+        .parts
+        .iter()
+        .filter(|n| unit.is_none() || only == Some(n.name.as_str()))
+        .filter_map(|n| nb.front.parts.get(&n.name))
+        .find(|p| p.kind == PartKind::Capacitor);
+    let Some(part) = part else { return Vec::new() };
+    let limit_of = |name: &str| match name {
+        "D" => part.loss.max_d,
+        "ESR" => part.loss.max_esr,
+        _ => None,
+    };
+    let rule = nb.front.decision;
+    res.results
+        .iter()
+        .filter_map(|r| {
+            let high = limit_of(&r.name)?;
+            let (value, expanded) = (r.m.value, r.m.expanded);
+            Some(Verdict {
+                block: block.id.clone(),
+                name: r.name.clone(),
+                part: part.name.clone(),
+                nominal: 0.0,
+                unit: r.unit,
+                low: 0.0,
+                high,
+                value,
+                expanded,
+                k: r.m.k,
+                outcome: decide(value, expanded, f64::NEG_INFINITY, high, rule),
+                serial: unit.map(str::to_string),
+                // The loss networks have no Monte Carlo: the verdict rests on value ± U.
+                mc: None,
+            })
+        })
+        .collect()
 }
 
 /// A lot block: each unit judged as a block of its own, then the lot figures over the units'
@@ -374,6 +423,11 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
         match part.kind {
             PartKind::Resistor => {
                 let Some(r) = part_value(part) else { continue };
+                if block.col("VR").is_none() && block.col("IR").is_some() {
+                    let w = worst(block, |g| Some(g("IR")?.powi(2) * r));
+                    push(part, "dissipation IR²·R", w, Unit::W, d.resistor_power);
+                    continue;
+                }
                 let w = worst(block, |g| Some(g("VR")?.powi(2) / r));
                 push(part, "dissipation VR²/R", w, Unit::W, d.resistor_power);
             }
@@ -382,13 +436,16 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                 let c = part_value(part);
                 let what = if block.col("VC").is_some() {
                     "peak voltage √2·VC".to_string()
+                } else if block.col("IC").is_some() {
+                    "peak voltage √2·V".to_string()
                 } else if part.measured.is_some() {
                     "peak voltage √2·I/(2πf·C), C measured".to_string()
                 } else {
                     "peak voltage √2·I/(2πf·C), C nominal".to_string()
                 };
                 let w = worst(block, |g| {
-                    let vc = g("VC").or_else(|| {
+                    let parallel = g("IC").and(g("V"));
+                    let vc = g("VC").or(parallel).or_else(|| {
                         let i = current(g)?;
                         let f = g("f")?;
                         Some(i / (2.0 * std::f64::consts::PI * f * c?))
@@ -401,7 +458,9 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                 let Some(rating) = part.rating else { continue };
                 if rating.unit == Unit::W {
                     let res = part.dcr.map(|q| q.value);
-                    let w = worst(block, |g| Some(current(g)?.powi(2) * res?));
+                    let w = worst(block, |g| {
+                        Some(g("IL").or_else(|| current(g))?.powi(2) * res?)
+                    });
                     push(
                         part,
                         "winding dissipation I²·dcr",
@@ -410,8 +469,13 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                         d.inductor_current,
                     );
                 } else {
-                    let w = worst(block, |g| current(g));
-                    push(part, "coil current I", w, Unit::A, d.inductor_current);
+                    let w = worst(block, |g| g("IL").or_else(|| current(g)));
+                    let what = if block.col("IL").is_some() {
+                        "coil current IL"
+                    } else {
+                        "coil current I"
+                    };
+                    push(part, what, w, Unit::A, d.inductor_current);
                 }
             }
         }

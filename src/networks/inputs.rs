@@ -1144,6 +1144,13 @@ pub(crate) mod testutil {
     use crate::quantity::{Quantity, Unit};
     use std::collections::BTreeMap;
 
+    /// The network of that `network:` word.
+    pub fn network(name: &str) -> Network {
+        Network::all()
+            .find(|n| n.name() == name)
+            .expect("a network")
+    }
+
     pub fn named(n: &str) -> Named {
         Named {
             name: n.into(),
@@ -1186,6 +1193,7 @@ pub(crate) mod testutil {
             dcr: None,
             dcr_by: None,
             rating: None,
+            loss: Default::default(),
             span: Span::default(),
         }
     }

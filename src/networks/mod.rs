@@ -5,6 +5,7 @@
 
 pub mod inputs;
 pub mod outputs;
+pub mod triangle;
 
 use crate::diag::{Diagnostic, Span};
 use crate::notebook::{Instrument, Item, Network, Notebook, Part, PartKind, ReadingsBlock};
@@ -18,12 +19,23 @@ use std::collections::BTreeMap;
 // The networks: a module each, declared plainly (tools such as cargo-mutants find files only
 // through plain `mod` lines), and one entry each in `NETWORKS`.
 pub mod rc;
+pub mod rcloss;
+pub mod rcparallel;
 pub mod rl;
 pub mod rlc;
+pub mod rlparallel;
 pub mod z;
 
 /// Every network, in the order messages list them.
-pub const NETWORKS: &[&Descriptor] = &[&rc::NETWORK, &rl::NETWORK, &rlc::NETWORK, &z::NETWORK];
+pub const NETWORKS: &[&Descriptor] = &[
+    &rc::NETWORK,
+    &rl::NETWORK,
+    &rlc::NETWORK,
+    &z::NETWORK,
+    &rcloss::NETWORK,
+    &rcparallel::NETWORK,
+    &rlparallel::NETWORK,
+];
 
 /// Everything about one network that the stages read: the parser (name, required columns),
 /// the reduction (inputs, checks, `reduce`), judging (results held against a part's

@@ -58,6 +58,18 @@ impl Outputs {
         }
     }
 
+    /// The dependency pattern of the outputs for `propagate_sparse`: each row output reads its
+    /// group's inputs and the shared ones (`bi.group_inputs`); block outputs are left empty.
+    pub fn pattern(&self, bi: &super::inputs::BlockInputs) -> Vec<Vec<usize>> {
+        (0..self.len())
+            .map(|k| {
+                self.group_of(k)
+                    .map(|g| bi.group_inputs(g))
+                    .unwrap_or_default()
+            })
+            .collect()
+    }
+
     /// The model's values: rows from `row(g, name)`, then each block output from
     /// `block(name, values so far)`, every one by its name.
     pub fn eval(

@@ -76,13 +76,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     }
     let model = |x: &[f64]| outs.eval(|g, n| row_value(&bi, x, g, n), |_, _| f64::NAN);
     // Each group's outputs read that group's inputs and the shared ones only.
-    let pattern: Vec<Vec<usize>> = (0..outs.len())
-        .map(|k| {
-            outs.group_of(k)
-                .map(|g| bi.group_inputs(g))
-                .unwrap_or_default()
-        })
-        .collect();
+    let pattern = outs.pattern(&bi);
     let p = propagate_sparse(&bi.model(), &model, Some(&pattern), ctx.coverage).at_block(block)?;
     // Block C = mean of the groups' C.
     let w: Vec<(usize, f64)> = (0..ng)

@@ -966,6 +966,7 @@ mod tests {
             }),
             dcr_by: None,
             rating: None,
+            loss: Default::default(),
             span: Default::default(),
         }
     }

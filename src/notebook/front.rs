@@ -54,6 +54,8 @@ const PART_KEYS: &[&str] = &[
     "dcr",
     "dcr_by",
     "rating",
+    "max_D",
+    "max_esr",
 ];
 const MEASURED_KEYS: &[&str] = &["value", "by"];
 const SIGNOFF_KEYS: &[&str] = &["by", "on", "digest", "key", "signature", "accepted"];
@@ -687,6 +689,7 @@ fn part(
         dcr: None,
         dcr_by: None,
         rating: None,
+        loss: Default::default(),
         span,
     };
     let mut by: Option<String> = None;
@@ -755,6 +758,7 @@ fn part(
                 let q = ex.quantity(&path, val, units, None);
                 p.rating = ex.positive(&path, q, "a rating");
             }
+            "max_D" | "max_esr" => loss_limit(ex, &path, val, kind, &mut p.loss),
             _ => {}
         }
     }
@@ -771,6 +775,37 @@ fn part(
         p.tolerance = tolerance(ex, name, tv, kind, p.nominal);
     }
     Some(p)
+}
+
+/// A capacitor's `max_D` (a pure number or a percentage) or `max_esr` (Ω), above zero.
+fn loss_limit(
+    ex: &mut ValueReader,
+    path: &[&str; 3],
+    val: &Value,
+    kind: PartKind,
+    loss: &mut super::LossLimits,
+) {
+    let key = path[2];
+    if kind != PartKind::Capacitor {
+        ex.err(
+            Diagnostic::new(
+                ex.y.key_span(path),
+                format!("`{key}` (a loss limit) applies only to a capacitor"),
+            )
+            .expected("`kind: capacitor`")
+            .found(format!("`kind: {}`", kind_word(kind))),
+        );
+        return;
+    }
+    if key == "max_D" {
+        let q = ex.quantity(path, val, &[Unit::One, Unit::Percent], Some(Unit::One));
+        loss.max_d = ex
+            .positive(path, q, "a dissipation factor limit")
+            .map(|q| q.value);
+    } else {
+        let q = ex.quantity(path, val, &[Unit::Ohm], None);
+        loss.max_esr = ex.positive(path, q, "an ESR limit").map(|q| q.value);
+    }
 }
 
 /// The part's `kind`, reported at the part when it is missing.

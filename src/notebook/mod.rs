@@ -274,7 +274,17 @@ pub struct Part {
     pub dcr: Option<Quantity>,
     pub dcr_by: Option<String>,
     pub rating: Option<Quantity>,
+    /// A capacitor's loss limits (`max_D`, `max_esr`), judged by the loss networks.
+    pub loss: LossLimits,
     pub span: Span,
+}
+
+/// Upper limits on a capacitor's losses from its data sheet: the dissipation factor D = tan δ
+/// (a fraction) and the equivalent series resistance (Ω).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct LossLimits {
+    pub max_d: Option<f64>,
+    pub max_esr: Option<f64>,
 }
 
 #[derive(Debug, Clone)]
@@ -345,7 +355,7 @@ pub struct Named {
 
 #[derive(Debug, Clone)]
 pub struct Column {
-    /// Case-sensitive symbol: f, Vs, VR, VC, VL, V, I, phi, shift, period.
+    /// Case-sensitive symbol: f, Vs, VR, VC, VL, V, I, phi, shift, period, IR, IC, IL.
     pub symbol: String,
     pub unit: Unit,
     /// Heading exactly as written (e.g. `f/Hz`).
@@ -426,7 +436,7 @@ const MAX_FLOW_DEPTH: usize = 32;
 
 /// Column symbols (case-sensitive).
 pub const SYMBOLS: &[&str] = &[
-    "f", "Vs", "VR", "VC", "VL", "V", "I", "phi", "shift", "period",
+    "f", "Vs", "VR", "VC", "VL", "V", "I", "phi", "shift", "period", "IR", "IC", "IL",
 ];
 
 /// IEC 60062:2016 Table 8 (from memory): tolerance letter → relative half-width.
@@ -446,7 +456,7 @@ pub fn symbol_unit(symbol: &str) -> Option<Unit> {
     Some(match symbol {
         "f" => Unit::Hz,
         "Vs" | "VR" | "VC" | "VL" | "V" => Unit::V,
-        "I" => Unit::A,
+        "I" | "IR" | "IC" | "IL" => Unit::A,
         "phi" => Unit::Rad,
         "shift" | "period" => Unit::Div,
         _ => return None,

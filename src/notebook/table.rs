@@ -316,6 +316,9 @@ const RANGES: &[(&str, f64, f64, &str, &str, &str, &str)] = &[
     ("V", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
     ("I", 1e-12, 1e4, "1 pA", "10 kA", "a current",
      "no bench meter resolves less than a picoampere, and 10 kA is beyond any bench source"),
+    ("IR", 1e-12, 1e4, "1 pA", "10 kA", "a current", AMP_WHY),
+    ("IC", 1e-12, 1e4, "1 pA", "10 kA", "a current", AMP_WHY),
+    ("IL", 1e-12, 1e4, "1 pA", "10 kA", "a current", AMP_WHY),
     ("phi", 0.0, 2.0 * std::f64::consts::PI, "", "360°", "a phase angle",
      "one turn is the most a phase can differ by"),
     ("shift", 1e-6, 1e3, "1e-6 div", "1000 div", "a trace shift",
@@ -323,6 +326,8 @@ const RANGES: &[(&str, f64, f64, &str, &str, &str, &str)] = &[
     ("period", 1e-3, 1e3, "0.001 div", "1000 div", "a trace period",
      "a display has tens of divisions, read to a tenth or so"),
 ];
+const AMP_WHY: &str =
+    "no bench meter resolves less than a picoampere, and 10 kA is beyond any bench source";
 const VOLT_WHY: &str =
     "no bench voltmeter resolves less than a picovolt, and a megavolt is beyond any bench source";
 
@@ -679,7 +684,7 @@ pub(super) fn cell(
             let problem = match sym {
                 "f" if q.value <= 0.0 => Some("a frequency must be greater than zero"),
                 "period" if q.value <= 0.0 => Some("a period must be greater than zero"),
-                "Vs" | "VR" | "VC" | "VL" | "V" | "I" if q.value < 0.0 => {
+                "Vs" | "VR" | "VC" | "VL" | "V" | "I" | "IR" | "IC" | "IL" if q.value < 0.0 => {
                     Some("a meter magnitude cannot be negative")
                 }
                 _ => None,

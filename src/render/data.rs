@@ -162,6 +162,22 @@ fn tolerance_text(t: &Tolerance, unit: Unit) -> String {
     }
 }
 
+/// The tolerance, then a capacitor's loss limits (`D ≤ 5 %; ESR ≤ 2 Ω`).
+fn tolerance_cell(p: &Part, unit: Unit) -> Option<String> {
+    let mut cell: Vec<String> = p
+        .tolerance
+        .iter()
+        .map(|t| tolerance_text(t, unit))
+        .collect();
+    cell.extend(p.loss.max_d.map(|d| format!("D ≤ {}", print::percent(d))));
+    cell.extend(
+        p.loss
+            .max_esr
+            .map(|r| format!("ESR ≤ {}", print::quantity(r, Unit::Ohm))),
+    );
+    (!cell.is_empty()).then(|| cell.join("; "))
+}
+
 fn part_json(name: &str, p: &Part) -> Value {
     let unit = p.kind.unit();
     json!({
@@ -172,7 +188,7 @@ fn part_json(name: &str, p: &Part) -> Value {
             PartKind::Inductor => "inductor",
         },
         "nominal": p.nominal.as_ref().map(q),
-        "tolerance": p.tolerance.as_ref().map(|t| tolerance_text(t, unit)),
+        "tolerance": tolerance_cell(p, unit),
         "measured": p.measured.as_ref().map(q),
         "measured_by": p.measured_by,
         "dcr": p.dcr.as_ref().map(q),
@@ -210,7 +226,7 @@ fn break_points(name: &str) -> String {
 fn symbol_unit(sym: &str) -> Option<&'static str> {
     match sym {
         "Vs" | "VR" | "VC" | "VL" | "V" => Some("V"),
-        "I" => Some("A"),
+        "I" | "IR" | "IC" | "IL" => Some("A"),
         "f" => Some("Hz"),
         "shift" | "period" => Some("div"),
         _ => None,

@@ -431,6 +431,7 @@ pub(crate) mod tests {
             dcr: None,
             dcr_by: None,
             rating: None,
+            loss: Default::default(),
             span: s,
         };
         parts.insert(

@@ -60,6 +60,8 @@ fn ykind(name: &str) -> YKind {
         "Y" => k("|Y|", "S", 1.0, true),
         "I" => k("I", "A", 1.0, true),
         "Q" => k("Q", "1", 1.0, false),
+        "D" => k("D", "1", 1.0, false),
+        "ESR" => k("ESR", "Ω", 1.0, true),
         n if n.starts_with("phase") || n == "phi" => {
             k("φ", "°", 180.0 / std::f64::consts::PI, false)
         }

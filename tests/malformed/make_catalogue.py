@@ -145,6 +145,20 @@ case("col-range-huge", sub("f/Hz    VR/V     VC/V", "f/Hz    VR/V     VC/V@⟦1e
 case("col-meter-no-range-in-volts", sub("f/Hz    VR/V     VC/V", "f/Hz    ⟦VR/V     VC/V", ranged("    ranges: [200 mA, 2 A]\n")), "but none in volts", "a meter whose ranges are all currents, reading volts")
 case("cell-over-range", sub("1.4040", "⟦2.4040", ranged("    ranges: [200 mV, 2 V]\n")), "over range", "a reading above the largest range")
 case("cell-over-named-range", sub("1.4040", "⟦1.4040", sub("f/Hz    VR/V     VC/V", "f/Hz    VR/V     VC/V@200mV", ranged("    ranges: [200 mV, 2 V]\n"))), "over range", "a reading above the range its heading names")
+# --- loss limits and the three-ammeter columns
+case("fm-max-d-negative", sub("tolerance: K\n", "tolerance: K\n    max_D: ⟦-2%\n"), "must be greater than zero", "a negative dissipation factor limit")
+case("fm-max-d-wrong-unit", sub("tolerance: K\n", "tolerance: K\n    max_D: ⟦2 ohm\n"), "has the wrong unit", "max_D given in ohms")
+case("fm-max-esr-bare", sub("tolerance: K\n", "tolerance: K\n    max_esr: ⟦3\n"), "needs a unit", "max_esr as a bare number")
+case("fm-max-esr-on-resistor", sub("tolerance: 1%\n", "tolerance: 1%\n    ⟦max_esr: 1 ohm\n"), "applies only to a capacitor", "a loss limit on a resistor")
+PAR_HEAD = HEAD.replace("network: RC", "network: RCparallel")
+PAR_TABLE = """f/Hz    V/V     I/mA      IR/mA     IC/mA
+500     5.000   17.1204   15.1515   7.3886
+1000    5.000   21.3688   15.1515   14.7684
+"""
+PAR = FM + PROSE + PAR_HEAD + PAR_TABLE + TAIL
+case("col-par-missing-IC", sub(PAR_TABLE, "⟦" + PAR_TABLE.replace("     IC/mA", "").replace("   7.3886", "").replace("   14.7684", ""), PAR), "lacks column `IC`", "RCparallel block without its IC column")
+case("cell-par-negative-IR", sub("15.1515   7.3886", "⟦-15.1515   7.3886", PAR), "cannot be negative", "a negative branch current")
+case("col-par-IC-in-volts", sub("IC/mA", "IC/⟦V", PAR), "cannot be in", "a branch current column in volts")
 # --- numbers beyond what can be computed, and fences the Markdown reader would hide
 case("cell-frequency-subnormal", sub("800     0.9015", "⟦1e-320  0.9015"), "too small to compute", "a subnormal frequency, 1e-320 Hz")
 case("cell-voltage-absurd", sub("1.1989", "⟦1e300"), "too large to compute", "VC = 1e300 V")
