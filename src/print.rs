@@ -234,7 +234,7 @@ pub fn quantity(value: f64, unit: Unit) -> String {
 
 /// A single quantity with a prefix and `digits` significant digits.
 pub fn quantity_sig(value: f64, unit: Unit, digits: usize) -> String {
-    let (div, u) = scale_for(unit, value * display_scale(unit));
+    let (div, u) = scale_for(unit, value);
     join_unit(sig(value / div, digits), &u)
 }
 
@@ -292,7 +292,7 @@ pub fn value_u(value: f64, expanded: f64, unit: Unit) -> String {
     if expanded == 0.0 {
         return quantity_sig(value, unit, 6);
     }
-    let (div, u) = scale_for(unit, value.abs().max(expanded) * display_scale(unit));
+    let (div, u) = scale_for(unit, value.abs().max(expanded));
     let (v, e) = value_and_u(value / div, expanded / div);
     if u.is_empty() {
         format!("{v} ± {e}")
@@ -541,5 +541,33 @@ mod tests {
         assert_eq!(notation(1.5e9, Unit::Hz, 2), "1500 MHz");
         assert_eq!(notation(0.05, Unit::Div, 1), "0.05 div");
         assert_eq!(notation(0.025, Unit::Percent, 2), "2.5 %");
+    }
+
+    // Edges the mutation run found untested (cargo-mutants): every superscript digit, the
+    // smallest prefix, the interval's decimals, degenerate U, and ν at its print boundaries.
+    #[test]
+    fn edges_of_the_printer() {
+        assert_eq!(superscript(1234567890), "¹²³⁴⁵⁶⁷⁸⁹⁰");
+        assert_eq!(superscript(0), "⁰");
+        assert_eq!(superscript(-5), "⁻⁵");
+        assert_eq!(sci(1.5e-10, 3), "1.50 × 10⁻¹⁰");
+        assert_eq!(prefix_for(4.7e-12), (1e-12, "p"));
+        assert_eq!(prefix_for(4.7e12), (1e12, "T"));
+        // Two significant digits of the interval's width fix its decimals.
+        assert_eq!(interval(1.0, 1.094, Unit::V), "[1.000, 1.094] V");
+        assert_eq!(interval(1000.0, 1250.0, Unit::Ohm), "[1.00, 1.25] kΩ");
+        assert_eq!(interval(100.0, 350.0, Unit::Ohm), "[100, 350] Ω");
+        assert_eq!(interval(1.0, 1.0, Unit::V), "[1.000, 1.000] V");
+        // A U that is zero or not finite, or a value that is not: the value alone, U as 0 or —.
+        assert_eq!(value_and_u(1.5, 0.0), ("1.5000".into(), "0".into()));
+        assert_eq!(
+            value_and_u(1.5, f64::INFINITY),
+            ("1.5000".into(), "—".into())
+        );
+        assert_eq!(value_and_u(f64::NAN, 0.1), ("—".into(), "0".into()));
+        assert_eq!(dof_text(Some(1e7)), "∞");
+        assert_eq!(dof_text(Some(9.5e6)), "9500000");
+        assert_eq!(dof_text(Some(10.0)), "10");
+        assert_eq!(dof_text(Some(9.96)), "9.9");
     }
 }
