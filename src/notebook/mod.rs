@@ -18,6 +18,7 @@
 mod block;
 mod front;
 pub mod prose;
+pub mod register;
 mod table;
 mod values;
 mod words;
@@ -46,6 +47,8 @@ pub struct Notebook {
     /// Byte range of the front matter YAML text (between the fences).
     pub front_span: Span,
     pub items: Vec<Item>,
+    /// What the notebook takes from its lab register (`lab.yaml`), when it was given one.
+    pub lab: Option<register::LabUse>,
 }
 
 /// What each run of prose among `items` refers to, in order.
@@ -190,6 +193,9 @@ pub struct Signoff {
     pub signature: Option<String>,
     /// The signer's reason for signing a record with warnings or a verdict other than pass.
     pub accepted: Option<String>,
+    /// The digest of each lab register entry the record relied on when signed (asset id →
+    /// `sha256:…`), so `verify` can name an entry that changed since.
+    pub register: Vec<(String, String)>,
     pub span: Span,
 }
 
@@ -473,6 +479,15 @@ fn hidden_fences(src: &str, region: Span, kind: Hidden, d: &mut Vec<Diagnostic>)
 
 /// Parses a notebook; on any problem returns every diagnostic found (all in one pass).
 pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
+    parse_with(src, None)
+}
+
+/// [`parse`] with the lab register that applies to the notebook: its asset ids may be named
+/// as instruments, and its defaults fill keys the front matter leaves out.
+pub fn parse_with(
+    src: &str,
+    register: Option<&register::Register>,
+) -> Result<Notebook, Vec<Diagnostic>> {
     let source = src.strip_prefix('\u{FEFF}').unwrap_or(src).to_string();
     if source.len() > MAX_SOURCE {
         return Err(vec![Diagnostic::new(
@@ -520,8 +535,9 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         return Err(d);
     } else {
         let y = YamlLocator::new(&source, front_span.start, front_span.end, open_span);
-        front_matter(&y, &mut d)
+        front_matter(&y, &mut d, register.map(|r| &r.instruments))
     };
+    let mut front = front;
 
     let base = close.next;
     let md = &source[base..];
@@ -591,13 +607,18 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         });
     }
     if !d.is_empty() {
+        if register.is_some() {
+            d.iter_mut().for_each(register::undefined_in_register);
+        }
         return Err(d);
     }
+    let lab = register.map(|r| register::resolve(&mut front, &items, r, &defined.present));
     Ok(Notebook {
         source,
         front,
         front_span,
         items,
+        lab,
     })
 }
 

@@ -461,6 +461,7 @@ pub(crate) mod tests {
             },
             front_span: s,
             items,
+            lab: None,
         };
         let c_block = NamedResult {
             name: "C".into(),
