@@ -412,8 +412,12 @@ pub(super) fn resolve(
         lab: reg.lab.clone(),
         ..LabUse::default()
     };
+    let own: BTreeSet<String> = front.instruments.keys().cloned().collect();
     for (name, at) in references(front, items) {
-        if front.instruments.contains_key(&name) {
+        if lab.asset(&name).is_some() {
+            continue;
+        }
+        if own.contains(&name) {
             if reg.instruments.contains_key(&name) && !lab.overrides.contains(&name) {
                 lab.overrides.push(name);
             }
@@ -498,5 +502,30 @@ mod tests {
         assert!(parse_register("lab: [unclosed\n").is_err());
         let d = parse_register("labs: x\n").unwrap_err();
         assert!(d[0].message.contains("unknown key"), "{:?}", d);
+    }
+
+    #[test]
+    fn an_entry_named_twice_is_used_once_and_overrides_nothing() {
+        let r = parse_register(REG).expect("parses");
+        let block = |id: &str| {
+            format!("```readings\nid: {id}\nnetwork: RC\nparts: [R1, C1]\nmeter: DMM-07\n---\nf/Hz VR/V VC/V\n1000 1.0 1.0\n```\n\n")
+        };
+        let src = format!(
+            "---\nrecord: R\ntitle: t\ndate: 2026-02-01\noperator: o\nparts:\n  R1: {{kind: resistor, nominal: 1 kohm}}\n  C1: {{kind: capacitor, nominal: 1 uF}}\n---\n\n{}{}",
+            block("a"),
+            block("b")
+        );
+        let nb = crate::notebook::parse_with(&src, Some(&r)).expect("parses");
+        let lab = nb.lab.expect("a register was given");
+        assert!(lab.overrides.is_empty());
+        assert_eq!(lab.used.len(), 1);
+        let ins = &nb.front.instruments["DMM-07"];
+        // The span points at the first `meter:` value in the notebook, not into lab.yaml.
+        assert_eq!(&src[ins.span.start..ins.span.end], "DMM-07");
+        assert_eq!(ins.due, parse_iso_date("2027-01-12"));
+        assert!(
+            crate::notebook::parse(&src).is_err(),
+            "without the register"
+        );
     }
 }
