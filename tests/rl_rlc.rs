@@ -122,6 +122,7 @@ impl Env {
             date: chrono::NaiveDate::from_ymd_opt(2026, 5, 4).unwrap(),
             instruments: &self.instruments,
             parts: &self.parts,
+            lab: None,
         }
     }
 }
