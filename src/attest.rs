@@ -81,7 +81,8 @@ pub fn sign_file(path: &Path, req: &SignRequest) -> Result<Signed, Failure> {
     };
     // Edit the file a symlink points at, not the link.
     let target = std::fs::canonicalize(path).map_err(|e| io(path, e))?;
-    let (rec, _pdf) = pipeline::render_file(&target)?;
+    let lab = pipeline::lab_for(&target)?;
+    let (rec, _pdf) = pipeline::render_file_with(&target, lab.as_ref())?;
     let reservations = judge::reservations(&rec);
     if !reservations.is_empty() && accepted.is_none() {
         let list: Vec<String> = reservations
@@ -119,11 +120,17 @@ pub fn sign_file(path: &Path, req: &SignRequest) -> Result<Signed, Failure> {
         key,
         signature,
         accepted,
+        register: signoff::register_digests(&rec.notebook),
     };
     let src = pipeline::read_source(&target)?;
     let edited = signoff::set_signoff(&src.text, &entry).map_err(|e| io(path, e))?;
-    signoff::check_edit_with(&edited, &entry, &rec.notebook.tables.files)
-        .map_err(|e| io(path, e))?;
+    signoff::check_edit_with(
+        &edited,
+        &entry,
+        &rec.notebook.tables.files,
+        lab.as_ref().map(|l| &l.register),
+    )
+    .map_err(|e| io(path, e))?;
     pipeline::write_atomic(&target, edited.as_bytes()).map_err(|e| io(&target, e))?;
     let pdf = pipeline::default_output(path);
     let rebuilt = if pdf.is_file() {
@@ -205,9 +212,11 @@ pub fn verify_file(path: &Path, signers: Option<&Signers>) -> Report {
 
 fn verify_inner(path: &Path, signers: Option<&Signers>) -> Result<(Status, String), Failure> {
     let bytes = pipeline::read_regular(path, PDF_MAX_BYTES).map_err(|r| io(path, r))?;
+    // The register that applies where the notebook or PDF lies now.
+    let lab = pipeline::lab_for(path)?;
     if !bytes.starts_with(b"%PDF") {
         let src = pipeline::read_source(path)?;
-        let rec = pipeline::analyse_file(&src)?;
+        let rec = pipeline::analyse_file(&src, lab.as_ref())?;
         return Ok(sign_status(&rec, signers));
     }
     let files = signoff::pdf_attachments(&bytes).map_err(|e| io(path, e))?;
@@ -229,7 +238,7 @@ fn verify_inner(path: &Path, signers: Option<&Signers>) -> Result<(Status, Strin
     };
     let text = String::from_utf8(source.clone())
         .map_err(|_| io(path, "the attached notebook is not UTF-8 text"))?;
-    let rec = pipeline::analyse_with(&PathBuf::from(&name), &text, |nb| {
+    let rec = pipeline::analyse_with(&PathBuf::from(&name), &text, lab.as_ref(), |nb| {
         Ok(attached_tables(nb, &name, &files))
     })?;
     if let Some(why) = pages_mismatch(&bytes, &name, &source, &rec) {
@@ -271,13 +280,27 @@ fn pages_mismatch(pdf: &[u8], name: &str, source: &[u8], rec: &Record) -> Option
         .signoff
         .as_ref()
         .map(|s| s.digest.as_str());
-    if let PageCheck::Mismatch(why) =
-        signoff::pdf::check_pages(&text, source, &rec.digest, recorded)
-    {
+    // A record signed before a register entry it uses changed was built with the entry as it
+    // was: its pages print the digest of signing, and it cannot be rebuilt as it was.
+    let moved = !register_changes(rec).is_empty();
+    let digest = match recorded {
+        Some(d) if moved => d,
+        _ => rec.digest.as_str(),
+    };
+    if let PageCheck::Mismatch(why) = signoff::pdf::check_pages(&text, source, digest, recorded) {
         return Some(why);
     }
+    if moved {
+        return None;
+    }
     let this = format!("benchrec {}", env!("CARGO_PKG_VERSION"));
-    let standalone = pipeline::image_refs(rec).is_empty() && rec.notebook.front.template.is_none();
+    let standalone = pipeline::image_refs(rec).is_empty()
+        && rec.notebook.front.template.is_none()
+        && rec
+            .notebook
+            .lab
+            .as_ref()
+            .is_none_or(|l| l.template.is_none());
     if signoff::pdf::creator(pdf).as_deref() == Some(this.as_str()) && standalone {
         let assets = Assets {
             source_name: name.to_string(),
@@ -300,15 +323,39 @@ fn pages_mismatch(pdf: &[u8], name: &str, source: &[u8], rec: &Record) -> Option
     None
 }
 
+/// The lab register entries (asset ids, or `(defaults)`) whose digest differs from the one
+/// the sign-off recorded; empty when the sign-off recorded none or none changed.
+fn register_changes(rec: &Record) -> Vec<String> {
+    match &rec.notebook.front.signoff {
+        Some(s) if !s.register.is_empty() || rec.notebook.lab.is_some() => {
+            signoff::changed_entries(&rec.notebook, &s.register)
+        }
+        _ => Vec::new(),
+    }
+}
+
 /// What the record's sign-off proves, and against `signers` when given.
 fn sign_status(rec: &Record, signers: Option<&Signers>) -> (Status, String) {
     let d = rec.sign.describe();
     match &rec.sign {
         SignState::Unsigned => (Status::Unsigned, "no sign-off".into()),
-        SignState::Void { recorded, .. } => (
-            Status::Void,
-            format!("{d} (digest at signing {recorded}, now {})", rec.digest),
-        ),
+        SignState::Void { by, on, recorded } => {
+            let changed = register_changes(rec);
+            let what = if changed.is_empty() {
+                d
+            } else {
+                let names: Vec<String> = changed.iter().map(|n| format!("`{n}`")).collect();
+                let entry = if names.len() == 1 { "entry" } else { "entries" };
+                format!(
+                    "void: signed by {by} on {on}, but the lab register {entry} {} that the record relies on changed after signing",
+                    names.join(", ")
+                )
+            };
+            (
+                Status::Void,
+                format!("{what} (digest at signing {recorded}, now {})", rec.digest),
+            )
+        }
         SignState::Forged { .. } => (Status::NotAuthentic, d),
         SignState::NameOnly { digest, .. } => (
             Status::NameOnly,
@@ -349,6 +396,37 @@ pub fn read_signers(path: &Path) -> Result<Signers, Failure> {
     let text =
         String::from_utf8(bytes).map_err(|_| io(path, "the allowed-signers file is not text"))?;
     Signers::parse(&text).map_err(|(line, m)| io(path, format!("line {line}: {m}")))
+}
+
+/// The allowed signers the lab register names (`signers`, relative to lab.yaml) for the
+/// notebook, PDF or folder at `path`; `None` when no register applies or it names none.
+pub fn register_signers(path: &Path) -> Result<Option<Signers>, Failure> {
+    let lab = if path.is_dir() {
+        let dir = path.canonicalize().map_err(|e| io(path, e))?;
+        pipeline::find_lab(&dir)
+            .map(|p| pipeline::load_lab(&p))
+            .transpose()?
+    } else {
+        pipeline::lab_for(path)?
+    };
+    let Some(lab) = lab else { return Ok(None) };
+    let Some((rel, span)) = &lab.register.signers else {
+        return Ok(None);
+    };
+    let at = |why: String| Failure::Notebook {
+        path: lab.path.clone(),
+        source: String::from_utf8_lossy(&lab.raw).into_owned(),
+        diags: vec![crate::diag::Diagnostic::new(*span, why).expected(
+            "an allowed-signers file (OpenSSH format), relative to lab.yaml, inside its folder",
+        )],
+        tables: Vec::new(),
+    };
+    let bytes = pipeline::read_named(lab.folder(), rel, KEY_FILE_MAX_BYTES)
+        .map_err(|r| at(format!("the allowed-signers file `{rel}` {r}")))?;
+    let text = String::from_utf8(bytes).map_err(|_| at(format!("`{rel}` is not text")))?;
+    Signers::parse(&text)
+        .map(Some)
+        .map_err(|(line, m)| at(format!("`{rel}` line {line}: {m}")))
 }
 
 /// Every PDF under `dir`, in path order, verified in parallel.

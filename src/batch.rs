@@ -169,6 +169,12 @@ pub fn key_path(output: &Path) -> PathBuf {
 /// [`pipeline::read_named`], so nothing outside the folder, no special file and nothing over
 /// its cap is opened; a file refused or missing hashes as absent and the build reports it.
 pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
+    build_key_with(notebook_path, raw, None)
+}
+
+/// [`build_key`] with the lab register that applies: its path and bytes, and its default
+/// template's bytes, count too (nothing changes for a notebook without one).
+pub fn build_key_with(notebook_path: &Path, raw: &[u8], lab: Option<&pipeline::Lab>) -> String {
     let mut h = Sha256::new();
     h.update(b"benchrec build key 2\0");
     h.update(env!("CARGO_PKG_VERSION").as_bytes());
@@ -178,7 +184,7 @@ pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
     h.update(raw);
     let folder = pipeline::notebook_folder(notebook_path);
     if let (Ok(text), Ok(folder)) = (std::str::from_utf8(raw), folder) {
-        if let Ok(nb) = notebook::parse(text) {
+        if let Ok(nb) = notebook::parse_with(text, lab.map(|l| &l.register)) {
             let mut named: Vec<(String, u64)> = Vec::new();
             if let Some((t, _)) = &nb.front.template {
                 named.push((t.clone(), pipeline::TEMPLATE_MAX_BYTES));
@@ -198,6 +204,17 @@ pub fn build_key(notebook_path: &Path, raw: &[u8]) -> String {
                     h.update(Sha256::digest(&bytes));
                 }
             }
+        }
+    }
+    if let Some(lab) = lab {
+        h.update(b"\0lab\0");
+        h.update(lab.path.to_string_lossy().as_bytes());
+        h.update(b"\0");
+        h.update(Sha256::digest(&lab.raw));
+        if let Some((t, _)) = &lab.register.defaults.template {
+            h.update(b"\0template\0");
+            let bytes = pipeline::read_named(lab.folder(), t, pipeline::TEMPLATE_MAX_BYTES);
+            h.update(Sha256::digest(bytes.unwrap_or_default()));
         }
     }
     hex(&h.finalize())
@@ -268,12 +285,101 @@ pub enum Outcome {
 
 /// Builds one job unless its output is up to date (and `force` is off).
 pub fn run_job(job: &Job, force: bool) -> Outcome {
+    match pipeline::lab_for(&job.notebook) {
+        Ok(lab) => run_job_with(job, force, lab.as_ref()),
+        Err(f) => Outcome::Failed(f),
+    }
+}
+
+/// The lab registers of a batch, each read once before the builds start.
+pub struct Labs {
+    /// Per job: its register, or the index of its broken register in `broken`.
+    of_job: Vec<Result<Option<std::sync::Arc<pipeline::Lab>>, usize>>,
+    /// Each broken register's failure and the first job (in job order) that uses it, which
+    /// reports it; the others say where it was reported.
+    broken: Vec<(Failure, usize)>,
+    /// Each job's notebook, as named.
+    notebooks: Vec<String>,
+}
+
+impl Labs {
+    /// Finds and reads the register of every job's folder, each file once.
+    pub fn for_jobs(jobs: &[Job]) -> Labs {
+        use std::collections::HashMap;
+        let mut by_folder: HashMap<PathBuf, Option<PathBuf>> = HashMap::new();
+        let mut read: HashMap<PathBuf, Result<std::sync::Arc<pipeline::Lab>, usize>> =
+            HashMap::new();
+        let mut labs = Labs {
+            of_job: Vec::new(),
+            broken: Vec::new(),
+            notebooks: jobs
+                .iter()
+                .map(|j| j.notebook.display().to_string())
+                .collect(),
+        };
+        for (j, job) in jobs.iter().enumerate() {
+            let Ok(folder) = pipeline::notebook_folder(&job.notebook) else {
+                labs.of_job.push(Ok(None));
+                continue;
+            };
+            let found = by_folder
+                .entry(folder.clone())
+                .or_insert_with(|| pipeline::find_lab(&folder))
+                .clone();
+            let Some(path) = found else {
+                labs.of_job.push(Ok(None));
+                continue;
+            };
+            let slot = read.entry(path.clone()).or_insert_with(|| {
+                pipeline::load_lab(&path)
+                    .map(std::sync::Arc::new)
+                    .map_err(|f| {
+                        labs.broken.push((f, j));
+                        labs.broken.len() - 1
+                    })
+            });
+            labs.of_job.push(slot.clone().map(Some));
+        }
+        labs
+    }
+
+    /// Runs job `j` with its register.
+    fn run(&self, j: usize, job: &Job, force: bool) -> Outcome {
+        match self.of_job.get(j) {
+            Some(Ok(lab)) => run_job_with(job, force, lab.as_deref()),
+            None => run_job(job, force),
+            Some(Err(b)) => {
+                let (f, first) = &self.broken[*b];
+                if *first == j {
+                    return Outcome::Failed(f.clone());
+                }
+                Outcome::Failed(Failure::Io {
+                    path: job.notebook.clone(),
+                    message: format!(
+                        "not built: the lab register {} it uses is broken (reported once, for {})",
+                        f.path().display(),
+                        self.first_notebook(*first)
+                    ),
+                })
+            }
+        }
+    }
+}
+
+impl Labs {
+    fn first_notebook(&self, j: usize) -> String {
+        self.notebooks.get(j).cloned().unwrap_or_default()
+    }
+}
+
+/// [`run_job`] with the lab register already read.
+pub fn run_job_with(job: &Job, force: bool, lab: Option<&pipeline::Lab>) -> Outcome {
     let t0 = std::time::Instant::now();
     let raw = match pipeline::read_notebook_bytes(&job.notebook) {
         Ok(r) => r,
         Err(f) => return Outcome::Failed(f),
     };
-    let key = build_key(&job.notebook, &raw);
+    let key = build_key_with(&job.notebook, &raw, lab);
     let kp = key_path(&job.output);
     if !force && up_to_date(&job.output, &kp, &key) {
         return Outcome::UpToDate {
@@ -293,7 +399,7 @@ pub fn run_job(job: &Job, force: bool) -> Outcome {
     if let Err(f) = pipeline::check_output(&job.output, &[&job.notebook]) {
         return Outcome::Failed(f);
     }
-    let pdf = match pipeline::render_file(&job.notebook) {
+    let pdf = match pipeline::render_file_with(&job.notebook, lab) {
         Ok((_, pdf)) => pdf,
         Err(f) => return Outcome::Failed(f),
     };
@@ -397,7 +503,16 @@ pub fn sweep_output_folders(jobs: &[Job]) {
 /// Monte Carlo's own parallel work.
 pub fn run_all(jobs: &[Job], force: bool, tick: &(dyn Fn(&Job, &Outcome) + Sync)) -> Vec<Outcome> {
     sweep_output_folders(jobs);
-    run_all_with(jobs, force, tick, &run_job)
+    let labs = Labs::for_jobs(jobs);
+    // Jobs are told apart by position: the same notebook may be named twice.
+    let index = |job: &Job| {
+        jobs.iter()
+            .position(|j| std::ptr::eq(j, job))
+            .unwrap_or(usize::MAX)
+    };
+    run_all_with(jobs, force, tick, &|job, force| {
+        labs.run(index(job), job, force)
+    })
 }
 
 /// A panic inside one job, as that notebook's failure.

@@ -197,7 +197,8 @@ fn read_row(rel: &str, path: &Path) -> Row {
     let Ok(text) = std::str::from_utf8(md) else {
         return error_row(rel, "the attached notebook is not UTF-8 text");
     };
-    let nb = match crate::notebook::parse(text) {
+    let lab = pipeline::lab_for(path).ok().flatten();
+    let nb = match crate::notebook::parse_with(text, lab.as_ref().map(|l| &l.register)) {
         Ok(nb) => nb,
         Err(d) => {
             let why = d.first().map(|d| d.message.clone()).unwrap_or_default();
@@ -261,7 +262,9 @@ fn read_row(rel: &str, path: &Path) -> Row {
         }
         None => {
             // A record made before summaries were attached: reduce the notebook once.
-            if let Ok(rec) = pipeline::analyse_text(Path::new(rel), text) {
+            if let Ok(rec) =
+                pipeline::analyse_with(Path::new(rel), text, lab.as_ref(), |_| Ok(Vec::new()))
+            {
                 let count = |o| rec.verdicts.iter().filter(|v| v.outcome == o).count();
                 row.pass = count(crate::judge::Outcome::Pass);
                 row.fail = count(crate::judge::Outcome::Fail);

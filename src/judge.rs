@@ -127,6 +127,19 @@ impl Default for Derating {
     }
 }
 
+impl Derating {
+    /// The lab register's policy (`defaults.derating`); a factor it leaves out keeps the
+    /// default.
+    pub fn from_register(spec: &crate::notebook::register::DeratingSpec) -> Self {
+        let d = Derating::default();
+        Derating {
+            resistor_power: spec.resistor_power.unwrap_or(d.resistor_power),
+            capacitor_voltage: spec.capacitor_voltage.unwrap_or(d.capacitor_voltage),
+            inductor_current: spec.inductor_current.unwrap_or(d.inductor_current),
+        }
+    }
+}
+
 impl Outcome {
     pub fn word(self) -> &'static str {
         match self {
@@ -562,7 +575,10 @@ pub fn citations(nb: &Notebook) -> Vec<(String, Span)> {
 
 /// Judge a reduced notebook: verdicts, safety, citations, sign-off state.
 pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnostic>> {
-    let derating = Derating::default();
+    let derating = match nb.lab.as_ref().and_then(|l| l.derating.as_ref()) {
+        Some(spec) => Derating::from_register(spec),
+        None => Derating::default(),
+    };
     let mut verdicts = Vec::new();
     let mut lots = Vec::new();
     let mut safety = Vec::new();

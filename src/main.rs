@@ -571,7 +571,12 @@ fn sign(path: &Path, req: &SignRequest) -> ExitCode {
 }
 
 fn verify(path: &Path, signers: Option<&Path>) -> ExitCode {
-    let list = match signers.map(attest::read_signers).transpose() {
+    // Without --signers, the list the lab register names, if any.
+    let list = match signers {
+        Some(p) => attest::read_signers(p).map(Some),
+        None => attest::register_signers(path),
+    };
+    let list = match list {
         Ok(l) => l,
         Err(f) => return fail(&f),
     };

@@ -4,13 +4,13 @@
 use crate::diag::{self, Diagnostic, Span};
 use crate::judge::{self, Record};
 use crate::networks;
-use crate::notebook::{self, Item};
+use crate::notebook::{self, register::Register, Item};
 use crate::render::{self, Assets, RenderError};
 use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
 /// Why one notebook did not build. Other notebooks of a batch go on.
-#[derive(Debug)]
+#[derive(Debug, Clone)]
 pub enum Failure {
     Io {
         path: PathBuf,
@@ -330,20 +330,76 @@ pub fn read_source(path: &Path) -> Result<Source, Failure> {
     }
 }
 
+/// The name of a lab register file.
+pub const LAB_FILE: &str = "lab.yaml";
+
+/// A lab register as read from disk.
+#[derive(Debug, Clone)]
+pub struct Lab {
+    /// Where it was found (in a canonical folder).
+    pub path: PathBuf,
+    /// Its bytes, for the build key.
+    pub raw: Vec<u8>,
+    pub register: Register,
+}
+
+impl Lab {
+    /// The register's folder, against which its `template` and `signers` are resolved.
+    pub fn folder(&self) -> &Path {
+        self.path.parent().unwrap_or(Path::new("/"))
+    }
+}
+
+/// The nearest `lab.yaml` in `folder` (canonical) or a folder above it, up to the root.
+pub fn find_lab(folder: &Path) -> Option<PathBuf> {
+    folder
+        .ancestors()
+        .map(|d| d.join(LAB_FILE))
+        .find(|p| std::fs::symlink_metadata(p).is_ok())
+}
+
+/// Reads and parses a lab register; a broken one is reported at its own line and column.
+pub fn load_lab(path: &Path) -> Result<Lab, Failure> {
+    let cap = notebook::register::MAX_REGISTER as u64;
+    let raw =
+        read_regular(path, cap).map_err(|r| io_fail(path, format!("the lab register {r}")))?;
+    let text = String::from_utf8(raw.clone())
+        .map_err(|_| io_fail(path, "the lab register is not UTF-8 text"))?;
+    let register =
+        notebook::register::parse_register(&text).map_err(|diags| Failure::Notebook {
+            path: path.to_path_buf(),
+            source: text.clone(),
+            diags,
+            tables: Vec::new(),
+        })?;
+    Ok(Lab {
+        path: path.to_path_buf(),
+        raw,
+        register,
+    })
+}
+
+/// The lab register that applies to the notebook (or PDF) at `path`, if there is one.
+pub fn lab_for(path: &Path) -> Result<Option<Lab>, Failure> {
+    let folder = notebook_folder(path).map_err(|e| io_fail(path, e))?;
+    find_lab(&folder).map(|p| load_lab(&p)).transpose()
+}
+
 /// Parse, reduce and judge one notebook's text. Pure: no file system access (a block that
 /// reads its table from a file is reported: use [`analyse_file`] or [`analyse_with`]).
 pub fn analyse_text(path: &Path, text: &str) -> Result<Record, Failure> {
-    analyse_with(path, text, |_| Ok(Vec::new()))
+    analyse_with(path, text, None, |_| Ok(Vec::new()))
 }
 
 /// Table files as [`notebook::read_tables`] takes them: (path as written, name, bytes).
 pub type TableBytes = Vec<(String, String, Vec<u8>)>;
 
-/// Parse, read the table files `tables` hands over for the parsed notebook, reduce and judge.
-/// Pure apart from what `tables` does.
+/// Parse with the lab register `lab`, read the table files `tables` hands over for the parsed
+/// notebook, reduce and judge. Pure apart from what `tables` does.
 pub fn analyse_with(
     path: &Path,
     text: &str,
+    lab: Option<&Lab>,
     tables: impl FnOnce(&notebook::Notebook) -> Result<TableBytes, Vec<Diagnostic>>,
 ) -> Result<Record, Failure> {
     let fail = |nb: &notebook::Notebook, diags| Failure::Notebook {
@@ -352,11 +408,13 @@ pub fn analyse_with(
         diags,
         tables: nb.extras(),
     };
-    let nb = notebook::parse(text).map_err(|diags| Failure::Notebook {
-        path: path.to_path_buf(),
-        source: text.to_string(),
-        diags,
-        tables: Vec::new(),
+    let nb = notebook::parse_with(text, lab.map(|l| &l.register)).map_err(|diags| {
+        Failure::Notebook {
+            path: path.to_path_buf(),
+            source: text.to_string(),
+            diags,
+            tables: Vec::new(),
+        }
     })?;
     let files = tables(&nb).map_err(|d| fail(&nb, d))?;
     let (nb, d) = notebook::read_tables(nb, files);
@@ -377,8 +435,10 @@ pub fn analyse_with(
 /// [`analyse_with`] for a notebook on disk: each table file it names is read through
 /// [`read_named`] (inside the notebook's folder, links included, at most
 /// [`notebook::TABLE_MAX_BYTES`]), as images are.
-pub fn analyse_file(src: &Source) -> Result<Record, Failure> {
-    analyse_with(&src.path, &src.text, |nb| read_table_files(&src.path, nb))
+pub fn analyse_file(src: &Source, lab: Option<&Lab>) -> Result<Record, Failure> {
+    analyse_with(&src.path, &src.text, lab, |nb| {
+        read_table_files(&src.path, nb)
+    })
 }
 
 /// The bytes of every table file `nb` names, or a diagnostic at each `table:` refused.
@@ -509,6 +569,41 @@ pub fn image_refs(rec: &Record) -> Vec<(String, Span)> {
 /// Gathers what the renderer may use: images inside the notebook's folder and a user
 /// template, each read through [`read_named`] and each image checked by [`check_image`].
 pub fn gather_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
+    gather_assets_with(src, rec, None)
+}
+
+/// [`gather_assets`], and the register's default template when the notebook takes it.
+pub fn gather_assets_with(
+    src: &Source,
+    rec: &Record,
+    lab: Option<&Lab>,
+) -> Result<Assets, Failure> {
+    let mut assets = gather_notebook_assets(src, rec)?;
+    let from_register = rec.notebook.lab.as_ref().and_then(|u| u.template.as_ref());
+    if let (Some(lab), Some((tpl, span))) = (lab, from_register) {
+        assets.template = Some(register_template(lab, tpl, *span)?);
+    }
+    Ok(assets)
+}
+
+/// The register's `defaults.template`, read inside the register's folder.
+fn register_template(lab: &Lab, tpl: &str, span: Span) -> Result<String, Failure> {
+    let refuse = |why: String| {
+        let d = Diagnostic::new(span, format!("template `{tpl}` {why}"))
+            .expected("a Typst template file, relative to lab.yaml, inside its folder");
+        Failure::Notebook {
+            path: lab.path.clone(),
+            source: String::from_utf8_lossy(&lab.raw).into_owned(),
+            diags: vec![d],
+            tables: Vec::new(),
+        }
+    };
+    let bytes =
+        read_named(lab.folder(), tpl, TEMPLATE_MAX_BYTES).map_err(|r| refuse(r.to_string()))?;
+    String::from_utf8(bytes).map_err(|_| refuse("is not UTF-8 text".into()))
+}
+
+fn gather_notebook_assets(src: &Source, rec: &Record) -> Result<Assets, Failure> {
     let canon_dir = notebook_folder(&src.path).map_err(|e| io_fail(&src.path, e))?;
     let mut assets = Assets {
         source_name: src
@@ -737,7 +832,18 @@ pub fn write_atomic(out: &Path, bytes: &[u8]) -> std::io::Result<()> {
 /// too (and drop the bytes), so they accept exactly what `build` accepts.
 pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
     let src = read_source(path)?;
-    let rec = analyse_file(&src)?;
+    let lab = lab_for(path)?;
+    render_source(&src, lab.as_ref())
+}
+
+/// [`render_file`] with the lab register already found (`batch` reads each register once).
+pub fn render_file_with(path: &Path, lab: Option<&Lab>) -> Result<(Record, Vec<u8>), Failure> {
+    render_source(&read_source(path)?, lab)
+}
+
+fn render_source(src: &Source, lab: Option<&Lab>) -> Result<(Record, Vec<u8>), Failure> {
+    let path = src.path.as_path();
+    let rec = analyse_file(src, lab)?;
     let too_long = prose_limits(&rec.notebook.items);
     if !too_long.is_empty() {
         return Err(Failure::Notebook {
@@ -747,7 +853,7 @@ pub fn render_file(path: &Path) -> Result<(Record, Vec<u8>), Failure> {
             tables: Vec::new(),
         });
     }
-    let mut assets = gather_assets(&src, &rec)?;
+    let mut assets = gather_assets_with(src, &rec, lab)?;
     assets.source = src.raw.clone();
     let pdf = render::render_pdf(&rec, &assets).map_err(|e| render_failure(path, &rec, &assets, e));
     // Typst memoises layout across compilations; a batch or a watch session would otherwise

@@ -557,9 +557,26 @@ impl BlockInputs {
         Ok(bi)
     }
 
-    /// Calibration due dates.
+    /// Calibration due dates; with a lab register, entries overridden by the notebook and
+    /// register entries with no calibration current on the readings' date.
     fn due_flags(&mut self, ctx: &Context, insts: &[(&Named, &Instrument)]) {
         for (n, i) in insts {
+            if let Some(lab) = ctx.lab {
+                if lab.overrides.contains(&n.name) {
+                    self.flags.push(Flag {
+                        warn: false,
+                        span: Some(n.span),
+                        message: format!("{} is this notebook's own instrument entry, which overrides the lab register's entry of that name", n.name),
+                    });
+                }
+                if lab.asset(&n.name).is_some_and(|a| a.calibration.is_none()) {
+                    self.flags.push(Flag {
+                        warn: true,
+                        span: Some(n.span),
+                        message: format!("the lab register holds no calibration of {} made on or before the readings' date ({})", n.name, ctx.date),
+                    });
+                }
+            }
             if let Some(due) = i.due {
                 if ctx.date > due {
                     self.flags.push(Flag {
@@ -1273,6 +1290,7 @@ pub(crate) mod testutil {
                 date: self.date,
                 instruments: &self.instruments,
                 parts: &self.parts,
+                lab: None,
             }
         }
     }

@@ -167,6 +167,8 @@ pub struct Context<'a> {
     pub date: NaiveDate,
     pub instruments: &'a BTreeMap<String, Instrument>,
     pub parts: &'a BTreeMap<String, Part>,
+    /// What the notebook takes from its lab register.
+    pub lab: Option<&'a crate::notebook::register::LabUse>,
 }
 
 impl<'a> Context<'a> {
@@ -177,6 +179,7 @@ impl<'a> Context<'a> {
             date: nb.front.date,
             instruments: &nb.front.instruments,
             parts: &nb.front.parts,
+            lab: nb.lab.as_ref(),
         }
     }
 }

@@ -32,7 +32,7 @@ const FRONT_KEYS: &[&str] = &[
     "template",
     "signoff",
 ];
-const INSTRUMENT_KEYS: &[&str] = &[
+pub(super) const INSTRUMENT_KEYS: &[&str] = &[
     "what",
     "accuracy",
     "resolution",
@@ -58,7 +58,15 @@ const PART_KEYS: &[&str] = &[
     "max_esr",
 ];
 const MEASURED_KEYS: &[&str] = &["value", "by"];
-const SIGNOFF_KEYS: &[&str] = &["by", "on", "digest", "key", "signature", "accepted"];
+const SIGNOFF_KEYS: &[&str] = &[
+    "by",
+    "on",
+    "digest",
+    "key",
+    "signature",
+    "accepted",
+    "register",
+];
 const SIGNOFF_REQUIRED: &[&str] = &["by", "on", "digest"];
 
 /// `YYYY-MM-DD` exactly (ISO 8601 calendar date, extended format).
@@ -177,6 +185,8 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
 pub(super) struct Defined {
     pub(super) instruments: BTreeSet<String>,
     pub(super) parts: BTreeSet<String>,
+    /// The top-level keys the front matter has.
+    pub(super) present: BTreeSet<String>,
     /// False when the front matter could not be read: names are then not checked, so one
     /// YAML slip does not bring an "is not defined" for every block.
     pub(super) known: bool,
@@ -202,7 +212,12 @@ fn names_under(v: Option<&Value>) -> BTreeSet<String> {
     }
 }
 
-pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMatter, Defined) {
+/// The front matter; `register` holds the lab register's instruments, which may be named too.
+pub(super) fn front_matter<T>(
+    y: &YamlLocator,
+    d: &mut Vec<Diagnostic>,
+    register: Option<&BTreeMap<String, T>>,
+) -> (FrontMatter, Defined) {
     let mut fm = FrontMatter {
         record: String::new(),
         title: String::new(),
@@ -228,6 +243,7 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
                 Defined {
                     instruments: BTreeSet::new(),
                     parts: BTreeSet::new(),
+                    present: BTreeSet::new(),
                     known: false,
                 },
             );
@@ -240,9 +256,12 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
     };
     let entries = ex.entries(&[], &root, Some(FRONT_KEYS));
     let get = |k: &str| entries.iter().find(|(n, _)| n == k).map(|(_, v)| *v);
+    let mut instruments = names_under(get("instruments"));
+    instruments.extend(register.into_iter().flat_map(|r| r.keys().cloned()));
     let defined = Defined {
-        instruments: names_under(get("instruments")),
+        instruments,
         parts: names_under(get("parts")),
+        present: entries.iter().map(|(k, _)| k.clone()).collect(),
         known: true,
     };
     let mut seen = BTreeSet::new();
@@ -263,17 +282,13 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
             "lot" => fm.lot = ex.text(&path, v),
             "environment" => fm.environment = ex.text(&path, v),
             "coverage" => {
-                if let Some(p) = coverage(&mut ex, v) {
+                if let Some(p) = coverage(&mut ex, &path, v) {
                     fm.coverage = p;
                 }
             }
             "decision" => {
-                if let Some(s) = ex.text(&path, v) {
-                    let rules = [("simple", Decision::Simple), ("guarded", Decision::Guarded)];
-                    match one_of(s.trim(), &rules, "decision rule", y.value_span(&path)) {
-                        Ok(rule) => fm.decision = rule,
-                        Err(dg) => ex.err(dg),
-                    }
+                if let Some(rule) = decision(&mut ex, &path, v) {
+                    fm.decision = rule;
                 }
             }
             "template" => {
@@ -284,7 +299,7 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
             "signoff" => fm.signoff = signoff(&mut ex, v),
             "instruments" => {
                 for (name, iv) in ex.entries(&path, v, None) {
-                    if let Some(i) = instrument(&mut ex, &name, iv) {
+                    if let Some(i) = instrument(&mut ex, &name, iv, INSTRUMENT_KEYS) {
                         fm.instruments.insert(name, i);
                     }
                 }
@@ -311,16 +326,16 @@ pub(super) fn front_matter(y: &YamlLocator, d: &mut Vec<Diagnostic>) -> (FrontMa
     (fm, defined)
 }
 
-fn coverage(ex: &mut ValueReader, v: &Value) -> Option<f64> {
-    let path = ["coverage"];
-    let span = ex.y.value_span(&path);
+/// A coverage probability at `path`: a number in (0, 1) or a percentage.
+pub(super) fn coverage(ex: &mut ValueReader, path: &[&str], v: &Value) -> Option<f64> {
+    let span = ex.y.value_span(path);
     let p = match v {
         Value::Number(n) => n.as_f64(),
         Value::String(s) => match parse_quantity(s) {
             Ok(q) if q.unit == Unit::One || q.unit == Unit::Percent => Some(q.value),
             Ok(_) => None,
             Err(e) => {
-                ex.quantity_error(&path, s, e);
+                ex.quantity_error(path, s, e);
                 return None;
             }
         },
@@ -340,11 +355,29 @@ fn coverage(ex: &mut ValueReader, v: &Value) -> Option<f64> {
     }
 }
 
+/// A decision rule at `path`: `simple` or `guarded`.
+pub(super) fn decision(ex: &mut ValueReader, path: &[&str], v: &Value) -> Option<Decision> {
+    let s = ex.text(path, v)?;
+    let rules = [("simple", Decision::Simple), ("guarded", Decision::Guarded)];
+    one_of(s.trim(), &rules, "decision rule", ex.y.value_span(path))
+        .map_err(|dg| ex.err(dg))
+        .ok()
+}
+
 fn signoff(ex: &mut ValueReader, v: &Value) -> Option<Signoff> {
     let span = ex.y.value_span(&["signoff"]);
     let entries = ex.entries(&["signoff"], v, Some(SIGNOFF_KEYS));
     let mut vals: BTreeMap<&str, String> = BTreeMap::new();
+    let mut register = Vec::new();
     for (k, val) in &entries {
+        if k == "register" {
+            for (id, dv) in ex.entries(&["signoff", "register"], val, None) {
+                if let Some(t) = ex.nonempty_text(&["signoff", "register", id.as_str()], dv) {
+                    register.push((id, t.trim().to_string()));
+                }
+            }
+            continue;
+        }
         let key: &str = SIGNOFF_KEYS
             .iter()
             .find(|s| **s == k.as_str())
@@ -374,11 +407,18 @@ fn signoff(ex: &mut ValueReader, v: &Value) -> Option<Signoff> {
         key: vals.remove("key"),
         signature: vals.remove("signature"),
         accepted: vals.remove("accepted"),
+        register,
         span,
     })
 }
 
-fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument> {
+/// The instrument `name` at `instruments.<name>`; `keys` are the keys allowed in its mapping.
+pub(super) fn instrument(
+    ex: &mut ValueReader,
+    name: &str,
+    v: &Value,
+    keys: &[&str],
+) -> Option<Instrument> {
     let span = ex.y.key_span(&["instruments", name]);
     let mut ins = Instrument {
         name: name.to_string(),
@@ -394,7 +434,7 @@ fn instrument(ex: &mut ValueReader, name: &str, v: &Value) -> Option<Instrument>
         range_accuracy: Vec::new(),
         span,
     };
-    let entries = ex.entries(&["instruments", name], v, Some(INSTRUMENT_KEYS));
+    let entries = ex.entries(&["instruments", name], v, Some(keys));
     let mut by_range = Vec::new();
     let mut dist: Option<(String, Span)> = None;
     let mut k: Option<(f64, Span)> = None;

@@ -19,6 +19,7 @@ mod block;
 mod file_table;
 mod front;
 pub mod prose;
+pub mod register;
 mod table;
 mod values;
 mod words;
@@ -50,6 +51,8 @@ pub struct Notebook {
     pub items: Vec<Item>,
     /// Blocks that read their table from a file (`table:`), and the files once read.
     pub tables: Tables,
+    /// What the notebook takes from its lab register (`lab.yaml`), when it was given one.
+    pub lab: Option<register::LabUse>,
 }
 
 /// The blocks whose table comes from a file (FORMAT.md 1.1, "Readings from a file") and, once
@@ -298,6 +301,9 @@ pub struct Signoff {
     pub signature: Option<String>,
     /// The signer's reason for signing a record with warnings or a verdict other than pass.
     pub accepted: Option<String>,
+    /// The digest of each lab register entry the record relied on when signed (asset id →
+    /// `sha256:…`), so `verify` can name an entry that changed since.
+    pub register: Vec<(String, String)>,
     pub span: Span,
 }
 
@@ -581,6 +587,15 @@ fn hidden_fences(src: &str, region: Span, kind: Hidden, d: &mut Vec<Diagnostic>)
 
 /// Parses a notebook; on any problem returns every diagnostic found (all in one pass).
 pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
+    parse_with(src, None)
+}
+
+/// [`parse`] with the lab register that applies to the notebook: its asset ids may be named
+/// as instruments, and its defaults fill keys the front matter leaves out.
+pub fn parse_with(
+    src: &str,
+    register: Option<&register::Register>,
+) -> Result<Notebook, Vec<Diagnostic>> {
     let source = src.strip_prefix('\u{FEFF}').unwrap_or(src).to_string();
     if source.len() > MAX_SOURCE {
         return Err(vec![Diagnostic::new(
@@ -628,8 +643,9 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         return Err(d);
     } else {
         let y = YamlLocator::new(&source, front_span.start, front_span.end, open_span);
-        front_matter(&y, &mut d)
+        front_matter(&y, &mut d, register.map(|r| &r.instruments))
     };
+    let mut front = front;
 
     let base = close.next;
     let md = &source[base..];
@@ -701,14 +717,19 @@ pub fn parse(src: &str) -> Result<Notebook, Vec<Diagnostic>> {
         });
     }
     if !d.is_empty() {
+        if register.is_some() {
+            d.iter_mut().for_each(register::undefined_in_register);
+        }
         return Err(d);
     }
+    let lab = register.map(|r| register::resolve(&mut front, &items, r, &defined.present));
     Ok(Notebook {
         source,
         front,
         front_span,
         items,
         tables,
+        lab,
     })
 }
 

@@ -154,6 +154,40 @@ fn instrument_json(name: &str, i: &crate::notebook::Instrument, date: chrono::Na
     })
 }
 
+/// Where an instrument's entry comes from, and the certificate of the calibration current on
+/// the readings' date when the lab register holds it.
+fn register_fields(v: &mut Value, name: &str, lab: Option<&crate::notebook::register::LabUse>) {
+    let used = lab.and_then(|l| l.asset(name));
+    let source = match (
+        used,
+        lab.is_some_and(|l| l.overrides.iter().any(|o| o == name)),
+    ) {
+        (Some(_), _) => "lab register",
+        (None, true) => "notebook, over the register",
+        (None, false) => "notebook",
+    };
+    v["source"] = json!(source);
+    v["certificate"] = json!(used
+        .and_then(|u| u.calibration.as_ref())
+        .and_then(|c| c.certificate.clone()));
+}
+
+/// The derating policy the safety checks used, and where it comes from.
+fn derating_json(record: &Record) -> Value {
+    let d = &record.derating;
+    let from_register = record
+        .notebook
+        .lab
+        .as_ref()
+        .is_some_and(|l| l.derating.is_some());
+    json!({
+        "resistor_power": print::percent(d.resistor_power),
+        "capacitor_voltage": print::percent(d.capacitor_voltage),
+        "inductor_current": print::percent(d.inductor_current),
+        "source": if from_register { "the lab register's policy (lab.yaml)" } else { "common bench practice" },
+    })
+}
+
 fn tolerance_text(t: &Tolerance, unit: Unit) -> String {
     match t {
         Tolerance::Relative(f) => format!("±{}", print::percent(*f)),
@@ -961,7 +995,11 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
             Decision::Simple => "simple acceptance: a value inside the tolerance interval passes, one outside fails (ILAC-G8, no guard band)",
             Decision::Guarded => "guarded acceptance: pass only when value ± U lies inside the tolerance interval, fail only when it lies wholly outside, otherwise inconclusive (ILAC-G8, guard band U)",
         },
-        "instruments": fm.instruments.iter().map(|(n, i)| instrument_json(n, i, date)).collect::<Vec<_>>(),
+        "instruments": fm.instruments.iter().map(|(n, i)| {
+            let mut v = instrument_json(n, i, date);
+            register_fields(&mut v, n, nb.lab.as_ref());
+            v
+        }).collect::<Vec<_>>(),
         "parts": fm.parts.iter().map(|(n, p)| part_json(n, p)).collect::<Vec<_>>(),
         "items": items,
         "cautions": cautions(record),
@@ -971,11 +1009,7 @@ pub fn generate(record: &Record, assets: &Assets) -> Result<Generated, String> {
         "sign": sign,
         "digest": record.digest,
         "source_digest": record.source_digest,
-        "derating": {
-            "resistor_power": print::percent(record.derating.resistor_power),
-            "capacitor_voltage": print::percent(record.derating.capacitor_voltage),
-            "inductor_current": print::percent(record.derating.inductor_current),
-        },
+        "derating": derating_json(record),
         "attachment": { "path": attachment, "name": attachment.trim_start_matches('/') },
         "tables": tables,
         "generator": format!("benchrec {}", env!("CARGO_PKG_VERSION")),

@@ -464,6 +464,7 @@ pub(crate) mod tests {
             front_span: s,
             items,
             tables: Tables::default(),
+            lab: None,
         };
         let c_block = NamedResult {
             name: "C".into(),

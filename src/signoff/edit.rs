@@ -11,6 +11,8 @@ pub struct Entry {
     pub key: Option<String>,
     pub signature: Option<String>,
     pub accepted: Option<String>,
+    /// Digests of the lab register entries the record relies on (asset id → `sha256:…`).
+    pub register: Vec<(String, String)>,
 }
 
 /// A YAML double-quoted scalar (JSON string syntax is valid YAML).
@@ -30,6 +32,12 @@ pub fn entry_text(e: &Entry, nl: &str) -> String {
     }
     if let Some(k) = &e.key {
         field("key", k);
+    }
+    if !e.register.is_empty() {
+        out.push_str(&format!("  register:{nl}"));
+        for (id, d) in &e.register {
+            out.push_str(&format!("    {}: {}{nl}", yaml_quote(id), yaml_quote(d)));
+        }
     }
     if let Some(sig) = &e.signature {
         out.push_str(&format!("  signature: |{nl}"));

@@ -48,9 +48,10 @@ fn canonical_front(yaml_text: &str) -> String {
 
 /// The canonical form hashed by [`digest`]: front matter (less `signoff`) and every readings
 /// block, in order. Prose is left out, so editing the narrative does not void a sign-off.
-/// A notebook whose blocks read table files (`table:`) gets one more section, the SHA-256 of
-/// each file's bytes in block order; without `table:` the form is what it always was, so
-/// earlier records keep their digest.
+/// Two sections are appended only when used, so earlier records keep their digest: a notebook
+/// whose blocks read table files (`table:`) gets the SHA-256 of each file's bytes in block
+/// order; one that relies on its lab register gets each register entry it uses and the
+/// register defaults it takes.
 pub fn canonical_form(nb: &Notebook) -> String {
     let front = nb
         .source
@@ -71,7 +72,59 @@ pub fn canonical_form(nb: &Notebook) -> String {
         out.push_str(&file.map_or("not read".into(), |f| sha256_hex(&f.bytes)));
         out.push('\n');
     }
+    for (name, text) in register_parts(nb) {
+        out.push_str(&format!("[register {name}]\n{text}\n"));
+    }
     out
+}
+
+/// The name under which the register defaults a notebook takes are digested.
+pub const REGISTER_DEFAULTS: &str = "(defaults)";
+
+/// What the notebook takes from its register, as (asset id or [`REGISTER_DEFAULTS`],
+/// canonical JSON), in asset-id order, defaults last.
+fn register_parts(nb: &Notebook) -> Vec<(String, String)> {
+    let Some(lab) = &nb.lab else {
+        return Vec::new();
+    };
+    let mut out: Vec<(String, String)> = lab
+        .used
+        .iter()
+        .map(|u| (u.id.clone(), u.canonical.clone()))
+        .collect();
+    out.sort();
+    if !lab.defaults.is_empty() {
+        let json = serde_json::to_string(&lab.defaults).unwrap_or_default();
+        out.push((REGISTER_DEFAULTS.to_string(), json));
+    }
+    out
+}
+
+/// The digest of each register part the notebook uses (see [`canonical_form`]): `sign` writes
+/// them beside the digest so `verify` can name the entry that changed.
+pub fn register_digests(nb: &Notebook) -> Vec<(String, String)> {
+    register_parts(nb)
+        .into_iter()
+        .map(|(n, t)| (n, format!("{DIGEST_PREFIX}{}", sha256_hex(t.as_bytes()))))
+        .collect()
+}
+
+/// The register entries whose digest differs from the one `recorded` at signing (or that
+/// were used on one side only), by name.
+pub fn changed_entries(nb: &Notebook, recorded: &[(String, String)]) -> Vec<String> {
+    let now = register_digests(nb);
+    let mut names: Vec<String> = now
+        .iter()
+        .filter(|e| !recorded.contains(e))
+        .map(|(n, _)| n.clone())
+        .collect();
+    for (n, _) in recorded {
+        if !now.iter().any(|(m, _)| m == n) && !names.contains(n) {
+            names.push(n.clone());
+        }
+    }
+    names.sort();
+    names
 }
 
 /// `sha256:<hex>` of [`canonical_form`].
@@ -224,17 +277,19 @@ pub fn parse_time(on: &str) -> Option<chrono::NaiveDateTime> {
 /// Checks that `edited` (the notebook after [`set_signoff`]) still parses, carries exactly the
 /// entry written, and has the digest the entry names.
 pub fn check_edit(edited: &str, entry: &Entry) -> Result<(), String> {
-    check_edit_with(edited, entry, &[])
+    check_edit_with(edited, entry, &[], None)
 }
 
 /// [`check_edit`] for a notebook whose blocks read the table files `tables` (as the record
-/// built before signing read them; signing does not touch them).
+/// built before signing read them; signing does not touch them) and that is read with its lab
+/// register.
 pub fn check_edit_with(
     edited: &str,
     entry: &Entry,
     tables: &[crate::notebook::TableFile],
+    register: Option<&crate::notebook::register::Register>,
 ) -> Result<(), String> {
-    let mut nb = crate::notebook::parse(edited).map_err(|d| {
+    let mut nb = crate::notebook::parse_with(edited, register).map_err(|d| {
         format!(
             "the signed notebook would not parse ({}); nothing was written",
             d.first().map(|d| d.message.as_str()).unwrap_or("?")
@@ -250,7 +305,8 @@ pub fn check_edit_with(
         && s.digest == entry.digest
         && s.key == entry.key
         && s.signature.as_deref().map(str::trim) == entry.signature.as_deref().map(str::trim)
-        && s.accepted == entry.accepted;
+        && s.accepted == entry.accepted
+        && s.register == entry.register;
     if !same {
         return Err(
             "the signed notebook would read back a different sign-off; nothing was written".into(),
