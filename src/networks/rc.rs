@@ -844,4 +844,15 @@ mod tests {
             assert_eq!(xs, freqs, "series {name}");
         }
     }
+
+    // C without the flagged rows needs rows left to average: with every row flagged there is
+    // no C_clean, and with none flagged it would only repeat C.
+    #[test]
+    fn c_clean_only_when_some_rows_are_flagged_and_some_are_not() {
+        let all_flagged = triangle_with_meter(79.0, 1.4758);
+        assert!(warned(&all_flagged, "exceeds Vs"));
+        assert!(!all_flagged.results.iter().any(|r| r.name == "C_clean"));
+        let none = triangle_with_meter(100.0, 1.4758);
+        assert!(!none.results.iter().any(|r| r.name == "C_clean"));
+    }
 }
