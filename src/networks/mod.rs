@@ -23,6 +23,7 @@ pub mod rcloss;
 pub mod rcparallel;
 pub mod rl;
 pub mod rlc;
+pub mod model;
 pub mod rlparallel;
 pub mod z;
 
@@ -35,6 +36,7 @@ pub const NETWORKS: &[&Descriptor] = &[
     &rcloss::NETWORK,
     &rcparallel::NETWORK,
     &rlparallel::NETWORK,
+    &model::NETWORK,
 ];
 
 /// Everything about one network that the stages read: the parser (name, required columns),
