@@ -478,11 +478,13 @@ fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResul
             continue;
         };
         let span = y.value_span(&epath);
-        let raw = &y.src[span.start..span.end];
-        let start = if raw == text {
-            Some(span.start)
-        } else if raw.len() >= 2 && raw.starts_with(['"', '\'']) && raw.get(1..raw.len() - 1) == Some(text.as_str()) {
+        // The text sits verbatim at the value (plain), or one past its opening quote.
+        let at = |o: usize| y.src.get(o..o + text.len()) == Some(text.as_str());
+        let quoted = y.src[span.start..].starts_with(['"', '\'']);
+        let start = if quoted && at(span.start + 1) {
             Some(span.start + 1)
+        } else if !quoted && at(span.start) {
+            Some(span.start)
         } else {
             None
         };
