@@ -63,9 +63,17 @@ fn format_example_matches_the_rc_network() {
     for f in [500.0, 1000.0, 2000.0, 5000.0] {
         for name in ["C", "XC"] {
             let (a, b) = (&find(rc, name, Some(f)).m, &find(m, name, Some(f)).m);
-            assert!(((a.value - b.value) / a.value).abs() < 1e-12, "{name} at {f}");
+            assert!(
+                ((a.value - b.value) / a.value).abs() < 1e-12,
+                "{name} at {f}"
+            );
             assert!(a.u > 0.0);
-            assert!(((a.u - b.u) / a.u).abs() < 1e-9, "u({name}) at {f}: {} vs {}", a.u, b.u);
+            assert!(
+                ((a.u - b.u) / a.u).abs() < 1e-9,
+                "u({name}) at {f}: {} vs {}",
+                a.u,
+                b.u
+            );
             assert_eq!(a.budget.len(), b.budget.len(), "budget of {name} at {f}");
             n += 1;
         }
@@ -73,7 +81,12 @@ fn format_example_matches_the_rc_network() {
     assert_eq!(n, 8);
     let (a, b) = (&find(rc, "C", None).m, &find(m, "C", None).m);
     assert!(((a.value - b.value) / a.value).abs() < 1e-12);
-    assert!(((a.u - b.u) / a.u).abs() < 1e-9, "block u(C): {} vs {}", a.u, b.u);
+    assert!(
+        ((a.u - b.u) / a.u).abs() < 1e-9,
+        "block u(C): {} vs {}",
+        a.u,
+        b.u
+    );
     assert!(((a.expanded - b.expanded) / a.expanded).abs() < 1e-9);
     // The invented C1 comes back within U (reading rounding is far below the meter's 0.5 %).
     assert!((b.value - 68e-9).abs() <= b.expanded, "C = {}", b.value);
@@ -144,7 +157,10 @@ fn unknown_names_are_refused_where_they_stand() {
     let at = text.find("Rx*VC").unwrap();
     assert_eq!(benchrec::diag::line_col(&text, at), (l, c));
     let e = d.expected.unwrap_or_default();
-    assert!(e.contains("R1") && e.contains("hypot") && e.contains("pi"), "{e}");
+    assert!(
+        e.contains("R1") && e.contains("hypot") && e.contains("pi"),
+        "{e}"
+    );
     // An unknown function, and a unit word outside the list.
     let model = "model:\n  C: { expr: \"cosh(VR)\", unit: F }\n";
     let (d, ..) = refused(&notebook_with(&[("m", "model", model)]));

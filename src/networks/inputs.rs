@@ -1098,7 +1098,10 @@ pub fn part_input(
                 if on.is_none() && (ohm_ranges || !i.range_accuracy.is_empty()) {
                     return Err(vec![Diagnostic::new(
                         part.span,
-                        format!("no {} range of {b} holds the measured value of {name}", range_word(unit)),
+                        format!(
+                            "no {} range of {b} holds the measured value of {name}",
+                            range_word(unit)
+                        ),
                     )
                     .expected(format!("a range of {b} that holds {}", range_name(m)))
                     .found(range_name(m))]);

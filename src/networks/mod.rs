@@ -15,6 +15,7 @@ use chrono::NaiveDate;
 use inputs::Spec;
 use std::collections::BTreeMap;
 
+pub mod model;
 /// Declares each network's module and lists its descriptor in [`NETWORKS`].
 // The networks: a module each, declared plainly (tools such as cargo-mutants find files only
 // through plain `mod` lines), and one entry each in `NETWORKS`.
@@ -23,7 +24,6 @@ pub mod rcloss;
 pub mod rcparallel;
 pub mod rl;
 pub mod rlc;
-pub mod model;
 pub mod rlparallel;
 pub mod z;
 

@@ -318,7 +318,12 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
             k => file_key(cx, &mut ex, k, val, &mut h.file),
         }
     }
-    model_matches_network(&mut ex, &h, entries.iter().any(|(k, _)| k == "model"), open_span);
+    model_matches_network(
+        &mut ex,
+        &h,
+        entries.iter().any(|(k, _)| k == "model"),
+        open_span,
+    );
     if h.file.table.is_none() {
         for (k, at) in &h.file.given {
             ex.err(
@@ -408,7 +413,9 @@ fn file_key(cx: &BlockCtx, ex: &mut ValueReader, key: &str, val: &Value, f: &mut
 
 /// `model` goes with `network: model` and with no other network.
 fn model_matches_network(ex: &mut ValueReader, h: &Header, given: bool, open_span: Span) {
-    let is_model = h.network.is_some_and(|n| n.0.name() == model::NETWORK.spec.network);
+    let is_model = h
+        .network
+        .is_some_and(|n| n.0.name() == model::NETWORK.spec.network);
     if given && !is_model && h.network.is_some() {
         ex.err(
             Diagnostic::new(
@@ -416,7 +423,10 @@ fn model_matches_network(ex: &mut ValueReader, h: &Header, given: bool, open_spa
                 "`model` applies only to a block with `network: model`",
             )
             .expected("`network: model` beside it, or no `model`")
-            .found(format!("`model` in a {} block", h.network.map_or("", |n| n.0.name()))),
+            .found(format!(
+                "`model` in a {} block",
+                h.network.map_or("", |n| n.0.name())
+            )),
         );
     } else if is_model && !given {
         ex.err(
@@ -445,8 +455,9 @@ fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResul
     }
     if entries.is_empty() {
         ex.err(
-            Diagnostic::new(y.value_span(&["model"]), "`model` names no result")
-                .expected("result name → `{expr, unit}`, e.g. `XC: { expr: \"VC * R1 / VR\", unit: ohm }`"),
+            Diagnostic::new(y.value_span(&["model"]), "`model` names no result").expected(
+                "result name → `{expr, unit}`, e.g. `XC: { expr: \"VC * R1 / VR\", unit: ohm }`",
+            ),
         );
     }
     for (name, v) in &entries {
@@ -467,8 +478,11 @@ fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResul
         let get = |k: &str| fields.iter().find(|(f, _)| f == k).map(|(_, v)| *v);
         let (Some(e), Some(u)) = (get("expr"), get("unit")) else {
             ex.err(
-                Diagnostic::new(name_span, format!("result `{name}` needs `expr` and `unit`"))
-                    .expected(format!("`{name}: {{ expr: \"…\", unit: F }}`")),
+                Diagnostic::new(
+                    name_span,
+                    format!("result `{name}` needs `expr` and `unit`"),
+                )
+                .expected(format!("`{name}: {{ expr: \"…\", unit: F }}`")),
             );
             continue;
         };
@@ -518,9 +532,12 @@ fn model_unit(ex: &mut ValueReader, path: &[&str; 2], v: &Value) -> Option<Unit>
     if found.is_none() {
         let words: Vec<&str> = model::UNIT_WORDS.iter().map(|(w, _)| *w).collect();
         ex.err(
-            Diagnostic::new(ex.y.value_span(&upath), "not a unit a model result may have")
-                .expected(format!("one of {}", list(&words)))
-                .found(format!("`{}`", super::words::short(&word))),
+            Diagnostic::new(
+                ex.y.value_span(&upath),
+                "not a unit a model result may have",
+            )
+            .expected(format!("one of {}", list(&words)))
+            .found(format!("`{}`", super::words::short(&word))),
         );
     }
     found.map(|(_, u)| *u)
