@@ -71,6 +71,7 @@ impl ReadingsBlock {
             note: self.note.clone(),
             source: self.source,
             columns: self.columns.clone(),
+            model: self.model.clone(),
             rows: Vec::new(),
             span: self.span,
             body: String::new(),

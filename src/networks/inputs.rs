@@ -1056,7 +1056,23 @@ fn series_resistor(
             "no resistor".to_string()
         })]);
     };
+    Ok((part_input(ctx, part, flags)?, part.name.clone()))
+}
+
+/// A part's value as one input (the series resistor's rules, for a part of any kind): its
+/// `measured` value with the accuracy of its `by` instrument, else its nominal with the
+/// tolerance as a rectangular half-width.
+pub fn part_input(
+    ctx: &Context,
+    part: &crate::notebook::Part,
+    flags: &mut Vec<Flag>,
+) -> Result<Input, Vec<Diagnostic>> {
     let name = part.name.clone();
+    let (unit, kind, quantity) = match part.kind {
+        PartKind::Resistor => (Unit::Ohm, "resistor", "resistance"),
+        PartKind::Capacitor => (Unit::F, "capacitor", "capacitance"),
+        PartKind::Inductor => (Unit::H, "inductor", "inductance"),
+    };
     let (value, u, dist) = if let Some(m) = &part.measured {
         let r = m.value;
         let by = part
@@ -1094,12 +1110,15 @@ fn series_resistor(
                         });
                     }
                 }
-                let on = range_for(i, Unit::Ohm, r);
-                let ohm_ranges = i.ranges.iter().any(|x| x.full_scale.unit == Unit::Ohm);
+                let on = range_for(i, unit, r);
+                let ohm_ranges = i.ranges.iter().any(|x| x.full_scale.unit == unit);
                 if on.is_none() && (ohm_ranges || !i.range_accuracy.is_empty()) {
                     return Err(vec![Diagnostic::new(
                         part.span,
-                        format!("no ohms range of {b} holds the measured value of {name}"),
+                        format!(
+                            "no {} range of {b} holds the measured value of {name}",
+                            range_word(unit)
+                        ),
                     )
                     .expected(format!("a range of {b} that holds {}", range_name(m)))
                     .found(range_name(m))]);
@@ -1112,7 +1131,7 @@ fn series_resistor(
                         message: format!("{b} has no accuracy or resolution: the measured value of {name} is taken as exact"),
                     });
                 }
-                let a = accuracy_limit(i, r, Unit::Ohm);
+                let a = accuracy_limit(i, r, unit);
                 let d = if acc.is_some() {
                     i.distribution
                 } else {
@@ -1139,18 +1158,28 @@ fn series_resistor(
     } else {
         return Err(vec![Diagnostic::new(
             part.span,
-            format!("resistor {name} has neither a measured nor a nominal value"),
+            format!("{kind} {name} has neither a measured nor a nominal value"),
         )
         .expected("`measured` or `nominal`")]);
     };
     if !(value.is_finite() && value > 0.0) {
         return Err(vec![Diagnostic::new(
             part.span,
-            format!("resistance of {name} must be positive"),
+            format!("{quantity} of {name} must be positive"),
         )
-        .found(format!("{value} ohm"))]);
+        .found(format!("{value} {}", unit.symbol()))]);
     }
-    Ok((Input::type_b(name.clone(), value, u, dist), name))
+    Ok(Input::type_b(name, value, u, dist))
+}
+
+/// The word for a meter's ranges of `unit` in messages.
+fn range_word(unit: Unit) -> &'static str {
+    match unit {
+        Unit::Ohm => "ohms",
+        Unit::F => "capacitance",
+        Unit::H => "inductance",
+        _ => unit.symbol(),
+    }
 }
 
 /// Builders of notebook structs for unit tests.
@@ -1266,6 +1295,7 @@ pub(crate) mod testutil {
             span: Span::new(0, 10),
             body: String::new(),
             lot: None,
+            model: Vec::new(),
         }
     }
 

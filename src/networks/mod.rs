@@ -15,6 +15,7 @@ use chrono::NaiveDate;
 use inputs::Spec;
 use std::collections::BTreeMap;
 
+pub mod model;
 /// Declares each network's module and lists its descriptor in [`NETWORKS`].
 // The networks: a module each, declared plainly (tools such as cargo-mutants find files only
 // through plain `mod` lines), and one entry each in `NETWORKS`.
@@ -35,6 +36,7 @@ pub const NETWORKS: &[&Descriptor] = &[
     &rcloss::NETWORK,
     &rcparallel::NETWORK,
     &rlparallel::NETWORK,
+    &model::NETWORK,
 ];
 
 /// Everything about one network that the stages read: the parser (name, required columns),

@@ -10,6 +10,7 @@ use super::{
     ReadingsBlock, TableSpec, MAX_HEADER,
 };
 use crate::diag::{line_col, Diagnostic, Span};
+use crate::networks::model::{self, ModelResult};
 use crate::quantity::Unit;
 use serde_yaml::Value;
 use std::collections::BTreeMap;
@@ -29,6 +30,7 @@ const HEADER_KEYS: &[&str] = &[
     "decimal",
     "columns",
     "skip",
+    "model",
 ];
 
 /// Header keys that only a block reading its table from a file (`table:`) may give.
@@ -115,6 +117,7 @@ pub(super) fn parse_block(
             span: r,
             body: src[body.start..body.end].to_string(),
             lot,
+            model: std::mem::take(&mut header.model),
         },
         spec,
     ))
@@ -228,6 +231,8 @@ struct Header {
     unit_of: Option<Named>,
     /// `table` and the keys that go with it.
     file: FileKeys,
+    /// The results of a `network: model` block.
+    model: Vec<ModelResult>,
 }
 
 /// The header keys of a table read from a file; each is None when absent or wrong.
@@ -309,9 +314,16 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
                 let q = ex.quantity(&path, val, &[Unit::V], Some(Unit::V));
                 h.source = ex.positive(&path, q, "the source level").map(|q| q.value);
             }
+            "model" => h.model = model_key(cx, &mut ex, val),
             k => file_key(cx, &mut ex, k, val, &mut h.file),
         }
     }
+    model_matches_network(
+        &mut ex,
+        &h,
+        entries.iter().any(|(k, _)| k == "model"),
+        open_span,
+    );
     if h.file.table.is_none() {
         for (k, at) in &h.file.given {
             ex.err(
@@ -397,6 +409,138 @@ fn file_key(cx: &BlockCtx, ex: &mut ValueReader, key: &str, val: &Value, f: &mut
         "columns" => f.columns = mapped_columns(cx.src, ex, val),
         _ => {}
     }
+}
+
+/// `model` goes with `network: model` and with no other network.
+fn model_matches_network(ex: &mut ValueReader, h: &Header, given: bool, open_span: Span) {
+    let is_model = h
+        .network
+        .is_some_and(|n| n.0.name() == model::NETWORK.spec.network);
+    if given && !is_model && h.network.is_some() {
+        ex.err(
+            Diagnostic::new(
+                ex.y.key_span(&["model"]),
+                "`model` applies only to a block with `network: model`",
+            )
+            .expected("`network: model` beside it, or no `model`")
+            .found(format!(
+                "`model` in a {} block",
+                h.network.map_or("", |n| n.0.name())
+            )),
+        );
+    } else if is_model && !given {
+        ex.err(
+            Diagnostic::new(open_span, "a `network: model` block needs `model`")
+                .expected("a header key `model:` with result name → `{expr, unit}`")
+                .found("no `model`"),
+        );
+    }
+}
+
+/// `model`: result name → `{expr, unit}`, each expression compiled against the column
+/// symbols and the parts (FORMAT.md 1.1).
+fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResult> {
+    let y = ex.y;
+    let parts: Vec<&str> = cx.defined.parts.iter().map(String::as_str).collect();
+    let allowed = cx.defined.known.then_some(parts.as_slice());
+    let mut out = Vec::new();
+    let entries = ex.entries(&["model"], val, None);
+    if entries.len() > model::MAX_RESULTS {
+        ex.err(
+            Diagnostic::new(y.key_span(&["model"]), "`model` has too many results")
+                .expected(format!("at most {}", model::MAX_RESULTS))
+                .found(entries.len().to_string()),
+        );
+        return out;
+    }
+    if entries.is_empty() {
+        ex.err(
+            Diagnostic::new(y.value_span(&["model"]), "`model` names no result").expected(
+                "result name → `{expr, unit}`, e.g. `XC: { expr: \"VC * R1 / VR\", unit: ohm }`",
+            ),
+        );
+    }
+    for (name, v) in &entries {
+        let path = ["model", name.as_str()];
+        let name_span = y.key_span(&path);
+        let good = name.len() <= 32
+            && name.starts_with(|c: char| c.is_ascii_alphabetic())
+            && name.chars().all(|c| c.is_ascii_alphanumeric() || c == '_');
+        if !good {
+            ex.err(
+                Diagnostic::new(name_span, "a result name is a plain symbol")
+                    .expected("letters, digits and `_`, starting with a letter, at most 32")
+                    .found(format!("`{}`", super::words::short(name))),
+            );
+            continue;
+        }
+        let fields = ex.entries(&path, v, Some(&["expr", "unit"]));
+        let get = |k: &str| fields.iter().find(|(f, _)| f == k).map(|(_, v)| *v);
+        let (Some(e), Some(u)) = (get("expr"), get("unit")) else {
+            ex.err(
+                Diagnostic::new(
+                    name_span,
+                    format!("result `{name}` needs `expr` and `unit`"),
+                )
+                .expected(format!("`{name}: {{ expr: \"…\", unit: F }}`")),
+            );
+            continue;
+        };
+        let unit = model_unit(ex, &path, u);
+        let epath = ["model", name.as_str(), "expr"];
+        let Some(text) = ex.nonempty_text(&epath, e) else {
+            continue;
+        };
+        let span = y.value_span(&epath);
+        // The text sits verbatim at the value (plain), or one past its opening quote.
+        let at = |o: usize| y.src.get(o..o + text.len()) == Some(text.as_str());
+        let quoted = y.src[span.start..].starts_with(['"', '\'']);
+        let start = if quoted && at(span.start + 1) {
+            Some(span.start + 1)
+        } else if !quoted && at(span.start) {
+            Some(span.start)
+        } else {
+            None
+        };
+        let place = model::Place { start, span };
+        match model::compile(&text, place, allowed) {
+            Ok(expr) => {
+                if let Some(unit) = unit {
+                    out.push(ModelResult {
+                        name: name.clone(),
+                        name_span,
+                        unit,
+                        expr,
+                        span,
+                    });
+                }
+            }
+            Err(dg) => ex.err(dg),
+        }
+    }
+    out
+}
+
+/// A result's unit word.
+fn model_unit(ex: &mut ValueReader, path: &[&str; 2], v: &Value) -> Option<Unit> {
+    let upath = [path[0], path[1], "unit"];
+    let word = match v {
+        Value::Number(n) => n.to_string(),
+        other => ex.text(&upath, other)?,
+    };
+    let found = model::UNIT_WORDS.iter().find(|(w, _)| *w == word.trim());
+    if found.is_none() {
+        let words: Vec<&str> = model::UNIT_WORDS.iter().map(|(w, _)| *w).collect();
+        ex.err(
+            Diagnostic::new(
+                ex.y.value_span(&upath),
+                "not a unit a model result may have",
+            )
+            .expected(format!("one of {}", list(&words)))
+            .found(format!("`{}`", super::words::short(&word))),
+        );
+    }
+    found.map(|(_, u)| *u)
 }
 
 /// Most lines `skip` may pass over before the header row.

@@ -408,6 +408,8 @@ pub struct ReadingsBlock {
     pub body: String,
     /// A lot: many units of one part, a serial per row (`unit_of` and the `unit` column).
     pub lot: Option<LotSpec>,
+    /// The results of a `network: model` block, each expression compiled (empty otherwise).
+    pub model: Vec<crate::networks::model::ModelResult>,
 }
 
 /// What makes a block a lot (FORMAT.md 1.1, "Lots").

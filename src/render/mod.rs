@@ -379,6 +379,7 @@ pub(crate) mod tests {
             span: s,
             body: String::new(),
             lot: None,
+            model: Vec::new(),
         };
         let mut items = Vec::new();
         items.push(Item::Prose {

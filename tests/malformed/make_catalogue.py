@@ -197,6 +197,24 @@ case("lot-unit-column-twice", sub("unit  f/Hz    VR/V     VC/V", "unit  f/Hz    
 
 # --- readings from a file (FORMAT.md 1.1): `table:`. A case with a table file has the file
 # beside it (same name, .csv) and the marker in the file when the error must point there.
+# --- a measurement model written in the notebook (network: model)
+def mdl(expr, unit="F"):
+    return sub("network: RC\n", 'network: model\nmodel:\n  C: { expr: "' + expr + '", unit: ' + unit + ' }\n')
+case("mdl-unknown-name", mdl("VR / (2*pi*f*⟦Rx*VC)"), "no name an expression may use", "a model naming what is neither a column, a part nor pi")
+case("mdl-unknown-function", mdl("⟦cosh(VR) * 1e-9"), "not a function an expression may call", "a model calling a function not on the list")
+case("mdl-bad-character", mdl("VR ⟦; VC"), "has no meaning in an expression", "a character no expression uses")
+case("mdl-braced-name", mdl("⟦{VR} * 1e-9"), "has no meaning in an expression", "a braced variable name")
+case("mdl-function-bare", mdl("VR + ⟦sin"), "needs its argument", "a function named without its argument")
+case("mdl-too-deep", mdl("(" * 32 + "⟦(" + "VR" + ")" * 33), "nests too deeply", "parentheses nested beyond the bound")
+case("mdl-too-long", mdl("VR" + " + VR" * 500).replace("  C: {", "⟧  C: {"), "expression is too long", "an expression beyond the length bound")
+case("mdl-unbalanced", mdl("(VR").replace("  C: {", "⟧  C: {"), "could not be read", "an unbalanced parenthesis")
+case("mdl-operator-run", mdl("VR * / VC").replace("  C: {", "⟧  C: {"), "could not be read", "two operators in a row")
+case("mdl-empty", mdl("").replace("  C: {", "⟧  C: {"), "is empty|must not be empty", "an empty expression")
+case("mdl-unit-unknown", mdl("VR / (2*pi*f*R1*VC)", "⟦nF"), "not a unit a model result may have", "a prefixed unit word")
+case("mdl-missing-model", sub("```readings\nid: blk\nnetwork: RC\n", "⟦```readings\nid: blk\nnetwork: model\n"), "needs `model`", "network model without its model")
+case("mdl-model-on-rc", sub("network: RC\n", 'network: RC\n⟦model:\n  C: { expr: "VR", unit: F }\n'), "applies only to a block with", "a model on a built-in network")
+case("mdl-column-absent", mdl("VR / (2*pi*f*R1*⟦VL)"), "not in this block's table", "a model reading a column the table lacks")
+case("mdl-division-by-zero", sub("800     0.9015", "⟦800     0.9015", mdl("VR / (2*pi*f*R1*(VC - 1.1989))")), "not a finite number", "a model dividing by zero at one reading")
 csv_cases = []  # (name, notebook text, table text, needle, note)
 TABLE_CSV = """f/Hz,VR/V,VC/V
 400,0.5279,1.4040
