@@ -569,5 +569,11 @@ mod tests {
         assert_eq!(dof_text(Some(9.5e6)), "9500000");
         assert_eq!(dof_text(Some(10.0)), "10");
         assert_eq!(dof_text(Some(9.96)), "9.9");
+        assert_eq!(hz(2.5e6), "2.5 MHz");
+        assert_eq!(hz(1000.0), "1 kHz");
+        assert_eq!(hz(159.1549), "159.155 Hz");
+        // The carry into the next prefix starts from the value's own prefix.
+        assert_eq!(notation(0.99996, Unit::V, 3), "1.00 V");
+        assert_eq!(notation(-0.0, Unit::One, 2), "0.0");
     }
 }
