@@ -575,5 +575,6 @@ mod tests {
         // The carry into the next prefix starts from the value's own prefix.
         assert_eq!(notation(0.99996, Unit::V, 3), "1.00 V");
         assert_eq!(notation(-0.0, Unit::One, 2), "0.0");
+        assert_eq!(notation(-1.5, Unit::V, 2), "-1.5 V");
     }
 }
