@@ -415,6 +415,23 @@ fn notebooks_of(paths: &[PathBuf]) -> Vec<PathBuf> {
     found.jobs.into_iter().map(|j| j.notebook).collect()
 }
 
+/// Every notebook under `paths` analysed, with its path as found; the ones that fail are
+/// reported on standard error, and the flag says whether any did.
+fn records_of(paths: &[PathBuf]) -> (Vec<(String, benchrec::judge::Record)>, bool) {
+    let mut recs = Vec::new();
+    let mut failed = false;
+    for nb in notebooks_of(paths) {
+        match analyse(&nb) {
+            Ok(r) => recs.push((nb.display().to_string(), r)),
+            Err(f) => {
+                eprint!("{}", terminal::report(&f.report()));
+                failed = true;
+            }
+        }
+    }
+    (recs, failed)
+}
+
 /// The validation `build` does, typesetting included (the PDF is made in memory and
 /// dropped), so `check` and `results` accept exactly the notebooks `build` accepts.
 fn analyse(nb: &Path) -> Result<benchrec::judge::Record, Failure> {
@@ -507,17 +524,7 @@ fn results(paths: &[PathBuf], format: Format) -> ExitCode {
     }
     // One notebook named: its JSON document, as FORMAT.md gives it. Anything else: an array.
     let single = paths.len() == 1 && !paths[0].is_dir();
-    let mut recs = Vec::new();
-    let mut failed = false;
-    for nb in notebooks_of(paths) {
-        match analyse(&nb) {
-            Ok(r) => recs.push((nb.display().to_string(), r)),
-            Err(f) => {
-                eprint!("{}", terminal::report(&f.report()));
-                failed = true;
-            }
-        }
-    }
+    let (recs, failed) = records_of(paths);
     let rows: Vec<(&str, &benchrec::judge::Record)> =
         recs.iter().map(|(p, r)| (p.as_str(), r)).collect();
     match format {
@@ -655,17 +662,7 @@ fn trend(dir: &Path, part: &str, result: Option<&str>, output: Option<&Path>) ->
         );
         return ExitCode::from(1);
     }
-    let mut recs = Vec::new();
-    let mut failed = false;
-    for nb in notebooks_of(&[dir.to_path_buf()]) {
-        match analyse(&nb) {
-            Ok(r) => recs.push((nb.display().to_string(), r)),
-            Err(f) => {
-                eprint!("{}", terminal::report(&f.report()));
-                failed = true;
-            }
-        }
-    }
+    let (recs, failed) = records_of(&[dir.to_path_buf()]);
     let t = benchrec::trend::gather(part, result, &recs);
     if t.points.is_empty() {
         eprintln!(

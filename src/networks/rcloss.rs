@@ -29,7 +29,7 @@ pub const METHOD: Method = Method {
         resistor: true,
     },
     positive: &[
-        ("Vs", AMPLITUDE),
+        ("Vs", triangle::AMPLITUDE),
         (
             "VR",
             "with no voltage across R no current flows and C cannot be found",
@@ -56,7 +56,6 @@ pub const METHOD: Method = Method {
     agree: &["C"],
     row: row_value,
 };
-const AMPLITUDE: &str = "an amplitude is never zero or negative here";
 
 pub const NETWORK: Descriptor = Descriptor {
     spec: METHOD.spec,

@@ -30,7 +30,7 @@ pub const METHOD: Method = Method {
             "V",
             "with no voltage across the pair no branch current flows",
         ),
-        ("I", AMPLITUDE),
+        ("I", triangle::AMPLITUDE),
         ("IR", "a zero resistor current would mean an infinite R"),
         ("IC", "a zero capacitor current would mean no capacitance"),
     ],
@@ -50,7 +50,6 @@ pub const METHOD: Method = Method {
     agree: &["C"],
     row: row_value,
 };
-const AMPLITUDE: &str = "an amplitude is never zero or negative here";
 
 pub const NETWORK: Descriptor = Descriptor {
     spec: METHOD.spec,

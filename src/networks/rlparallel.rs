@@ -29,7 +29,7 @@ pub const METHOD: Method = Method {
             "V",
             "with no voltage across the pair no branch current flows",
         ),
-        ("I", AMPLITUDE),
+        ("I", triangle::AMPLITUDE),
         ("IR", "a zero resistor current would mean an infinite R"),
         ("IL", "a zero coil current would mean an open coil"),
     ],
@@ -49,7 +49,6 @@ pub const METHOD: Method = Method {
     agree: &["L"],
     row: row_value,
 };
-const AMPLITUDE: &str = "an amplitude is never zero or negative here";
 
 pub const NETWORK: Descriptor = Descriptor {
     spec: METHOD.spec,

@@ -56,6 +56,9 @@ pub struct Method {
     pub row: fn(&BlockInputs, &[f64], usize, &str) -> f64,
 }
 
+/// Why a meter magnitude must be above zero, for the networks' `positive` lists.
+pub const AMPLITUDE: &str = "an amplitude is never zero or negative here";
+
 /// Row output `name` from a row's values `y`, laid out in the order of `m.outputs`.
 pub fn pick(m: &Method, y: &[f64], name: &str) -> f64 {
     let k = m.outputs.iter().position(|o| o.0 == name);
