@@ -8,8 +8,8 @@
 //! correlation matrix (eigen-decomposition with clipped eigenvalues when it is not positive
 //! definite).
 //!
-//! Determinism: trials run in batches of [`BATCH`]; batch `h` draws from a ChaCha8 stream
-//! `h` of the caller's seed, so the numbers do not depend on the number of threads. Batches run
+//! Determinism: trials run in batches of [`BATCH`]; batch `h` draws from a xoshiro256++
+//! generator seeded from ChaCha8 stream `h` of the caller's seed, so the numbers do not depend on the number of threads. Batches run
 //! in parallel (rayon) in groups of fixed size and are merged in order.
 
 use crate::uncertainty::{Dist, Input, McInterval, Measured};
@@ -17,12 +17,23 @@ use nalgebra::DMatrix;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal, StudentT};
+use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 
 /// Trials per batch (JCGM 101 §7.9.4 b): M = max(100/(1 − p), 10⁴) for p ≤ 0.99).
 pub const BATCH: usize = 10_000;
-/// Batches computed at once in the adaptive procedure (a fixed number, for determinism).
-const GROUP: usize = 8;
+/// Batches computed at once in the adaptive procedure. The stopping test runs batch by batch
+/// in order, so the result does not depend on this number; it only bounds the batches drawn
+/// past the stopping point.
+const GROUP: usize = 4;
+
+/// A measurement model evaluated in place: `eval(x, y)` writes its `outputs` values into `y`
+/// (no allocation per trial). A trial with a non-finite output is dropped.
+#[derive(Clone, Copy)]
+pub struct InPlace<'a> {
+    pub outputs: usize,
+    pub eval: &'a (dyn Fn(&[f64], &mut [f64]) + Sync),
+}
 
 /// Tuning of the adaptive procedure.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -124,7 +135,7 @@ pub fn monte_carlo_on(
     inputs: &[Input],
     corr: &[(usize, usize, f64)],
     used: &[usize],
-    f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),
+    f: InPlace,
     p: f64,
     seed: u64,
     trials: Option<usize>,
@@ -158,91 +169,282 @@ pub fn monte_carlo_with(
     opts: McOptions,
 ) -> Vec<McInterval> {
     let sampler = Sampler::new(inputs, corr);
-    run_adaptive(&sampler, f, p, seed, trials, opts)
+    let nout = f(&sampler.start()).len();
+    let eval = |x: &[f64], y: &mut [f64]| {
+        let v = f(x);
+        if v.len() == y.len() {
+            y.copy_from_slice(&v);
+        } else {
+            y.fill(f64::NAN);
+        }
+    };
+    let model = InPlace {
+        outputs: nout,
+        eval: &eval,
+    };
+    run_adaptive(&sampler, model, p, seed, trials, opts)
 }
 
 /// The trials of [`monte_carlo_with`]: `trials` fixed, or batches until §7.9.4 says stable.
-/// The batches are kept as drawn and summarised together by [`summarise_parts`], so no copy
-/// of all values is made at the end.
+/// Each batch is summarised where it is drawn, and only its tails are kept (the values beyond
+/// its hint); the pooled interval ends are selected among them. Should the pooled ends fall
+/// outside what the tails hold, the same batches run again keeping every value.
 fn run_adaptive(
     sampler: &Sampler,
-    f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),
+    f: InPlace,
     p: f64,
     seed: u64,
     trials: Option<usize>,
     opts: McOptions,
 ) -> Vec<McInterval> {
+    let plan = |p| Plan {
+        p,
+        seed,
+        trials,
+        opts,
+    };
     let p = if p.is_finite() {
         p.clamp(0.5, 0.9999)
     } else {
         0.95
     };
-    let nout = f(&sampler.start()).len();
-    if nout == 0 {
+    if f.outputs == 0 {
         return Vec::new();
     }
-    let run = |h: usize, m: usize| run_batch(sampler, f, nout, seed, h, m);
-    // batches[h][o]: the values of output o in batch h.
-    let mut all: Vec<Vec<Vec<f64>>> = Vec::new();
-    let keep = |all: &mut Vec<Vec<Vec<f64>>>, b: Vec<Vec<f64>>| all.push(b);
-    let mut stats: Vec<Vec<[f64; 4]>> = Vec::new(); // per batch, per output (adaptive runs)
-    let drawn = match trials {
-        Some(n) => {
-            let n = n.max(2);
-            let nb = n.div_ceil(BATCH);
-            for h0 in (0..nb).step_by(GROUP) {
-                let group: Vec<Vec<Vec<f64>>> = (h0..(h0 + GROUP).min(nb))
-                    .into_par_iter()
-                    .map(|h| run(h, if h + 1 == nb { n - h * BATCH } else { BATCH }))
-                    .collect();
-                for b in group {
-                    keep(&mut all, b);
-                }
-            }
-            n
-        }
-        None => {
-            let max_batches = opts.max_trials.div_ceil(BATCH).max(2);
-            'outer: loop {
-                let start = stats.len();
-                let group: Vec<Vec<Vec<f64>>> = (start..start + GROUP)
-                    .into_par_iter()
-                    .map(|h| run(h, BATCH))
-                    .collect();
-                for b in group {
-                    stats.push(b.iter().map(|v| batch_summary(v, p)).collect());
-                    keep(&mut all, b);
-                    if stats.len() >= opts.min_batches.max(2) && stabilised(&stats, &opts) {
-                        break 'outer;
-                    }
-                    if stats.len() >= max_batches {
-                        break 'outer;
-                    }
-                }
-            }
-            stats.len() * BATCH
-        }
-    };
-    (0..nout)
-        .into_par_iter()
-        .map(|o| {
-            let parts: Vec<&[f64]> = all.iter().map(|b| b[o].as_slice()).collect();
-            // The batches' own interval ends bracket the pooled ones (adaptive runs).
-            let brackets = (!stats.is_empty()).then(|| {
-                let span = |q: usize| {
-                    stats
-                        .iter()
-                        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), s| {
-                            (a.min(s[o][q]), b.max(s[o][q]))
-                        })
-                };
-                [span(2), span(3)]
-            });
-            let mut s = summarise_parts(&parts, p, brackets);
+    let run = |keep_all: bool| run_batches(sampler, f, plan(p), keep_all);
+    let (stats, tails) = run(false);
+    let drawn = trials.map_or(stats.len() * BATCH, |n| n.max(2));
+    let pooled = |stats: &[Vec<BatchStat>], tails: &[Vec<Tails>], o: usize| {
+        let own: Vec<BatchStat> = stats.iter().map(|s| s[o]).collect();
+        let ends: Vec<&Tails> = tails.iter().map(|t| &t[o]).collect();
+        pool(&own, &ends, p).map(|mut s| {
             s.dropped = drawn.saturating_sub(s.trials);
             s
         })
+    };
+    let first: Vec<Option<McInterval>> = (0..f.outputs)
+        .into_par_iter()
+        .map(|o| pooled(&stats, &tails, o))
+        .collect();
+    if first.iter().all(|s| s.is_some()) {
+        return first.into_iter().flatten().collect();
+    }
+    let (stats, tails) = run(true);
+    (0..f.outputs)
+        .into_par_iter()
+        .map(|o| pooled(&stats, &tails, o).unwrap_or_default())
         .collect()
+}
+
+/// Batches in groups of [`GROUP`], in parallel, until the §7.9.4 test passes (adaptive) or
+/// `trials` are drawn: per batch and output, its summary and its tails (every value when
+/// `keep_all`).
+fn run_batches(
+    sampler: &Sampler,
+    f: InPlace,
+    plan: Plan,
+    keep_all: bool,
+) -> (Vec<Vec<BatchStat>>, Vec<Vec<Tails>>) {
+    let Plan {
+        p,
+        seed,
+        trials,
+        opts,
+    } = plan;
+    let fixed = trials.map(|n| n.max(2));
+    let batches = fixed.map(|n| n.div_ceil(BATCH));
+    let size = |h: usize| match fixed {
+        Some(n) if (h + 1) * BATCH > n => n - h * BATCH,
+        _ => BATCH,
+    };
+    let max_batches = opts.max_trials.div_ceil(BATCH).max(2);
+    let mut stats: Vec<Vec<BatchStat>> = Vec::new();
+    let mut tails: Vec<Vec<Tails>> = Vec::new();
+    loop {
+        let start = stats.len();
+        let end = batches.map_or(start + GROUP, |nb| (start + GROUP).min(nb));
+        if start >= end {
+            return (stats, tails);
+        }
+        let hints: Vec<Option<Hint>> = (0..f.outputs)
+            .map(|o| hint_of(&stats, o).filter(|_| !keep_all))
+            .collect();
+        let group: Vec<Vec<(BatchStat, Tails)>> = (start..end)
+            .into_par_iter()
+            .map(|h| {
+                let b = run_batch(sampler, f, seed, h, size(h));
+                b.iter()
+                    .zip(&hints)
+                    .map(|(v, &hn)| batch_stat(v, p, hn))
+                    .collect()
+            })
+            .collect();
+        for b in group {
+            let (st, tl): (Vec<BatchStat>, Vec<Tails>) = b.into_iter().unzip();
+            stats.push(st);
+            tails.push(tl);
+            if fixed.is_none()
+                && ((stats.len() >= opts.min_batches.max(2) && stabilised(&stats, &opts))
+                    || stats.len() >= max_batches)
+            {
+                return (stats, tails);
+            }
+        }
+    }
+}
+
+/// What a run draws: coverage probability, seed, fixed trials or adaptive, and its options.
+#[derive(Clone, Copy)]
+struct Plan {
+    p: f64,
+    seed: u64,
+    trials: Option<usize>,
+    opts: McOptions,
+}
+
+/// The values one batch keeps of one output: every value at or below `cut.low` and every
+/// value at or above `cut.high` (with no hint, the cut is ±∞ and both hold every value).
+#[derive(Debug, Clone)]
+struct Tails {
+    cut: Hint,
+    low: Vec<f64>,
+    high: Vec<f64>,
+}
+
+/// One batch's summary of one output: count, mean, sum of squared deviations from the mean
+/// and the §7.7.2 interval ends.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct BatchStat {
+    n: usize,
+    mean: f64,
+    m2: f64,
+    low: f64,
+    high: f64,
+}
+
+impl BatchStat {
+    /// y, u(y), y_low, y_high: the four quantities of the §7.9.4 test.
+    fn four(&self) -> [f64; 4] {
+        let u = if self.n > 1 {
+            (self.m2 / (self.n as f64 - 1.0)).sqrt()
+        } else {
+            0.0
+        };
+        [self.mean, u, self.low, self.high]
+    }
+}
+
+/// Where a batch's interval ends are expected to lie, from the batches before it: values at
+/// or below `low` and at or above `high` are the candidates. A hint only saves work: when it
+/// misses, the ends are selected among all values, so the result does not depend on it.
+#[derive(Debug, Clone, Copy)]
+struct Hint {
+    low: f64,
+    high: f64,
+}
+
+/// The hint for output `o`: the mean of the earlier batches' ends, four standard deviations
+/// of them outwards (none before three batches).
+fn hint_of(stats: &[Vec<BatchStat>], o: usize) -> Option<Hint> {
+    let h = stats.len();
+    if h < 3 {
+        return None;
+    }
+    let spread = |end: fn(&BatchStat) -> f64| {
+        let mean = stats.iter().map(|s| end(&s[o])).sum::<f64>() / h as f64;
+        let var = stats
+            .iter()
+            .map(|s| (end(&s[o]) - mean).powi(2))
+            .sum::<f64>()
+            / (h as f64 - 1.0);
+        (mean, 4.0 * var.sqrt())
+    };
+    let (lo, wl) = spread(|s| s.low);
+    let (hi, wh) = spread(|s| s.high);
+    let hint = Hint {
+        low: lo + wl,
+        high: hi - wh,
+    };
+    (hint.low.is_finite() && hint.high.is_finite()).then_some(hint)
+}
+
+/// Sum in four interleaved partial sums (a fixed order, so deterministic; faster than one
+/// running sum, whose every addition waits for the previous one).
+fn sum4(v: &[f64], f: impl Fn(f64) -> f64) -> f64 {
+    let mut acc = [0.0; 4];
+    let chunks = v.chunks_exact(4);
+    let rest = chunks.remainder();
+    for c in chunks {
+        for k in 0..4 {
+            acc[k] += f(c[k]);
+        }
+    }
+    let tail: f64 = rest.iter().map(|&x| f(x)).sum();
+    (acc[0] + acc[1]) + (acc[2] + acc[3]) + tail
+}
+
+/// The summary of one batch: mean and squared deviations, and the interval ends selected
+/// among the candidates of `hint` (or among all values when there is none or it misses); and
+/// the batch's tails beyond the hint.
+fn batch_stat(v: &[f64], p: f64, hint: Option<Hint>) -> (BatchStat, Tails) {
+    let m = v.len();
+    let cut = hint.unwrap_or(Hint {
+        low: f64::INFINITY,
+        high: f64::NEG_INFINITY,
+    });
+    let (mut low, mut high) = (Vec::new(), Vec::new());
+    if hint.is_some() {
+        for &x in v {
+            if x <= cut.low {
+                low.push(x);
+            }
+            if x >= cut.high {
+                high.push(x);
+            }
+        }
+    } else {
+        low = v.to_vec();
+        high = v.to_vec();
+    }
+    let tails = Tails { cut, low, high };
+    if m < 2 {
+        let x = v.first().copied().unwrap_or(0.0);
+        let stat = BatchStat {
+            n: m,
+            mean: x,
+            m2: 0.0,
+            low: x,
+            high: x,
+        };
+        return (stat, tails);
+    }
+    let mean = sum4(v, |x| x) / m as f64;
+    let m2 = sum4(v, |x| (x - mean) * (x - mean));
+    let (lo_i, hi_i) = interval_ranks(m, p);
+    // `tails.low` are the |low| smallest values, `tails.high` the |high| largest.
+    let first_high = m - tails.high.len();
+    let (low, high) = if lo_i < tails.low.len() && hi_i >= first_high {
+        (
+            nth(&mut tails.low.clone(), lo_i),
+            nth(&mut tails.high.clone(), hi_i - first_high),
+        )
+    } else {
+        let s = summarise(&mut v.to_vec(), p);
+        (s.low, s.high)
+    };
+    let stat = BatchStat {
+        n: m,
+        mean,
+        m2,
+        low,
+        high,
+    };
+    (stat, tails)
+}
+
+/// The `k`-th smallest value (0-based) of `v`, which must be longer than `k`.
+fn nth(v: &mut [f64], k: usize) -> f64 {
+    *v.select_nth_unstable_by(k, f64::total_cmp).1
 }
 
 /// Indices (0-based) of the order statistics §7.7.2 takes for `m` values: (low, high).
@@ -258,104 +460,78 @@ fn interval_ranks(m: usize, p: f64) -> (usize, usize) {
     (r - 1, (r + q - 1).min(m - 1))
 }
 
-/// [`summarise`] of the values of all `parts` taken in order, without gathering them: the
-/// mean and variance are summed in the same order, and each order statistic is selected among
-/// the few values inside a bracket from the batches' own quantiles (the values below it are
-/// counted). The result is exactly that of [`summarise`] on the concatenation; when a bracket
-/// misses, it falls back to that.
-fn summarise_parts(parts: &[&[f64]], p: f64, brackets: Option<[(f64, f64); 2]>) -> McInterval {
-    let m: usize = parts.iter().map(|v| v.len()).sum();
-    if parts.len() < 4 || m < 2 {
-        let mut v: Vec<f64> = parts.iter().flat_map(|v| v.iter().copied()).collect();
-        return summarise(&mut v, p);
-    }
-    let mut sum = 0.0;
-    for v in parts {
-        for x in v.iter() {
-            sum += x;
-        }
-    }
-    let mean = sum / m as f64;
-    let mut ss = 0.0;
-    for v in parts {
-        for x in v.iter() {
-            ss += (x - mean).powi(2);
-        }
-    }
-    let (lo_i, hi_i) = interval_ranks(m, p);
-    let pick = |k: usize, bracket: Option<(f64, f64)>| -> Option<f64> {
-        // Bracket: the smallest and largest of the batches' own k/m quantiles.
-        let (a, b) = bracket.unwrap_or_else(|| {
-            let frac = (k as f64 + 0.5) / m as f64;
-            let (mut a, mut b) = (f64::INFINITY, f64::NEG_INFINITY);
-            for v in parts.iter().filter(|v| v.len() >= 2) {
-                let mut w = v.to_vec();
-                let j = ((frac * w.len() as f64) as usize).min(w.len() - 1);
-                let (_, q, _) = w.select_nth_unstable_by(j, f64::total_cmp);
-                a = a.min(*q);
-                b = b.max(*q);
-            }
-            (a, b)
-        });
-        let (mut below, mut inside) = (0usize, Vec::new());
-        for v in parts {
-            for &x in v.iter() {
-                if x.total_cmp(&a).is_lt() {
-                    below += 1;
-                } else if x.total_cmp(&b).is_le() {
-                    inside.push(x);
-                }
-            }
-        }
-        let j = k.checked_sub(below).filter(|&j| j < inside.len())?;
-        let (_, q, _) = inside.select_nth_unstable_by(j, f64::total_cmp);
-        Some(*q)
-    };
-    let (bl, bh) = match brackets {
-        Some([l, h]) => (Some(l), Some(h)),
-        None => (None, None),
-    };
-    match (pick(lo_i, bl), pick(hi_i, bh)) {
-        (Some(low), Some(high)) => McInterval {
+/// The §7.6 and §7.7.2 summary of all batches together: the mean and variance pooled from
+/// the batches' own (`own`; the pairwise form of Chan, Golub and LeVeque, 1979), the interval
+/// ends selected among the batches' tails. Every value at or below the lowest of the batches'
+/// low cuts is in the tails, so the low end is exact when more values than its rank lie
+/// there (the same for the high end); `None` when they do not.
+fn pool(own: &[BatchStat], tails: &[&Tails], p: f64) -> Option<McInterval> {
+    let m: usize = own.iter().map(|s| s.n).sum();
+    if m < 2 {
+        let x = own.iter().find(|s| s.n > 0).map_or(0.0, |s| s.mean);
+        return Some(McInterval {
             trials: m,
-            dropped: 0,
-            mean,
-            u: (ss / (m as f64 - 1.0)).sqrt(),
-            low,
-            high,
-            gum_validated: false,
-        },
-        _ => {
-            let mut v: Vec<f64> = parts.iter().flat_map(|v| v.iter().copied()).collect();
-            summarise(&mut v, p)
-        }
+            mean: x,
+            low: x,
+            high: x,
+            ..McInterval::default()
+        });
     }
+    let mean = own.iter().map(|s| s.n as f64 * s.mean).sum::<f64>() / m as f64;
+    let m2: f64 = own
+        .iter()
+        .map(|s| s.m2 + s.n as f64 * (s.mean - mean).powi(2))
+        .sum();
+    let (lo_i, hi_i) = interval_ranks(m, p);
+    let t_low = tails
+        .iter()
+        .map(|t| t.cut.low)
+        .fold(f64::INFINITY, f64::min);
+    let t_high = tails
+        .iter()
+        .map(|t| t.cut.high)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut low: Vec<f64> = tails
+        .iter()
+        .flat_map(|t| t.low.iter().copied().filter(|&x| x <= t_low))
+        .collect();
+    let mut high: Vec<f64> = tails
+        .iter()
+        .flat_map(|t| t.high.iter().copied().filter(|&x| x >= t_high))
+        .collect();
+    let first_high = m - high.len();
+    if lo_i >= low.len() || hi_i < first_high {
+        return None;
+    }
+    Some(McInterval {
+        trials: m,
+        dropped: 0,
+        mean,
+        u: (m2 / (m as f64 - 1.0)).sqrt(),
+        low: nth(&mut low, lo_i),
+        high: nth(&mut high, hi_i - first_high),
+        gum_validated: false,
+    })
 }
 
 /// §7.9.4 f)–i): every output's 2·s of the batch averages of y, u, y_low, y_high ≤ δ/divisor.
-fn stabilised(stats: &[Vec<[f64; 4]>], opts: &McOptions) -> bool {
+fn stabilised(stats: &[Vec<BatchStat>], opts: &McOptions) -> bool {
     let h = stats.len() as f64;
     let nout = stats.first().map_or(0, |s| s.len());
     for o in 0..nout {
+        let four: Vec<[f64; 4]> = stats.iter().map(|s| s[o].four()).collect();
         // u(y) from all values is close to the mean of the batch u's; §7.9.4 h) uses all values.
-        let u_all = stats.iter().map(|s| s[o][1]).sum::<f64>() / h;
+        let u_all = four.iter().map(|s| s[1]).sum::<f64>() / h;
         let delta = numerical_tolerance(u_all, opts.ndig) / opts.divisor;
         for q in 0..4 {
-            let mean = stats.iter().map(|s| s[o][q]).sum::<f64>() / h;
-            let var = stats.iter().map(|s| (s[o][q] - mean).powi(2)).sum::<f64>() / (h * (h - 1.0));
+            let mean = four.iter().map(|s| s[q]).sum::<f64>() / h;
+            let var = four.iter().map(|s| (s[q] - mean).powi(2)).sum::<f64>() / (h * (h - 1.0));
             if !(2.0 * var.sqrt() <= delta) {
                 return false;
             }
         }
     }
     true
-}
-
-/// Mean, standard deviation and the probabilistically symmetric interval of one batch.
-fn batch_summary(v: &[f64], p: f64) -> [f64; 4] {
-    let mut w = v.to_vec();
-    let s = summarise(&mut w, p);
-    [s.mean, s.u, s.low, s.high]
 }
 
 /// JCGM 101 §7.6 (mean, standard deviation) and §7.7.2 (probabilistically symmetric interval:
@@ -397,28 +573,44 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
     }
 }
 
+/// The generator of batch `h`: xoshiro256++ (Blackman and Vigna 2018), seeded from stream `h`
+/// of a ChaCha8 generator keyed by `seed`, so that batches draw from unrelated sequences.
+fn batch_rng(seed: u64, h: usize) -> Xoshiro256PlusPlus {
+    let mut seeder = ChaCha8Rng::seed_from_u64(seed);
+    seeder.set_stream(h as u64);
+    Xoshiro256PlusPlus::from_rng(&mut seeder)
+}
+
+/// Trials drawn together, input by input, before the model runs on each (a size that keeps
+/// the columns in cache).
+const CHUNK: usize = 1024;
+
 /// One batch of `m` trials from stream `h`: values per output, non-finite trials dropped.
-fn run_batch(
-    s: &Sampler,
-    f: &(dyn Fn(&[f64]) -> Vec<f64> + Sync),
-    nout: usize,
-    seed: u64,
-    h: usize,
-    m: usize,
-) -> Vec<Vec<f64>> {
-    let mut rng = ChaCha8Rng::seed_from_u64(seed);
-    rng.set_stream(h as u64);
-    let mut out: Vec<Vec<f64>> = (0..nout).map(|_| Vec::with_capacity(m)).collect();
+fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize) -> Vec<Vec<f64>> {
+    let mut rng = batch_rng(seed, h);
+    let mut out: Vec<Vec<f64>> = (0..f.outputs).map(|_| Vec::with_capacity(m)).collect();
     let mut x = s.start();
-    let mut z = vec![0.0; s.group.len()];
-    for _ in 0..m {
-        s.draw(&mut rng, &mut x, &mut z);
-        let y = f(&x);
-        if y.len() == nout && y.iter().all(|v| v.is_finite()) {
-            for (o, v) in out.iter_mut().zip(y) {
-                o.push(v);
+    let mut y = vec![0.0; f.outputs];
+    let n = s.law.len();
+    let dest: Vec<usize> = (0..n).map(|i| s.at(i)).collect();
+    let mut cols = vec![0.0; n * CHUNK];
+    let mut z = vec![0.0; s.group.len() * CHUNK];
+    let mut done = 0;
+    while done < m {
+        let c = CHUNK.min(m - done);
+        s.fill(&mut rng, &mut cols, &mut z, c);
+        for t in 0..c {
+            for (i, &d) in dest.iter().enumerate() {
+                x[d] = cols[i * CHUNK + t];
+            }
+            (f.eval)(&x, &mut y);
+            if y.iter().all(|v| v.is_finite()) {
+                for (o, &v) in out.iter_mut().zip(&y) {
+                    o.push(v);
+                }
             }
         }
+        done += c;
     }
     out
 }
@@ -535,27 +727,46 @@ impl Sampler {
         }
     }
 
-    fn draw(&self, rng: &mut ChaCha8Rng, x: &mut [f64], z: &mut [f64]) {
+    /// Draws `c` trials into `cols` (input `i` at `cols[i·CHUNK..]`), input by input; `z`
+    /// holds the standard normals of the jointly drawn inputs, trial by trial.
+    fn fill(&self, rng: &mut Xoshiro256PlusPlus, cols: &mut [f64], z: &mut [f64], c: usize) {
         for (i, law) in self.law.iter().enumerate() {
             let (x0, u) = (self.x[i], self.u[i]);
-            x[self.at(i)] = match law {
-                Law::Normal => x0 + u * rng.sample::<f64, _>(StandardNormal),
-                Law::Rect => x0 + u * 3f64.sqrt() * (2.0 * rng.random::<f64>() - 1.0),
-                Law::T(t) => x0 + u * t.sample(rng),
-                Law::Joint => x0,
-            };
+            let col = &mut cols[i * CHUNK..i * CHUNK + c];
+            match law {
+                Law::Normal => {
+                    for v in col {
+                        *v = x0 + u * rng.sample::<f64, _>(StandardNormal);
+                    }
+                }
+                Law::Rect => {
+                    let a = u * 3f64.sqrt();
+                    for v in col {
+                        *v = x0 + a * (2.0 * rng.random::<f64>() - 1.0);
+                    }
+                }
+                Law::T(t) => {
+                    for v in col {
+                        *v = x0 + u * t.sample(rng);
+                    }
+                }
+                Law::Joint => {}
+            }
         }
         let g = self.group.len();
         if g == 0 {
             return;
         }
-        for zi in z.iter_mut() {
+        for zi in z[..g * c].iter_mut() {
             *zi = rng.sample(StandardNormal);
         }
-        for (i, &k) in self.group.iter().enumerate() {
-            let row = &self.factor[i * g..i * g + g];
-            let c: f64 = row.iter().zip(z.iter()).map(|(a, b)| a * b).sum();
-            x[self.at(k)] = self.x[k] + self.u[k] * c;
+        for t in 0..c {
+            let zt = &z[t * g..t * g + g];
+            for (a, &k) in self.group.iter().enumerate() {
+                let row = &self.factor[a * g..a * g + g];
+                let s: f64 = row.iter().zip(zt).map(|(p, q)| p * q).sum();
+                cols[k * CHUNK + t] = self.x[k] + self.u[k] * s;
+            }
         }
     }
 }
@@ -586,8 +797,9 @@ mod tests {
         }
     }
 
-    /// The batched summary is exactly the §7.7.2 summary of all values taken together, with
-    /// good brackets, with brackets that miss (fallback), and without brackets.
+    /// The batched summary gives exactly the §7.7.2 interval ends of all values taken
+    /// together (and the mean and u to rounding), with good brackets, with brackets that miss
+    /// (fallback), and with hints that miss; a batch's ends do not depend on its hint.
     #[test]
     fn batched_summary_equals_the_summary_of_all_values() {
         let mut rng = ChaCha8Rng::seed_from_u64(7);
@@ -601,26 +813,69 @@ mod tests {
         let parts: Vec<&[f64]> = batches.iter().map(|b| b.as_slice()).collect();
         let mut all: Vec<f64> = batches.concat();
         let want = summarise(&mut all, 0.95);
-        let ends = |q: usize| {
-            batches
-                .iter()
-                .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
-                    let s = batch_summary(v, 0.95);
-                    (a.min(s[q]), b.max(s[q]))
-                })
-        };
-        for brackets in [
+        let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b.abs().max(1e-300);
+        let hints = [
             None,
-            Some([ends(2), ends(3)]),
-            Some([(5.0, 6.0), (-6.0, -5.0)]),
-        ] {
-            let got = summarise_parts(&parts, 0.95, brackets);
+            Some(Hint {
+                low: -1.5,
+                high: 1.5,
+            }),
+            Some(Hint {
+                low: -3.0,
+                high: 3.0,
+            }),
+            Some(Hint {
+                low: 10.0,
+                high: -10.0,
+            }),
+        ];
+        for b in &batches {
+            let mut w = b.clone();
+            let one = summarise(&mut w, 0.95);
+            for h in hints {
+                let (s, _) = batch_stat(b, 0.95, h);
+                assert_eq!(
+                    (s.n, s.low, s.high),
+                    (one.trials, one.low, one.high),
+                    "{h:?}"
+                );
+                assert!(
+                    close(s.mean, one.mean) && close(s.four()[1], one.u),
+                    "{h:?}"
+                );
+            }
+        }
+        // Pooled: exact ends from the tails when the cuts hold them (every batch hinted, or
+        // some not), none when a cut leaves the pooled end out.
+        let run = |hint: &dyn Fn(usize) -> Option<Hint>| -> Option<McInterval> {
+            let (own, tails): (Vec<BatchStat>, Vec<Tails>) = batches
+                .iter()
+                .enumerate()
+                .map(|(i, b)| batch_stat(b, 0.95, hint(i)))
+                .unzip();
+            let refs: Vec<&Tails> = tails.iter().collect();
+            pool(&own, &refs, 0.95)
+        };
+        let good = |_| hints[1];
+        let mixed = |i: usize| if i < 3 { None } else { hints[1] };
+        for got in [run(&good), run(&mixed), run(&|_| None)] {
+            let got = got.expect("the tails hold the pooled ends");
             assert_eq!(
-                (got.trials, got.mean, got.u, got.low, got.high),
-                (want.trials, want.mean, want.u, want.low, want.high),
-                "{brackets:?}"
+                (got.trials, got.low, got.high),
+                (want.trials, want.low, want.high)
+            );
+            assert!(
+                close(got.mean, want.mean) && close(got.u, want.u),
+                "{got:?}"
             );
         }
+        let tight = |_| {
+            Some(Hint {
+                low: -2.5,
+                high: 2.5,
+            })
+        };
+        assert!(want.low > -2.5 && run(&tight).is_none());
     }
 
     #[test]

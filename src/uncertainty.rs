@@ -76,7 +76,7 @@ pub struct BudgetLine {
 }
 
 /// Coverage interval from a Monte Carlo run (JCGM 101).
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, Serialize)]
 pub struct McInterval {
     /// Trials kept (all outputs finite).
     pub trials: usize,

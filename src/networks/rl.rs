@@ -28,6 +28,7 @@ use crate::uncertainty::{
     Model, Propagated,
 };
 use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;
 
@@ -679,50 +680,66 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
     } = *run;
     let ng = bi.groups.len();
     let mut not_validated: Vec<String> = Vec::new();
-    for g in (0..ng).filter(|&g| tri_ok[g]) {
-        let names: Vec<&'static str> = layout
-            .iter()
-            .filter_map(|o| match o {
-                Out::Row(gg, n) if *gg == g && ["I", "Rac", "XL", "L", "Q"].contains(n) => Some(*n),
-                _ => None,
-            })
-            .collect();
-        // Lookups resolved once: the model runs for every Monte Carlo trial.
-        let (vs_of, vr_of, vl_of) = (
-            bi.voltage_of("Vs", g),
-            bi.voltage_of("VR", g),
-            bi.voltage_of("VL", g),
-        );
-        let pick: Vec<usize> = names
-            .iter()
-            .map(|n| match *n {
-                "I" => 0,
-                "Rac" => 1,
-                "XL" => 2,
-                "L" => 3,
-                _ => 4,
-            })
-            .collect();
-        let mc_model = |x: &[f64]| -> Vec<f64> {
-            let y = three_voltmeter(vs_of(x), vr_of(x), vl_of(x), bi.r(x), bi.f(g, x));
-            pick.iter().map(|&k| y[k]).collect()
-        };
-        let outs: Vec<usize> = layout
-            .iter()
-            .enumerate()
-            .filter(|(_, o)| matches!(o, Out::Row(gg, _) if *gg == g))
-            .map(|(k, _)| k)
-            .collect();
-        let used = p.inputs_of(&outs);
-        let mc = monte_carlo_on(
-            inputs,
-            &bi.corr,
-            &used,
-            &mc_model,
-            ctx.coverage,
-            crate::montecarlo::seed_of(&block.id, g as u64),
-            None,
-        );
+    // The rows are independent (one seed each): they run in parallel, in a fixed order.
+    let runs: Vec<(usize, Vec<&'static str>, Vec<McInterval>)> = (0..ng)
+        .into_par_iter()
+        .filter(|&g| tri_ok.get(g).copied().unwrap_or(false))
+        .map(|g| {
+            let names: Vec<&'static str> = layout
+                .iter()
+                .filter_map(|o| match o {
+                    Out::Row(gg, n) if *gg == g && ["I", "Rac", "XL", "L", "Q"].contains(n) => {
+                        Some(*n)
+                    }
+                    _ => None,
+                })
+                .collect();
+            // Lookups resolved once: the model runs for every Monte Carlo trial.
+            let (vs_of, vr_of, vl_of) = (
+                bi.voltage_of("Vs", g),
+                bi.voltage_of("VR", g),
+                bi.voltage_of("VL", g),
+            );
+            let pick: Vec<usize> = names
+                .iter()
+                .map(|n| match *n {
+                    "I" => 0,
+                    "Rac" => 1,
+                    "XL" => 2,
+                    "L" => 3,
+                    _ => 4,
+                })
+                .collect();
+            let eval = |x: &[f64], out: &mut [f64]| {
+                let y = three_voltmeter(vs_of(x), vr_of(x), vl_of(x), bi.r(x), bi.f(g, x));
+                for (o, &k) in out.iter_mut().zip(&pick) {
+                    *o = y[k];
+                }
+            };
+            let mc_model = crate::montecarlo::InPlace {
+                outputs: pick.len(),
+                eval: &eval,
+            };
+            let outs: Vec<usize> = layout
+                .iter()
+                .enumerate()
+                .filter(|(_, o)| matches!(o, Out::Row(gg, _) if *gg == g))
+                .map(|(k, _)| k)
+                .collect();
+            let used = p.inputs_of(&outs);
+            let mc = monte_carlo_on(
+                inputs,
+                &bi.corr,
+                &used,
+                mc_model,
+                ctx.coverage,
+                crate::montecarlo::seed_of(&block.id, g as u64),
+                None,
+            );
+            (g, names, mc)
+        })
+        .collect();
+    for (g, names, mc) in runs {
         let f = bi.groups.get(g).and_then(|gr| gr.f);
         let mut unvalidated = Vec::new();
         // Every output of a trial is kept or dropped together, so one count serves the row.
