@@ -810,7 +810,6 @@ mod tests {
                     .collect()
             })
             .collect();
-        let parts: Vec<&[f64]> = batches.iter().map(|b| b.as_slice()).collect();
         let mut all: Vec<f64> = batches.concat();
         let want = summarise(&mut all, 0.95);
         let close = |a: f64, b: f64| (a - b).abs() <= 1e-12 * b.abs().max(1e-300);
