@@ -272,11 +272,14 @@ fn run_batches(
         let group: Vec<Vec<(BatchStat, Tails)>> = (start..end)
             .into_par_iter()
             .map(|h| {
-                let b = run_batch(sampler, f, seed, h, size(h));
-                b.iter()
-                    .zip(&hints)
-                    .map(|(v, &hn)| batch_stat(v, p, hn))
-                    .collect()
+                // The batch's values live in a buffer of the thread, reused batch to batch.
+                VALUES.with_borrow_mut(|b| {
+                    run_batch(sampler, f, seed, h, size(h), b);
+                    b.iter()
+                        .zip(&hints)
+                        .map(|(v, &hn)| batch_stat(v, p, hn))
+                        .collect()
+                })
             })
             .collect();
         for b in group {
@@ -585,10 +588,20 @@ fn batch_rng(seed: u64, h: usize) -> Xoshiro256PlusPlus {
 /// the columns in cache).
 const CHUNK: usize = 1024;
 
-/// One batch of `m` trials from stream `h`: values per output, non-finite trials dropped.
-fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize) -> Vec<Vec<f64>> {
+thread_local! {
+    /// The values of the batch a thread is drawing, per output.
+    static VALUES: std::cell::RefCell<Vec<Vec<f64>>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// One batch of `m` trials from stream `h` into `out`: values per output, non-finite trials
+/// dropped.
+fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize, out: &mut Vec<Vec<f64>>) {
     let mut rng = batch_rng(seed, h);
-    let mut out: Vec<Vec<f64>> = (0..f.outputs).map(|_| Vec::with_capacity(m)).collect();
+    out.resize_with(f.outputs, Vec::new);
+    for o in out.iter_mut() {
+        o.clear();
+        o.reserve(m);
+    }
     let mut x = s.start();
     let mut y = vec![0.0; f.outputs];
     let n = s.law.len();
@@ -612,7 +625,6 @@ fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize) -> Vec<Vec<
         }
         done += c;
     }
-    out
 }
 
 enum Law {
