@@ -400,9 +400,15 @@ fn worst(
 }
 
 /// Computed safety checks from the readings: series resistor dissipation VR²/R, capacitor
-/// peak voltage √2·VC (or √2·I·XC from the measured C, else the nominal, where VC was not
-/// read), coil current.
-pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<SafetyCheck> {
+/// peak voltage √2·VC (or, where VC was not read, √2·I·XC from the C this block reduced to
+/// (`reduced_c`, e.g. the RLC fit's), else the part's measured C, else its nominal), coil
+/// current.
+pub fn safety_checks(
+    nb: &Notebook,
+    block: &ReadingsBlock,
+    d: &Derating,
+    reduced_c: Option<f64>,
+) -> Vec<SafetyCheck> {
     let parts: Vec<&Part> = block
         .parts
         .iter()
@@ -445,12 +451,16 @@ pub fn safety_checks(nb: &Notebook, block: &ReadingsBlock, d: &Derating) -> Vec<
                 push(part, "dissipation VR²/R", w, Unit::W, d.resistor_power);
             }
             PartKind::Capacitor => {
-                // The measured C where there is one, else the nominal; the check says which.
-                let c = part_value(part);
+                // The block's own C, else the part's measured C, else the nominal; the
+                // check says which.
+                let reduced = reduced_c.filter(|c| c.is_finite() && *c > 0.0);
+                let c = reduced.or_else(|| part_value(part));
                 let what = if block.col("VC").is_some() {
                     "peak voltage √2·VC".to_string()
                 } else if block.col("IC").is_some() {
                     "peak voltage √2·V".to_string()
+                } else if reduced.is_some() {
+                    "peak voltage √2·I/(2πf·C), C from this block's readings".to_string()
                 } else if part.measured.is_some() {
                     "peak voltage √2·I/(2πf·C), C measured".to_string()
                 } else {
@@ -586,14 +596,21 @@ pub fn judge(nb: Notebook, reduction: Reduction) -> Result<Record, Vec<Diagnosti
         let Item::Readings(block) = item else {
             continue;
         };
+        let res = reduction.blocks.iter().find(|b| b.id == block.id);
         if let Some(lot) = reduction.lots.iter().find(|l| l.block == block.id) {
             let (v, rec) = judge_lot(&nb, block, lot);
             verdicts.extend(v);
             lots.extend(rec);
-        } else if let Some(res) = reduction.blocks.iter().find(|b| b.id == block.id) {
+        } else if let Some(res) = res {
             verdicts.extend(verdicts_for(&nb, block, res, None));
         }
-        safety.extend(safety_checks(&nb, block, &derating));
+        let reduced_c = res.and_then(|r| r.results.iter().find(|x| x.name == "C"));
+        safety.extend(safety_checks(
+            &nb,
+            block,
+            &derating,
+            reduced_c.map(|x| x.m.value),
+        ));
     }
     let mut diags = Vec::new();
     let mut cites = BTreeMap::new();
@@ -753,7 +770,7 @@ mod tests {
         else {
             panic!("no block")
         };
-        safety_checks(&nb, block, &Derating::default())
+        safety_checks(&nb, block, &Derating::default(), None)
             .into_iter()
             .map(|c| (c.what, c.ok))
             .collect()
@@ -821,7 +838,7 @@ mod tests {
             else {
                 panic!("no block")
             };
-            let c = safety_checks(&nb, block, &Derating::default());
+            let c = safety_checks(&nb, block, &Derating::default(), None);
             let d = c
                 .iter()
                 .find(|c| c.what.starts_with("dissipation"))
@@ -842,8 +859,8 @@ mod tests {
     }
 
     /// Without a VC column the capacitor's peak voltage is √2·I·XC with I = VR/R and
-    /// XC = 1/(2πfC) (Ohm's law for a capacitor, handbook), from the measured C when there is
-    /// one, and the check says which.
+    /// XC = 1/(2πfC) (Ohm's law for a capacitor, handbook), from the block's own C (an RLC
+    /// fit's) first, else the measured C, else the nominal, and the check says which.
     #[test]
     fn capacitor_peak_voltage_without_vc_uses_the_measured_c() {
         let src = |measured: &str| {
@@ -851,9 +868,16 @@ mod tests {
                 "---\nrecord: T-2\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n  C:\n    kind: capacitor\n    nominal: 1 uF\n{measured}    rating: 10 V\n  L:\n    kind: inductor\n    nominal: 10 mH\n---\n\n```readings\nid: b\nnetwork: RLC\nparts: [R, L, C]\n---\nf/Hz Vs/V VR/V\n1000 2.0 1.0\n2000 2.0 1.5\n```\n"
             )
         };
-        for (measured, c, word) in [
-            ("", 1e-6, "C nominal"),
-            ("    measured: 0.5 uF\n", 0.5e-6, "C measured"),
+        for (measured, reduced, c, word) in [
+            ("", None, 1e-6, "C nominal"),
+            ("    measured: 0.5 uF\n", None, 0.5e-6, "C measured"),
+            (
+                "    measured: 0.5 uF\n",
+                Some(0.8e-6),
+                0.8e-6,
+                "C from this block's readings",
+            ),
+            ("", Some(f64::NAN), 1e-6, "C nominal"),
         ] {
             let nb = crate::notebook::parse(&src(measured)).expect("parses");
             let Some(Item::Readings(block)) =
@@ -861,7 +885,7 @@ mod tests {
             else {
                 panic!("no block")
             };
-            let checks = safety_checks(&nb, block, &Derating::default());
+            let checks = safety_checks(&nb, block, &Derating::default(), reduced);
             let pk = checks
                 .iter()
                 .find(|c| c.what.starts_with("peak voltage"))
@@ -895,7 +919,7 @@ mod tests {
     #[test]
     fn coil_rated_in_watts_is_checked_for_winding_dissipation() {
         let (nb, b) = parse_one("---\nrecord: T-3\ntitle: t\ndate: 2026-11-02\noperator: o\nparts:\n  R:\n    kind: resistor\n    nominal: 100 ohm\n  L:\n    kind: inductor\n    nominal: 10 mH\n    dcr: 10 ohm\n    rating: 0.5 W\n---\n\n```readings\nid: b\nnetwork: RL\nparts: [R, L]\n---\nf/Hz Vs/V VR/V VL/V\n1000 2.0 0.5 1.8\n2000 2.0 1.0 1.6\n```\n");
-        let c = safety_checks(&nb, &b, &Derating::default());
+        let c = safety_checks(&nb, &b, &Derating::default(), None);
         let w = c
             .iter()
             .find(|c| c.what.starts_with("winding dissipation"))
@@ -1001,7 +1025,7 @@ mod tests {
             else {
                 panic!("no block")
             };
-            let safety = safety_checks(&nb, block, &Derating::default());
+            let safety = safety_checks(&nb, block, &Derating::default(), None);
             let rec = Record {
                 reduction: Reduction {
                     blocks: Vec::new(),
