@@ -403,6 +403,11 @@ pub fn interval(low: f64, high: f64, unit: Unit) -> String {
     )
 }
 
+/// A count with its noun in the right number: "1 unit", "3 units".
+pub fn count(n: usize, one: &str, many: &str) -> String {
+    format!("{n} {}", if n == 1 { one } else { many })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -100,7 +100,7 @@ pub fn report(text: &str) -> String {
 
 /// `1 block`, `2 blocks`.
 pub fn count(n: usize, one: &str, many: &str) -> String {
-    format!("{n} {}", if n == 1 { one } else { many })
+    benchrec::print::count(n, one, many)
 }
 
 /// The one phrase for a path that is not there.

@@ -187,3 +187,37 @@ fn the_record_shows_one_table_of_units_and_the_histogram() {
         assert!(text.contains(needle), "{needle} missing from the record");
     }
 }
+
+/// A lot of one unit has no s, Cp or Cpk, and the record says why instead of a bare dash.
+#[test]
+fn a_lot_of_one_unit_says_why_its_capability_is_missing() {
+    let one: String = notebook()
+        .lines()
+        .filter(|l| !l.starts_with("| ") || l.starts_with("| unit") || l.contains(LOT[0].0))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("one.md");
+    std::fs::write(&nb, one).unwrap();
+    let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
+        .arg("build")
+        .arg(&nb)
+        .stdin(Stdio::null())
+        .output()
+        .expect("benchrec runs");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let bytes = std::fs::read(dir.path().join("one.pdf")).unwrap();
+    let text: String = pdf_extract::extract_text_from_mem(&bytes)
+        .unwrap_or_default()
+        .chars()
+        .filter(|c| !c.is_whitespace())
+        .collect();
+    for needle in [
+        "Lotof1unitofC1",
+        "1unit:1pass",
+        "(oneunit)",
+        "(needstwoormoreunits)",
+    ] {
+        assert!(text.contains(needle), "{needle} missing from the record");
+    }
+}

@@ -845,7 +845,7 @@ fn verdicts_json(record: &Record) -> Vec<Value> {
             "part": format!("{} (lot)", l.part),
             "nominal": print::quantity(l.nominal, l.unit),
             "interval": print::interval(l.low, l.high, l.unit),
-            "value": format!("{} units: {} pass, {} fail, {} inconclusive", l.pass + l.fail + l.inconclusive, l.pass, l.fail, l.inconclusive),
+            "value": format!("{}: {} pass, {} fail, {} inconclusive", print::count(l.pass + l.fail + l.inconclusive, "unit", "units"), l.pass, l.fail, l.inconclusive),
             "outcome": outcome_word(worst),
             "warned": warned_blocks.contains(l.block.as_str()),
         }));

@@ -94,7 +94,13 @@ fn figures(l: &LotRecord) -> Vec<Value> {
         None => out.push(json!({"label": "s", "text": "— (one unit)"})),
     }
     out.push(json!({"label": "min … max", "text": format!("{} … {}", q(s.min), q(s.max))}));
-    out.push(json!({"label": "Cp = (USL − LSL)/(6s)", "text": s.cp.map_or("—".into(), num)}));
+    // Why a capability index is missing: one unit has no s; equal values give s = 0.
+    let why = if s.n < 2 {
+        "— (needs two or more units)"
+    } else {
+        "— (s = 0: every unit gave the same value)"
+    };
+    out.push(json!({"label": "Cp = (USL − LSL)/(6s)", "text": s.cp.map_or(why.into(), num)}));
     let cpk = match (s.cpk, s.cpk_interval) {
         (Some(c), Some((lo, hi))) => format!(
             "{}, approximate {} interval [{}, {}] (Bissell 1990 normal approximation)",
@@ -104,7 +110,7 @@ fn figures(l: &LotRecord) -> Vec<Value> {
             num(hi)
         ),
         (Some(c), None) => num(c),
-        _ => "—".into(),
+        _ => why.into(),
     };
     out.push(json!({"label": "Cpk = min(USL − mean, mean − LSL)/(3s)", "text": cpk}));
     let normal = match s.normality {
@@ -238,8 +244,8 @@ pub fn lot_histogram(
     let (drawing, labels) = labels::split(&svg);
     Ok(Some(Plot {
         caption: format!(
-            "Block {block}: {symbol} of each unit, {} units in bins of equal width (Sturges), with the tolerance limits LSL and USL and the nominal.",
-            finite.len()
+            "Block {block}: {symbol} of each unit, {} in bins of equal width (Sturges), with the tolerance limits LSL and USL and the nominal.",
+            print::count(finite.len(), "unit", "units")
         ),
         svg,
         drawing,
