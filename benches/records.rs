@@ -132,9 +132,13 @@ fn main() {
         "sensor-tank.md",
         "reel-sample.md",
     ] {
-        let nb = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo").join(name);
+        let nb = Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("demo")
+            .join(name);
         let nb = nb.to_str().unwrap();
-        let times: Vec<f64> = (0..5).map(|_| run(&["build", nb, "-o", o, "--force"])).collect();
+        let times: Vec<f64> = (0..5)
+            .map(|_| run(&["build", nb, "-o", o, "--force"]))
+            .collect();
         println!(
             "demo/{name}, cold process: median {:.3} s wall over 5 runs [target ≤ 0.15 s]",
             median(times)

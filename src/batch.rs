@@ -345,18 +345,35 @@ impl Labs {
 
     /// Runs job `j` with its register.
     fn run(&self, j: usize, job: &Job, force: bool) -> Outcome {
+        match self.lab_of(j, &job.notebook, "built") {
+            Ok(Some(lab)) => run_job_with(job, force, lab.as_deref()),
+            Ok(None) => run_job(job, force),
+            Err(f) => Outcome::Failed(f),
+        }
+    }
+
+    /// The register of job `j` (`Some(None)`: it has none; `None`: not read here). A broken
+    /// register fails with its own report for the first job that uses it, and for the others
+    /// with a line saying that `notebook` was not `done` and where the report is.
+    #[allow(clippy::type_complexity)]
+    pub fn lab_of(
+        &self,
+        j: usize,
+        notebook: &Path,
+        done: &str,
+    ) -> Result<Option<Option<std::sync::Arc<pipeline::Lab>>>, Failure> {
         match self.of_job.get(j) {
-            Some(Ok(lab)) => run_job_with(job, force, lab.as_deref()),
-            None => run_job(job, force),
+            Some(Ok(lab)) => Ok(Some(lab.clone())),
+            None => Ok(None),
             Some(Err(b)) => {
                 let (f, first) = &self.broken[*b];
                 if *first == j {
-                    return Outcome::Failed(f.clone());
+                    return Err(f.clone());
                 }
-                Outcome::Failed(Failure::Io {
-                    path: job.notebook.clone(),
+                Err(Failure::Io {
+                    path: notebook.to_path_buf(),
                     message: format!(
-                        "not built: the lab register {} it uses is broken (reported once, for {})",
+                        "not {done}: the lab register {} it uses is broken (reported once, for {})",
                         f.path().display(),
                         self.first_notebook(*first)
                     ),

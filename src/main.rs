@@ -410,9 +410,24 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
 }
 
 /// Every notebook named or found under the folders named.
-fn notebooks_of(paths: &[PathBuf]) -> Vec<PathBuf> {
+/// Every notebook under `paths`, analysed one by one as the iterator is read, with each lab
+/// register read once (a broken one reported once, for the first notebook that uses it;
+/// `done` names what the others were not).
+fn analysed<'a>(
+    paths: &[PathBuf],
+    done: &'a str,
+) -> impl Iterator<Item = (PathBuf, Result<benchrec::judge::Record, Failure>)> + 'a {
     let (found, _) = batch::discover(paths, None);
-    found.jobs.into_iter().map(|j| j.notebook).collect()
+    let labs = batch::Labs::for_jobs(&found.jobs);
+    found.jobs.into_iter().enumerate().map(move |(j, job)| {
+        let nb = job.notebook;
+        let rec = match labs.lab_of(j, &nb, done) {
+            Ok(Some(lab)) => pipeline::render_file_with(&nb, lab.as_deref()).map(|(r, _)| r),
+            Ok(None) => analyse(&nb),
+            Err(f) => Err(f),
+        };
+        (nb, rec)
+    })
 }
 
 /// Every notebook under `paths` analysed, with its path as found; the ones that fail are
@@ -420,8 +435,8 @@ fn notebooks_of(paths: &[PathBuf]) -> Vec<PathBuf> {
 fn records_of(paths: &[PathBuf]) -> (Vec<(String, benchrec::judge::Record)>, bool) {
     let mut recs = Vec::new();
     let mut failed = false;
-    for nb in notebooks_of(paths) {
-        match analyse(&nb) {
+    for (nb, rec) in analysed(paths, "read") {
+        match rec {
             Ok(r) => recs.push((nb.display().to_string(), r)),
             Err(f) => {
                 eprint!("{}", terminal::report(&f.report()));
@@ -441,8 +456,8 @@ fn analyse(nb: &Path) -> Result<benchrec::judge::Record, Failure> {
 fn check(paths: &[PathBuf], verbose: bool, strict: bool) -> ExitCode {
     let mut failed = 0;
     let mut reserved = 0;
-    for nb in notebooks_of(paths) {
-        match analyse(&nb) {
+    for (nb, rec) in analysed(paths, "checked") {
+        match rec {
             Ok(rec) => {
                 let flags = rec.reduction.blocks.iter().flat_map(|b| &b.flags);
                 let warnings: Vec<_> = flags.clone().filter(|f| f.warn).collect();

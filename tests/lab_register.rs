@@ -245,6 +245,18 @@ fn a_broken_register_is_reported_once_at_its_own_line() {
         })
         .collect();
     tree(dir.path(), &broken, &nbs);
+    // `check` and `results` on the folder say it once too, and name what they did not do.
+    for (verb, done) in [("check", "not checked"), ("results", "not read")] {
+        let o = run(&[verb, s(&dir.path().join("bench"))]);
+        assert!(!o.status.success());
+        let err = stderr(&o);
+        assert_eq!(
+            err.matches("lab register is never closed").count(),
+            1,
+            "{err}"
+        );
+        assert_eq!(err.matches(done).count(), 2, "{verb}: {err}");
+    }
     let o = run(&["build", s(&dir.path().join("bench"))]);
     assert!(!o.status.success());
     // The diagnostics, without the status lines (`FAILED …`) that summarise them.
