@@ -72,6 +72,11 @@ fn start(f: &[f64], y: &[f64]) -> Result<[f64; 3], rlc::FitError> {
     Ok([t[0], t[1], -t[2]])
 }
 
+/// The weighted fit of the tank model to (f, |Z|, u) sorted by f; θ = (ln f_r, ln Q_r, ln R_D).
+pub fn fit(f: &[f64], y: &[f64], u: &[f64]) -> Result<rlc::ResonanceFit, rlc::FitError> {
+    rlc::fit_model(point, start, f, y, u)
+}
+
 /// [f0, Q, BW, L, C, R, R_D, f_r] from (f_r, Q_r, R_D); f0, Q and BW are NaN for Q_r ≤ 1.
 pub fn derived(p: &[f64]) -> Vec<f64> {
     let at = |k: usize| p.get(k).copied().unwrap_or(f64::NAN);
@@ -180,7 +185,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         return Ok(out);
     }
     rlc::read_offs(&sw, &pts.ys, &mut out);
-    match rlc::fit_model(point, start, &sw.fs, &pts.ys, &pts.u_w) {
+    match fit(&sw.fs, &pts.ys, &pts.u_w) {
         Err(e) => out.flags.push(Flag {
             warn: true,
             span: Some(block.span),
