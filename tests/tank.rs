@@ -3,8 +3,8 @@
 //! formulas of the parallel resonant circuit, scipy.optimize.curve_fit and the Python
 //! `uncertainties` package (tests/reference/tank_curve_fit.py and its .out).
 
-use benchrec::networks::{tank, BlockResult, Context, NamedResult};
-use benchrec::notebook::{parse, Item, Notebook, ReadingsBlock};
+use benchrec::networks::{tank, BlockResult, NamedResult};
+use benchrec::notebook::{parse, Notebook};
 use benchrec::uncertainty::{propagate, Dist, Input, Model};
 use num_complex::Complex64;
 use std::f64::consts::PI;
@@ -65,14 +65,12 @@ fn parsed(text: &str) -> Notebook {
     parse(text).unwrap_or_else(|d| panic!("the fixture parses: {d:?}\n{text}"))
 }
 
-fn the_block(nb: &Notebook) -> &ReadingsBlock {
-    nb.items
-        .iter()
-        .find_map(|i| match i {
-            Item::Readings(b) => Some(b),
-            Item::Prose { .. } => None,
-        })
-        .expect("a readings block")
+/// The notebook's one block reduced the way a build reduces it (`networks::reduce`: the
+/// network looked up by its name, then the non-finite fence).
+fn reduced(nb: &Notebook) -> Result<BlockResult, Vec<benchrec::diag::Diagnostic>> {
+    let mut r = benchrec::networks::reduce(nb)?;
+    assert_eq!(r.blocks.len(), 1);
+    Ok(r.blocks.remove(0))
 }
 
 fn result<'a>(b: &'a BlockResult, name: &str) -> &'a NamedResult {
@@ -113,7 +111,7 @@ fn exact_readings_reduce_back() {
     let t = TRAP;
     let text = notebook(t, &trap_rows(t, 61, 0.9, 1.12));
     let nb = parsed(&text);
-    let out = tank::reduce(&Context::new(&nb), the_block(&nb)).expect("reduces");
+    let out = reduced(&nb).expect("reduces");
     let f0 = (1.0 / (t.l * t.c) - (t.r / t.l).powi(2)).sqrt() / (2.0 * PI);
     let q = 2.0 * PI * f0 * t.l / t.r;
     let fr = 1.0 / (2.0 * PI * (t.l * t.c).sqrt());
@@ -156,14 +154,15 @@ fn exact_readings_reduce_back() {
     for f in &out.flags {
         assert!(!f.warn, "no warning on exact readings: {}", f.message);
     }
-    assert!(out
-        .flags
-        .iter()
-        .any(|f| f.message.contains("unity-power-factor frequency")));
-    assert!(out
-        .flags
-        .iter()
-        .any(|f| f.message.starts_with("the parts predict f0")));
+    for note in [
+        "tank fit: f0 is the unity-power-factor frequency",
+        "the parts predict f0",
+    ] {
+        assert!(
+            out.flags.iter().any(|f| f.message.starts_with(note)),
+            "{note}"
+        );
+    }
     let marks: Vec<&str> = out.plot.markers.iter().map(|m| m.0.as_str()).collect();
     assert_eq!(marks, ["f0", "f_low", "f_high"]);
 }
@@ -204,7 +203,7 @@ fn true_peak_and_half_power(t: Tank, fr: f64) -> (f64, f64, f64) {
 fn f0_is_where_the_impedance_is_real() {
     let t = TRAP;
     let nb = parsed(&notebook(t, &trap_rows(t, 61, 0.9, 1.12)));
-    let out = tank::reduce(&Context::new(&nb), the_block(&nb)).expect("reduces");
+    let out = reduced(&nb).expect("reduces");
     let z = t.z(result(&out, "f0").m.value);
     assert!((z.im / z.re).abs() < 1e-8, "Z(f0) = {z}");
     assert!(rel(z.re, result(&out, "R_D").m.value) < 1e-8);
@@ -221,13 +220,7 @@ fn l_and_c_are_judged() {
     let mut v: Vec<(&str, &str, String)> = rec
         .verdicts
         .iter()
-        .map(|v| {
-            (
-                v.name.as_str(),
-                v.part.as_str(),
-                format!("{:?}", v.outcome),
-            )
-        })
+        .map(|v| (v.name.as_str(), v.part.as_str(), format!("{:?}", v.outcome)))
         .collect();
     v.sort();
     assert_eq!(
@@ -241,7 +234,7 @@ fn l_and_c_are_judged() {
 fn a_sweep_without_a_peak_is_flagged() {
     let t = TRAP;
     let nb = parsed(&notebook(t, &trap_rows(t, 12, 0.5, 0.9)));
-    let out = tank::reduce(&Context::new(&nb), the_block(&nb)).expect("a flag, not an error");
+    let out = reduced(&nb).expect("a flag, not an error");
     assert!(
         out.flags
             .iter()
@@ -262,17 +255,21 @@ fn a_zero_voltage_is_an_error_at_its_cell() {
     rows[6][2] = 0.0;
     let text = notebook(t, &rows);
     let nb = parsed(&text);
-    let d = tank::reduce(&Context::new(&nb), the_block(&nb)).expect_err("refused");
+    let d = reduced(&nb).expect_err("refused");
     assert_eq!(d.len(), 2, "{d:?}");
-    assert!(d.iter().any(|x| x.message.starts_with("VT must be positive")));
-    assert!(d.iter().any(|x| x.message.starts_with("VR must be positive")));
+    assert!(d
+        .iter()
+        .any(|x| x.message.starts_with("VT must be positive")));
+    assert!(d
+        .iter()
+        .any(|x| x.message.starts_with("VR must be positive")));
     for x in &d {
         assert_eq!(&text[x.span.start..x.span.end], "0.0");
     }
 }
 
-/// tests/reference/tank_curve_fit.out: data, popt (L, C, R), pcov, chi2 and the derived
-/// results' (value, u) from the `uncertainties` package.
+/// tests/reference/tank_curve_fit.out (JSON): the data, popt (L, C, R), pcov, chi2 and the
+/// derived results' (value, u) from the `uncertainties` package.
 struct Reference {
     data: Vec<[f64; 3]>,
     popt: [f64; 3],
@@ -282,37 +279,41 @@ struct Reference {
 }
 
 fn reference() -> Reference {
-    let mut r = Reference {
-        data: Vec::new(),
-        popt: [0.0; 3],
-        pcov: [[0.0; 3]; 3],
-        chi2: 0.0,
-        derived: Vec::new(),
+    let j: serde_json::Value =
+        serde_json::from_str(include_str!("reference/tank_curve_fit.out")).expect("JSON");
+    let list = |v: &serde_json::Value| -> Vec<f64> {
+        v.as_array()
+            .expect("a list")
+            .iter()
+            .map(|x| x.as_f64().expect("a number"))
+            .collect()
     };
-    let mut rows = 0;
-    for line in include_str!("reference/tank_curve_fit.out").lines() {
-        let mut it = line.split_whitespace();
-        let key = it.next().unwrap_or("#");
-        let words: Vec<&str> = it.collect();
-        let v: Vec<f64> = words.iter().filter_map(|s| s.parse().ok()).collect();
-        match key {
-            "data" => r.data.push([v[0], v[1], v[2]]),
-            "popt" => r.popt = [v[0], v[1], v[2]],
-            "pcov" => {
-                r.pcov[rows] = [v[0], v[1], v[2]];
-                rows += 1;
-            }
-            "chi2" => r.chi2 = v[0],
-            "derived" => r.derived.push((words[0].to_string(), v[0], v[1])),
-            _ => {}
-        }
+    let three = |v: &serde_json::Value| -> [f64; 3] { list(v).try_into().expect("three") };
+    let (f, z, u) = (list(&j["f"]), list(&j["z"]), list(&j["u"]));
+    let pcov = &j["pcov"];
+    Reference {
+        data: (0..f.len()).map(|k| [f[k], z[k], u[k]]).collect(),
+        popt: three(&j["popt"]),
+        pcov: [three(&pcov[0]), three(&pcov[1]), three(&pcov[2])],
+        chi2: j["chi2"].as_f64().expect("chi2"),
+        derived: j["derived"]
+            .as_object()
+            .expect("derived")
+            .iter()
+            .map(|(name, v)| (name.clone(), list(v)[0], list(v)[1]))
+            .collect(),
     }
-    r
 }
 
 /// The fit of the reference data, and its (L, C, R) with their covariance mapped from θ by
 /// the Jacobian of (L, C, R)(e^θ), taken by central differences.
-fn our_fit(r: &Reference) -> (benchrec::networks::rlc::ResonanceFit, [f64; 3], [[f64; 3]; 3]) {
+fn our_fit(
+    r: &Reference,
+) -> (
+    benchrec::networks::rlc::ResonanceFit,
+    [f64; 3],
+    [[f64; 3]; 3],
+) {
     let f: Vec<f64> = r.data.iter().map(|d| d[0]).collect();
     let y: Vec<f64> = r.data.iter().map(|d| d[1]).collect();
     let u: Vec<f64> = r.data.iter().map(|d| d[2]).collect();
@@ -377,35 +378,36 @@ fn fit_agrees_with_scipy_curve_fit() {
 }
 
 // u(f0), u(Q), u(BW), u(R_D) by our GUM propagation (benchrec's `propagate`, numerical
-// derivatives) from our fit's covariance in θ, against the `uncertainties` package's
+// derivatives) from our fit's covariance in θ (the unscaled one: χ²/ν is below its limit here), against the `uncertainties` package's
 // first-order propagation (exact derivatives) from scipy's covariance of (L, C, R).
 #[test]
 fn derived_uncertainties_agree_with_the_uncertainties_package() {
     let r = reference();
     let (fit, _, _) = our_fit(&r);
-    let names = ["ln f_r", "ln Q_r", "ln R_D"];
-    let inputs: Vec<Input> = (0..3)
-        .map(|k| {
-            Input::type_b(
-                names[k],
-                fit.theta[k],
-                fit.cov_theta[k][k].sqrt(),
-                Dist::Normal,
-            )
-        })
-        .collect();
-    let mut corr = Vec::new();
-    for a in 0..3 {
-        for b in a + 1..3 {
-            let d = (fit.cov_theta[a][a] * fit.cov_theta[b][b]).sqrt();
-            corr.push((a, b, fit.cov_theta[a][b] / d));
+    // θ = θ̂ + chol(cov θ)·z with independent standard inputs z, so that no correlation
+    // coefficient is needed (the way the Python script builds its correlated inputs).
+    let c = fit.cov_theta;
+    let mut chol = [[0.0; 3]; 3];
+    for i in 0..3 {
+        for j in 0..=i {
+            let s: f64 = c[i][j] - (0..j).map(|k| chol[i][k] * chol[j][k]).sum::<f64>();
+            chol[i][j] = if i == j { s.sqrt() } else { s / chol[j][j] };
         }
     }
+    let inputs: Vec<Input> = ["z0", "z1", "z2"]
+        .iter()
+        .map(|n| Input::type_b(*n, 0.0, 1.0, Dist::Normal))
+        .collect();
     let model = Model {
         inputs: &inputs,
-        corr: &corr,
+        corr: &[],
     };
-    let of_logs = |t: &[f64]| tank::derived(&[t[0].exp(), t[1].exp(), t[2].exp()]);
+    let of_logs = |z: &[f64]| {
+        let t: Vec<f64> = (0..3)
+            .map(|i| fit.theta[i] + (0..3).map(|k| chol[i][k] * z[k]).sum::<f64>())
+            .collect();
+        tank::derived(&[t[0].exp(), t[1].exp(), t[2].exp()])
+    };
     let p = propagate(&model, &of_logs, 0.95).expect("propagates");
     assert_eq!(r.derived.len(), 4);
     for (name, value, u) in &r.derived {
@@ -414,7 +416,11 @@ fn derived_uncertainties_agree_with_the_uncertainties_package() {
             .position(|d| d.0 == name)
             .expect("a derived name");
         let m = &p.results[k];
-        assert!(rel(m.value, *value) < 1e-7, "{name}: {} vs {value}", m.value);
+        assert!(
+            rel(m.value, *value) < 1e-7,
+            "{name}: {} vs {value}",
+            m.value
+        );
         assert!(rel(m.u, *u) < 1e-4, "u({name}): {} vs {u}", m.u);
     }
 }

@@ -543,15 +543,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
     check_readings(block, &bi)?;
     let has_vs = bi.has("Vs");
-    let mut out = BlockResult {
-        id: block.id.clone(),
-        network: block.network,
-        rows: Vec::new(),
-        results: Vec::new(),
-        correlations: Vec::new(),
-        flags: bi.flags.clone(),
-        plot: PlotData::default(),
-    };
+    let mut out = empty_result(block, &bi);
     if !has_vs {
         out.flags.push(Flag {
             warn: false,
@@ -642,6 +634,19 @@ pub(crate) fn sweep_points(
     })
 }
 
+/// A block's result with no results yet: the inputs' flags only.
+pub(crate) fn empty_result(block: &ReadingsBlock, bi: &BlockInputs) -> BlockResult {
+    BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows: Vec::new(),
+        results: Vec::new(),
+        correlations: Vec::new(),
+        flags: bi.flags.clone(),
+        plot: PlotData::default(),
+    }
+}
+
 /// Keeps one marker per name, in a fixed order.
 pub(crate) fn keep_markers(out: &mut BlockResult) {
     let mut markers = Vec::new();
@@ -722,7 +727,10 @@ impl Sweep<'_> {
 
     /// The fitted magnitude at every point, in order of frequency.
     pub(crate) fn ys(&self, x: &[f64]) -> Vec<f64> {
-        self.order.iter().map(|&g| (self.y_of)(self, x, g)).collect()
+        self.order
+            .iter()
+            .map(|&g| (self.y_of)(self, x, g))
+            .collect()
     }
 
     /// The inputs read by the points `pts`, sorted, each once.

@@ -16,8 +16,7 @@
 
 use super::inputs::{BlockInputs, Spec};
 use super::rlc::{self, FitModel, Sweep};
-use super::{check_positive, BlockResult, Context, Descriptor, Flag, NamedResult, PlotData};
-use super::PlotKind;
+use super::{check_positive, BlockResult, Context, Descriptor, Flag, NamedResult, PlotKind};
 use crate::diag::Diagnostic;
 use crate::notebook::{PartKind, ReadingsBlock};
 use crate::print::{hz, plain, quantity};
@@ -149,15 +148,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     if !diags.is_empty() {
         return Err(diags);
     }
-    let mut out = BlockResult {
-        id: block.id.clone(),
-        network: block.network,
-        rows: Vec::new(),
-        results: Vec::new(),
-        correlations: Vec::new(),
-        flags: bi.flags.clone(),
-        plot: PlotData::default(),
-    };
+    let mut out = rlc::empty_result(block, &bi);
     let (order, fs, own) = Sweep::order(&bi);
     let sw = Sweep {
         ctx,
@@ -273,7 +264,11 @@ fn prediction(ctx: &Context, block: &ReadingsBlock) -> Option<Flag> {
         message: format!(
             "the parts predict f0 = {}{rd} ({ln} and {cn}{})",
             hz(f0),
-            if dcr.is_some() { ", R = dcr" } else { ", R taken as 0" }
+            if dcr.is_some() {
+                ", R = dcr"
+            } else {
+                ", R taken as 0"
+            }
         ),
     })
 }

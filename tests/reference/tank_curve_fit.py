@@ -10,8 +10,9 @@ weighted by sigma = u with absolute_sigma=True, so pcov is the unscaled (J^T W J
 Derived, first order with correlations (uncertainties.correlated_values):
   f0 = sqrt(1/(L C) - R^2/L^2)/(2 pi) (unity power factor), Q = 2 pi f0 L/R,
   R_D = L/(C R), BW = f0/Q.
-Writes tank_curve_fit.out beside this script. Run: python3 tank_curve_fit.py
+Writes tank_curve_fit.out (JSON) beside this script. Run: python3 tank_curve_fit.py
 """
+import json
 import os
 
 import numpy as np
@@ -54,17 +55,20 @@ q = 2 * np.pi * f0 * l / r
 rd = l / (c * r)
 derived = [("f0", f0), ("Q", q), ("BW", f0 / q), ("R_D", rd)]
 
+record = {
+    "made_by": f"tank_curve_fit.py: scipy {scipy.__version__}, numpy {np.__version__}, "
+               f"uncertainties {uncertainties.__version__}",
+    "truth_LCR": [L, C, R],
+    "f": f.tolist(),
+    "z": z.tolist(),
+    "u": u.tolist(),
+    "popt": popt.tolist(),
+    "pcov": pcov.tolist(),
+    "chi2": chi2,
+    "derived": {name: [v.nominal_value, v.std_dev] for name, v in derived},
+}
 out = os.path.join(os.path.dirname(os.path.abspath(__file__)), "tank_curve_fit.out")
 with open(out, "w") as fh:
-    fh.write(f"# tank_curve_fit.py: scipy {scipy.__version__}, numpy {np.__version__}, "
-             f"uncertainties {uncertainties.__version__}\n")
-    fh.write(f"# truth L C R: {L!r} {C!r} {R!r}\n")
-    for a, b, s in zip(f, z, u):
-        fh.write(f"data {float(a)!r} {float(b)!r} {float(s)!r}\n")
-    fh.write("popt " + " ".join(repr(float(v)) for v in popt) + "\n")
-    for row in pcov:
-        fh.write("pcov " + " ".join(repr(float(v)) for v in row) + "\n")
-    fh.write(f"chi2 {chi2!r}\n")
-    for name, v in derived:
-        fh.write(f"derived {name} {v.nominal_value!r} {v.std_dev!r}\n")
+    json.dump(record, fh, indent=1)
+    fh.write("\n")
 print(open(out).read())
