@@ -15,9 +15,10 @@ const FORMAT: &[(&str, &str)] = &[
     ),
     (
         "Readings blocks",
-        "A fenced block ```readings: a YAML header (id, network RC, RL, RLC or Z, parts, meter, \
-         phase, counter, source, unit_of), a --- line, then a table whose headings are \
-         symbol/unit (f/Hz, VR/V, VC/mV, shift/div, VR/V@2V for a named range).",
+        "A fenced block ```readings: a YAML header (id, network RC, RL, RLC, Z, RCloss, \
+         RCparallel, RLparallel, tank or model, parts, meter, phase, counter, source, unit_of), \
+         a --- line, then a table whose headings are symbol/unit (f/Hz, VR/V, VC/mV, shift/div, \
+         VR/V@2V for a named range; VT/V is the voltage across a tank).",
     ),
     (
         "Prose",

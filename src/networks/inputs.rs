@@ -171,7 +171,7 @@ pub fn instrument_slot<'b>(block: &'b ReadingsBlock, symbol: &str) -> Option<&'b
     }
 }
 
-const VOLTAGES: [&str; 5] = ["Vs", "VR", "VC", "VL", "V"];
+const VOLTAGES: [&str; 6] = ["Vs", "VR", "VC", "VL", "V", "VT"];
 
 fn unit_ok(q: &crate::quantity::Quantity, unit: Unit) -> bool {
     q.unit == unit

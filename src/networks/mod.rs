@@ -25,6 +25,7 @@ pub mod rcparallel;
 pub mod rl;
 pub mod rlc;
 pub mod rlparallel;
+pub mod tank;
 pub mod z;
 
 /// Every network, in the order messages list them.
@@ -36,6 +37,7 @@ pub const NETWORKS: &[&Descriptor] = &[
     &rcloss::NETWORK,
     &rcparallel::NETWORK,
     &rlparallel::NETWORK,
+    &tank::NETWORK,
     &model::NETWORK,
 ];
 

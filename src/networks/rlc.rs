@@ -327,29 +327,39 @@ impl ResonanceFit {
     }
 }
 
+/// A resonance model in three log-parameters θ (θ₀ the log of a frequency): its value at f
+/// and its gradient in θ.
+pub type PointModel = fn(f64, &[f64; 3]) -> (f64, [f64; 3]);
+
+/// The series model's |Y| at f and its gradient in θ = (ln f0, ln Q, ln Rt).
+fn series_point(f: f64, t: &[f64; 3]) -> (f64, [f64; 3]) {
+    let (f0, q, rt) = (t[0].exp(), t[1].exp(), t[2].exp());
+    let x = f / f0;
+    let g = x - 1.0 / x;
+    let d = 1.0 + q * q * g * g;
+    let y = 1.0 / (rt * d.sqrt());
+    (
+        y,
+        [
+            y * q * q * g * (x + 1.0 / x) / d,
+            -y * q * q * g * g / d,
+            -y,
+        ],
+    )
+}
+
 struct Problem<'a> {
     f: &'a [f64],
     y: &'a [f64],
     u: &'a [f64],
     p: Vector3<f64>,
+    model: PointModel,
 }
 
 impl Problem<'_> {
     /// Model value and its gradient in θ at point i.
     fn point(&self, i: usize) -> (f64, [f64; 3]) {
-        let (f0, q, rt) = (self.p[0].exp(), self.p[1].exp(), self.p[2].exp());
-        let x = self.f[i] / f0;
-        let g = x - 1.0 / x;
-        let d = 1.0 + q * q * g * g;
-        let y = 1.0 / (rt * d.sqrt());
-        (
-            y,
-            [
-                y * q * q * g * (x + 1.0 / x) / d,
-                -y * q * q * g * g / d,
-                -y,
-            ],
-        )
+        (self.model)(self.f[i], &[self.p[0], self.p[1], self.p[2]])
     }
 }
 
@@ -425,6 +435,18 @@ pub fn start(f: &[f64], y: &[f64]) -> Result<[f64; 3], FitError> {
 
 /// Weighted least-squares fit of the series model to (f, |Y|, u) sorted by f.
 pub fn fit_resonance(f: &[f64], y: &[f64], u: &[f64]) -> Result<ResonanceFit, FitError> {
+    fit_model(series_point, start, f, y, u)
+}
+
+/// Weighted Levenberg–Marquardt fit of `model` to (f, y, u) sorted by f, from the starting
+/// θ that `start` reads off the data; the covariance and gains as [`ResonanceFit`] holds them.
+pub fn fit_model(
+    model: PointModel,
+    start: fn(&[f64], &[f64]) -> Result<[f64; 3], FitError>,
+    f: &[f64],
+    y: &[f64],
+    u: &[f64],
+) -> Result<ResonanceFit, FitError> {
     let n = f.len();
     if n < 4 || y.len() != n || u.len() != n {
         return Err(FitError::TooFewPoints(n));
@@ -442,6 +464,7 @@ pub fn fit_resonance(f: &[f64], y: &[f64], u: &[f64]) -> Result<ResonanceFit, Fi
         y,
         u,
         p: Vector3::from(t0),
+        model,
     };
     let (prob, report) = LevenbergMarquardt::new().with_patience(200).minimize(prob);
     if !report.termination.was_successful() {
@@ -500,7 +523,7 @@ pub fn zero_crossing(f: &[f64], phase: &[f64]) -> Option<(f64, usize)> {
     })
 }
 
-fn part_value(
+pub(crate) fn part_value(
     ctx: &Context,
     block: &ReadingsBlock,
     kind: PartKind,
@@ -520,15 +543,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
     let bi = BlockInputs::build(ctx, block, &NETWORK.spec)?;
     check_readings(block, &bi)?;
     let has_vs = bi.has("Vs");
-    let mut out = BlockResult {
-        id: block.id.clone(),
-        network: block.network,
-        rows: Vec::new(),
-        results: Vec::new(),
-        correlations: Vec::new(),
-        flags: bi.flags.clone(),
-        plot: PlotData::default(),
-    };
+    let mut out = empty_result(block, &bi);
     if !has_vs {
         out.flags.push(Flag {
             warn: false,
@@ -536,20 +551,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             message: "no Vs column: |Y| uses the stated source level, taken as exact".into(),
         });
     }
-    let ng = bi.groups.len();
-    // Groups in order of frequency.
-    let mut order: Vec<usize> = (0..ng).collect();
-    order.sort_by(|&a, &b| {
-        let fa = bi.groups[a].f.unwrap_or(0.0);
-        let fb = bi.groups[b].f.unwrap_or(0.0);
-        fa.total_cmp(&fb)
-    });
-    let fs: Vec<f64> = order
-        .iter()
-        .map(|&g| bi.groups[g].f.unwrap_or(f64::NAN))
-        .collect();
-    // Each point reads its own group's inputs and the shared ones (resistor, gains).
-    let own: Vec<Vec<usize>> = order.iter().map(|&g| bi.group_inputs(g)).collect();
+    let (order, fs, own) = Sweep::order(&bi);
     let sw = Sweep {
         ctx,
         block,
@@ -559,15 +561,50 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         order,
         fs,
         own,
+        y_of: admittance_of,
+        symbol: "|Y|",
     };
+    let pts = sweep_points(&sw, "Y", &mut out)?;
+    read_offs(&sw, &pts.ys, &mut out);
+
+    // The fit.
+    match fit_resonance(&sw.fs, &pts.ys, &pts.u_w) {
+        Err(e) => out.flags.push(Flag {
+            warn: true,
+            span: Some(block.span),
+            message: format!("RLC fit: {e}"),
+        }),
+        Ok(fit) => fit_results(&sw, &SERIES, &fit, &pts, &mut out)?,
+    }
+    keep_markers(&mut out);
+    phase_f0(&sw, &mut out);
+    out.flags.extend(prediction(ctx, block, &bi));
+    Ok(out)
+}
+
+/// The points of a sweep: the fitted magnitudes propagated (output k is point k), their
+/// values and total u, and the fit weights with how they were chosen.
+pub(crate) struct Points {
+    pub(crate) py: Propagated,
+    pub(crate) ys: Vec<f64>,
+    pub(crate) u_tot: Vec<f64>,
+    pub(crate) u_w: Vec<f64>,
+    pub(crate) weights_note: &'static str,
+}
+
+/// The fitted magnitude at each point (plotted as series `series`) and the current
+/// I = VR/R as per-frequency rows.
+pub(crate) fn sweep_points(
+    sw: &Sweep,
+    series: &str,
+    out: &mut BlockResult,
+) -> Result<Points, Vec<Diagnostic>> {
+    let (ctx, block, bi, fs) = (sw.ctx, sw.block, sw.bi, &sw.fs);
     let model = bi.model();
     let ys_model = |x: &[f64]| sw.ys(x);
     let py = propagate_sparse(&model, &ys_model, Some(&sw.own), ctx.coverage).at_block(block)?;
     let ys = py.values.clone();
     let u_tot: Vec<f64> = py.results.iter().map(|m| m.u).collect();
-    let fs = &sw.fs;
-
-    // Per-frequency current.
     let i_model = |x: &[f64]| -> Vec<f64> {
         sw.order
             .iter()
@@ -583,23 +620,35 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             m: m.clone(),
         });
     }
-    let (u_w, weights_note) = fit_weights(&bi, &py, &ys, &u_tot);
+    let (u_w, weights_note) = fit_weights(bi, &py, &ys, &u_tot);
     out.plot.series.push((
-        "Y".into(),
-        (0..ng).map(|k| (fs[k], ys[k], u_tot[k])).collect(),
+        series.into(),
+        (0..fs.len()).map(|k| (fs[k], ys[k], u_tot[k])).collect(),
     ));
-    read_offs(&sw, &ys, &mut out);
+    Ok(Points {
+        py,
+        ys,
+        u_tot,
+        u_w,
+        weights_note,
+    })
+}
 
-    // The fit.
-    match fit_resonance(fs, &ys, &u_w) {
-        Err(e) => out.flags.push(Flag {
-            warn: true,
-            span: Some(block.span),
-            message: format!("RLC fit: {e}"),
-        }),
-        Ok(fit) => fit_results(&sw, &fit, &py, (&u_tot, weights_note), &mut out)?,
+/// A block's result with no results yet: the inputs' flags only.
+pub(crate) fn empty_result(block: &ReadingsBlock, bi: &BlockInputs) -> BlockResult {
+    BlockResult {
+        id: block.id.clone(),
+        network: block.network,
+        rows: Vec::new(),
+        results: Vec::new(),
+        correlations: Vec::new(),
+        flags: bi.flags.clone(),
+        plot: PlotData::default(),
     }
-    // Keep one marker per name, in a fixed order.
+}
+
+/// Keeps one marker per name, in a fixed order.
+pub(crate) fn keep_markers(out: &mut BlockResult) {
     let mut markers = Vec::new();
     for name in ["f0", "f_low", "f_high"] {
         if let Some(m) = out.plot.markers.iter().find(|(n, _)| n == name) {
@@ -607,9 +656,6 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         }
     }
     out.plot.markers = markers;
-    phase_f0(&sw, &mut out);
-    out.flags.extend(prediction(ctx, block, &bi));
-    Ok(out)
 }
 
 /// Positive VR, Vs and period; a source level from a Vs column or the header.
@@ -632,40 +678,63 @@ fn check_readings(block: &ReadingsBlock, bi: &BlockInputs) -> Result<(), Vec<Dia
     }
 }
 
-/// The sweep in order of frequency, and how |Y| is read from it.
-struct Sweep<'a> {
-    ctx: &'a Context<'a>,
-    block: &'a ReadingsBlock,
-    bi: &'a BlockInputs,
-    has_vs: bool,
+/// The sweep in order of frequency, and how the fitted magnitude (|Y| here) is read from it.
+pub(crate) struct Sweep<'a> {
+    pub(crate) ctx: &'a Context<'a>,
+    pub(crate) block: &'a ReadingsBlock,
+    pub(crate) bi: &'a BlockInputs,
+    pub(crate) has_vs: bool,
     /// The header's source level (V), used without a Vs column.
-    level: f64,
+    pub(crate) level: f64,
     /// Group indices in order of frequency, and their frequencies.
-    order: Vec<usize>,
-    fs: Vec<f64>,
+    pub(crate) order: Vec<usize>,
+    pub(crate) fs: Vec<f64>,
     /// Per point, the inputs it reads.
-    own: Vec<Vec<usize>>,
+    pub(crate) own: Vec<Vec<usize>>,
+    /// The fitted magnitude of group `g` at inputs `x`, and its symbol for messages.
+    pub(crate) y_of: fn(&Sweep, &[f64], usize) -> f64,
+    pub(crate) symbol: &'static str,
+}
+
+/// |Y| = VR/(R·Vs) of group `g` at inputs `x`.
+fn admittance_of(sw: &Sweep, x: &[f64], g: usize) -> f64 {
+    let bi = sw.bi;
+    let vs = if sw.has_vs {
+        bi.voltage("Vs", g, x)
+    } else {
+        sw.level
+    };
+    bi.voltage("VR", g, x) / (bi.r(x) * vs)
 }
 
 impl Sweep<'_> {
-    /// |Y| = VR/(R·Vs) of group `g` at inputs `x`.
-    fn y_of(&self, x: &[f64], g: usize) -> f64 {
-        let bi = self.bi;
-        let vs = if self.has_vs {
-            bi.voltage("Vs", g, x)
-        } else {
-            self.level
-        };
-        bi.voltage("VR", g, x) / (bi.r(x) * vs)
+    /// Groups in order of frequency, their frequencies, and each point's inputs (its own
+    /// group's and the shared ones: resistor, gains).
+    pub(crate) fn order(bi: &BlockInputs) -> (Vec<usize>, Vec<f64>, Vec<Vec<usize>>) {
+        let mut order: Vec<usize> = (0..bi.groups.len()).collect();
+        order.sort_by(|&a, &b| {
+            let fa = bi.groups[a].f.unwrap_or(0.0);
+            let fb = bi.groups[b].f.unwrap_or(0.0);
+            fa.total_cmp(&fb)
+        });
+        let fs = order
+            .iter()
+            .map(|&g| bi.groups[g].f.unwrap_or(f64::NAN))
+            .collect();
+        let own = order.iter().map(|&g| bi.group_inputs(g)).collect();
+        (order, fs, own)
     }
 
-    /// |Y| at every point, in order of frequency.
-    fn ys(&self, x: &[f64]) -> Vec<f64> {
-        self.order.iter().map(|&g| self.y_of(x, g)).collect()
+    /// The fitted magnitude at every point, in order of frequency.
+    pub(crate) fn ys(&self, x: &[f64]) -> Vec<f64> {
+        self.order
+            .iter()
+            .map(|&g| (self.y_of)(self, x, g))
+            .collect()
     }
 
     /// The inputs read by the points `pts`, sorted, each once.
-    fn union_of(&self, pts: &[usize]) -> Vec<usize> {
+    pub(crate) fn union_of(&self, pts: &[usize]) -> Vec<usize> {
         let mut v: Vec<usize> = pts
             .iter()
             .filter_map(|&k| self.own.get(k))
@@ -721,7 +790,7 @@ fn fit_weights(
 
 /// Read-offs from the data, with uncertainty from the readings (indices fixed at the
 /// estimates): the peak and the half-power points.
-fn read_offs(sw: &Sweep, ys: &[f64], out: &mut BlockResult) {
+pub(crate) fn read_offs(sw: &Sweep, ys: &[f64], out: &mut BlockResult) {
     let (ctx, block, fs) = (sw.ctx, sw.block, &sw.fs);
     let model = sw.bi.model();
     let ys_model = |x: &[f64]| sw.ys(x);
@@ -781,7 +850,7 @@ fn read_offs(sw: &Sweep, ys: &[f64], out: &mut BlockResult) {
         flags.push(Flag {
             warn: false,
             span: Some(block.span),
-            message: "read-off points: f0_peak is the vertex of the parabola through the three highest readings in ln f, f_low and f_high are linear interpolations between the readings around |Y|max/√2; each U includes the interpolation error between sweep points, a rectangular term of half-width |parabola vertex − cubic maximum| (f0_peak) or |linear − quadratic| crossing plus the effect of the peak height's own such error (f_low, f_high), rectangular because the difference bounds the error without making any value inside it likelier (GUM 4.3.7)".into(),
+            message: format!("read-off points: f0_peak is the vertex of the parabola through the three highest readings in ln f, f_low and f_high are linear interpolations between the readings around {}max/√2; each U includes the interpolation error between sweep points, a rectangular term of half-width |parabola vertex − cubic maximum| (f0_peak) or |linear − quadratic| crossing plus the effect of the peak height's own such error (f_low, f_high), rectangular because the difference bounds the error without making any value inside it likelier (GUM 4.3.7)", sw.symbol),
         });
         for (side, name) in [(ro.low, "lower"), (ro.high, "upper")] {
             if side.is_none() {
@@ -832,18 +901,42 @@ fn interpolation_line(a: f64) -> BudgetLine {
     }
 }
 
-/// The fitted (f0, Q, Rt) and what follows from them: derived results with Monte Carlo,
-/// their correlations, the χ² flag, the fitted curve and the residuals. `u` holds each
-/// point's total uncertainty and how the weights were chosen.
-fn fit_results(
+/// What follows from a fit's three parameters (e^θ, not their logarithms): the derived
+/// results and their function, the pairs whose correlation is reported, the fitted curve,
+/// the f0 marker, and the names of the fit and of its parameters as inputs.
+pub(crate) struct FitModel {
+    pub(crate) name: &'static str,
+    pub(crate) params: [&'static str; 3],
+    pub(crate) derived: fn(&[f64]) -> Vec<f64>,
+    pub(crate) results: &'static [(&'static str, Unit)],
+    pub(crate) pairs: &'static [(usize, usize)],
+    pub(crate) curve: fn(f64, &[f64; 3]) -> f64,
+    pub(crate) marker: fn(&[f64; 3]) -> f64,
+}
+
+/// The series fit: (f0, Q, Rt) → [`DERIVED`].
+const SERIES: FitModel = FitModel {
+    name: "RLC fit",
+    params: ["f0 (fit)", "Q (fit)", "Rtotal (fit)"],
+    derived: derived_lin,
+    results: &DERIVED,
+    pairs: &[(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)],
+    curve: |f, p| admittance(f, p[0], p[1], p[2]),
+    marker: |p| p[0],
+};
+
+/// The fitted parameters and what follows from them (`fm`): derived results with Monte
+/// Carlo, their correlations, the χ² flag, the fitted curve and the residuals.
+pub(crate) fn fit_results(
     sw: &Sweep,
+    fm: &FitModel,
     fit: &ResonanceFit,
-    py: &Propagated,
-    u: (&[f64], &str),
+    pts: &Points,
     out: &mut BlockResult,
 ) -> Result<(), Vec<Diagnostic>> {
     let (ctx, block, fs) = (sw.ctx, sw.block, &sw.fs);
-    let (u_tot, weights_note) = u;
+    let (py, u_tot, weights_note) = (&pts.py, &pts.u_tot, pts.weights_note);
+    let derived_lin = fm.derived;
     let ng = fs.len();
     let (plot, results, correlations, flags) = (
         &mut out.plot,
@@ -855,7 +948,7 @@ fn fit_results(
     let cov_log = fit.cov_from(py);
     let p0 = [fit.f0(), fit.q(), fit.rt()];
     let birge = birge_ratio(fit);
-    let (fit_in, corr) = fit_inputs(p0, &cov_log);
+    let (fit_in, corr) = fit_inputs(fm.params, p0, &cov_log);
     let pd = propagate(
         &Model {
             inputs: &fit_in,
@@ -875,7 +968,7 @@ fn fit_results(
             }
         }
     }
-    let (mc_in, mc_corr) = fit_inputs(p0, &cov_mc);
+    let (mc_in, mc_corr) = fit_inputs(fm.params, p0, &cov_mc);
     let mc = monte_carlo(
         &mc_in,
         &mc_corr,
@@ -885,7 +978,7 @@ fn fit_results(
         None,
     );
     let mut unvalidated = Vec::new();
-    for (k, (name, unit)) in DERIVED.iter().enumerate() {
+    for (k, (name, unit)) in fm.results.iter().enumerate() {
         let mut m = pd.results[k].clone();
         if let Some(rb) = birge {
             add_term(&mut m, scatter_line(&pd, k, p0, fit, rb), ctx.coverage);
@@ -903,10 +996,10 @@ fn fit_results(
             m,
         });
     }
-    for (a, b) in [(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)] {
+    for &(a, b) in fm.pairs {
         correlations.push(Correlation {
-            a: DERIVED[a].0.into(),
-            b: DERIVED[b].0.into(),
+            a: fm.results[a].0.into(),
+            b: fm.results[b].0.into(),
             r: correlation(&pd, a, b),
             f: None,
         });
@@ -921,9 +1014,9 @@ fn fit_results(
             ),
         });
     }
-    flags.push(chi2_flag(fit, weights_note, block));
-    let (f0, q, rt) = (fit.f0(), fit.q(), fit.rt());
-    plot.markers.insert(0, ("f0".into(), f0));
+    flags.push(chi2_flag(fm.name, fit, weights_note, block));
+    let f0 = p0[0];
+    plot.markers.insert(0, ("f0".into(), (fm.marker)(&p0)));
     let (lo, hi) = (
         fs.first().copied().unwrap_or(f0),
         fs.last().copied().unwrap_or(f0),
@@ -931,7 +1024,7 @@ fn fit_results(
     let curve: Vec<(f64, f64)> = (0..200)
         .map(|k| {
             let fk = lo * (hi / lo).powf(k as f64 / 199.0);
-            (fk, admittance(fk, f0, q, rt))
+            (fk, (fm.curve)(fk, &p0))
         })
         .collect();
     plot.curves.push(("fit".into(), curve));
@@ -959,9 +1052,12 @@ pub fn birge_ratio(fit: &ResonanceFit) -> Option<f64> {
     (fit.dof > 0 && rc2 > chi2_limit(fit.dof) && rc2.is_finite()).then(|| rc2.sqrt())
 }
 
-/// Normal inputs (f0, Q, Rt) with the covariance `cov_log` of their logarithms.
-fn fit_inputs(p0: [f64; 3], cov_log: &[[f64; 3]; 3]) -> (Vec<Input>, Vec<(usize, usize, f64)>) {
-    let names = ["f0 (fit)", "Q (fit)", "Rtotal (fit)"];
+/// Normal inputs `names` at `p0` with the covariance `cov_log` of their logarithms.
+fn fit_inputs(
+    names: [&str; 3],
+    p0: [f64; 3],
+    cov_log: &[[f64; 3]; 3],
+) -> (Vec<Input>, Vec<(usize, usize, f64)>) {
     let fit_in: Vec<Input> = (0..3)
         .map(|k| {
             Input::type_b(
@@ -1018,19 +1114,19 @@ fn scatter_line(
 }
 
 /// The note on the fit's χ²: the weights, and whether the covariance was scaled.
-fn chi2_flag(fit: &ResonanceFit, weights_note: &str, block: &ReadingsBlock) -> Flag {
+fn chi2_flag(name: &str, fit: &ResonanceFit, weights_note: &str, block: &ReadingsBlock) -> Flag {
     let nu = fit.dof;
     let rc2 = fit.reduced_chi2();
     let limit = chi2_limit(nu);
     let message = match birge_ratio(fit) {
         Some(rb) => format!(
-            "RLC fit: χ²/ν = {} (ν = {nu}) exceeds its 95 % limit {}, weights from {weights_note}: the scatter is beyond the stated uncertainties, so the fit's own covariance is scaled by χ²/ν (Birge ratio R_B = {}, as least-squares practice and scipy's curve_fit with absolute_sigma=False do); each derived result's budget carries it as a line and its U and verdict use the scaled covariance",
+            "{name}: χ²/ν = {} (ν = {nu}) exceeds its 95 % limit {}, weights from {weights_note}: the scatter is beyond the stated uncertainties, so the fit's own covariance is scaled by χ²/ν (Birge ratio R_B = {}, as least-squares practice and scipy's curve_fit with absolute_sigma=False do); each derived result's budget carries it as a line and its U and verdict use the scaled covariance",
             plain(rc2, 3),
             plain(limit, 3),
             plain(rb, 3)
         ),
         None => format!(
-            "RLC fit: χ²/ν = {} (ν = {nu}, 95 % limit {}), weights from {weights_note}; the covariance is not scaled by χ²/ν",
+            "{name}: χ²/ν = {} (ν = {nu}, 95 % limit {}), weights from {weights_note}; the covariance is not scaled by χ²/ν",
             plain(rc2, 3),
             plain(limit, 3)
         ),

@@ -361,7 +361,7 @@ pub struct Named {
 
 #[derive(Debug, Clone)]
 pub struct Column {
-    /// Case-sensitive symbol: f, Vs, VR, VC, VL, V, I, phi, shift, period, IR, IC, IL.
+    /// Case-sensitive symbol: f, Vs, VR, VC, VL, V, I, phi, shift, period, IR, IC, IL, VT.
     pub symbol: String,
     pub unit: Unit,
     /// Heading exactly as written (e.g. `f/Hz`).
@@ -444,7 +444,7 @@ const MAX_FLOW_DEPTH: usize = 32;
 
 /// Column symbols (case-sensitive).
 pub const SYMBOLS: &[&str] = &[
-    "f", "Vs", "VR", "VC", "VL", "V", "I", "phi", "shift", "period", "IR", "IC", "IL",
+    "f", "Vs", "VR", "VC", "VL", "V", "I", "phi", "shift", "period", "IR", "IC", "IL", "VT",
 ];
 
 /// IEC 60062:2016 Table 8 (from memory): tolerance letter → relative half-width.
@@ -463,7 +463,7 @@ pub const IEC_60062_CODES: &[(char, f64)] = &[
 pub fn symbol_unit(symbol: &str) -> Option<Unit> {
     Some(match symbol {
         "f" => Unit::Hz,
-        "Vs" | "VR" | "VC" | "VL" | "V" => Unit::V,
+        "Vs" | "VR" | "VC" | "VL" | "V" | "VT" => Unit::V,
         "I" | "IR" | "IC" | "IL" => Unit::A,
         "phi" => Unit::Rad,
         "shift" | "period" => Unit::Div,

@@ -314,6 +314,7 @@ const RANGES: &[(&str, f64, f64, &str, &str, &str, &str)] = &[
     ("VC", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
     ("VL", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
     ("V", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
+    ("VT", 1e-12, 1e6, "1 pV", "1 MV", "a voltage", VOLT_WHY),
     ("I", 1e-12, 1e4, "1 pA", "10 kA", "a current",
      "no bench meter resolves less than a picoampere, and 10 kA is beyond any bench source"),
     ("IR", 1e-12, 1e4, "1 pA", "10 kA", "a current", AMP_WHY),
@@ -684,7 +685,9 @@ pub(super) fn cell(
             let problem = match sym {
                 "f" if q.value <= 0.0 => Some("a frequency must be greater than zero"),
                 "period" if q.value <= 0.0 => Some("a period must be greater than zero"),
-                "Vs" | "VR" | "VC" | "VL" | "V" | "I" | "IR" | "IC" | "IL" if q.value < 0.0 => {
+                "Vs" | "VR" | "VC" | "VL" | "V" | "VT" | "I" | "IR" | "IC" | "IL"
+                    if q.value < 0.0 =>
+                {
                     Some("a meter magnitude cannot be negative")
                 }
                 _ => None,

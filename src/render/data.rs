@@ -259,7 +259,7 @@ fn break_points(name: &str) -> String {
 /// column heading (phase) or is not a column.
 fn symbol_unit(sym: &str) -> Option<&'static str> {
     match sym {
-        "Vs" | "VR" | "VC" | "VL" | "V" => Some("V"),
+        "Vs" | "VR" | "VC" | "VL" | "V" | "VT" => Some("V"),
         "I" | "IR" | "IC" | "IL" => Some("A"),
         "f" => Some("Hz"),
         "shift" | "period" => Some("div"),

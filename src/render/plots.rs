@@ -78,6 +78,7 @@ fn legend_name(name: &str) -> String {
         "L" => "L (three-voltmeter method)".into(),
         "XL_dcr" => "X_L (DC-resistance method)".into(),
         "Y" => "|Y| measured".into(),
+        "Z" => "|Z| measured".into(),
         other => other.to_string(),
     }
 }
@@ -255,8 +256,14 @@ fn caption(block: &BlockResult, kind: PlotKind, panels: &[Panel]) -> String {
             what
         }
         PlotKind::Resonance => {
+            let tank = panels.first().is_some_and(|p| p.y.symbol == "|Z|");
+            let (sweep, model) = if tank {
+                ("impedance", "tank")
+            } else {
+                ("admittance", "series")
+            };
             let mut what = format!(
-                "Block {}: admittance sweep with the fitted series model and the resonance and half-power markers",
+                "Block {}: {sweep} sweep with the fitted {model} model and the resonance and half-power markers",
                 block.id
             );
             if panels.len() > 1 {
