@@ -72,6 +72,7 @@ impl ReadingsBlock {
             source: self.source,
             columns: self.columns.clone(),
             model: self.model.clone(),
+            readout: self.readout.clone(),
             rows: Vec::new(),
             span: self.span,
             body: String::new(),

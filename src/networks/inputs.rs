@@ -7,7 +7,13 @@
 //!   Means of two columns from the same rows get the correlation coefficient of GUM 5.2.3
 //!   (eq. 17). A single reading (n = 1) has no Type A: its input has u = 0.
 //! - Instruments: `meter` for Vs, VR, VC, VL, V, I; `phase` for shift, period and phi;
-//!   `counter` for f. A column without an instrument gets no Type B and a flag.
+//!   `counter` for f, else the `generator`'s stated frequency accuracy. A column without an
+//!   instrument gets no Type B and a note (for f: the frequency is taken as exact).
+//! - A voltage read in divisions (`VR/div`) is read on the `display`, else the `phase`
+//!   instrument: its `reading` half-width (div) × the column's scale is a per-reading
+//!   rectangular offset, its `vertical` accuracy one gain input for the column and scale; the
+//!   display's other keys do not apply. A peak-to-peak column (`VRpp/…`) holds RMS for a sine,
+//!   so its per-reading offsets are divided by 2√2 as well.
 //! - Accuracy `P% + N counts` splits into a gain (one input per instrument and column, value 1,
 //!   u from P %, shared by every row of that column: averaging does not shrink it, GUM 5.2 and
 //!   F.1.2) and a per-reading offset (value 0): N × resolution, or, with no counts, the
@@ -162,12 +168,23 @@ pub struct BlockInputs {
     range_gains: BTreeMap<(String, usize), usize>,
 }
 
-/// Instrument assigned to a column by the block header.
+/// Instrument assigned to a column by the block header: for `f` the counter, else the
+/// generator (its stated frequency accuracy).
 pub fn instrument_slot<'b>(block: &'b ReadingsBlock, symbol: &str) -> Option<&'b Named> {
     match symbol {
-        "f" => block.counter.as_ref(),
+        "f" => block.counter.as_ref().or(block.readout.generator.as_ref()),
         "shift" | "period" | "phi" => block.phase.as_ref(),
         _ => block.meter.as_ref(),
+    }
+}
+
+/// [`instrument_slot`] for a column as read: a voltage read in divisions (`VR/div`) is read
+/// on the block's `display`, else on its `phase` instrument (the two-trace display).
+pub fn column_slot<'b>(block: &'b ReadingsBlock, c: &Column) -> Option<&'b Named> {
+    if c.readout.divisions {
+        block.readout.display.as_ref().or(block.phase.as_ref())
+    } else {
+        instrument_slot(block, &c.symbol)
     }
 }
 
@@ -306,9 +323,21 @@ fn check_block<'c>(
     }
     // Instruments named in the header must exist.
     let mut insts: Vec<(&Named, &Instrument)> = Vec::new();
-    for n in [&block.meter, &block.phase, &block.counter]
-        .into_iter()
-        .flatten()
+    // The generator serves only when no counter is named.
+    let generator = block
+        .readout
+        .generator
+        .as_ref()
+        .filter(|_| block.counter.is_none());
+    for n in [
+        &block.meter,
+        &block.phase,
+        &block.counter,
+        &block.readout.display,
+    ]
+    .into_iter()
+    .flatten()
+    .chain(generator)
     {
         match ctx.instruments.get(&n.name) {
             Some(i) => {
@@ -344,10 +373,13 @@ fn column_ranges(
     let mut out = BTreeMap::new();
     let mut diags = Vec::new();
     for (ci, c) in block.columns.iter().enumerate() {
-        if !(c.symbol == "f" || used.contains(&c.symbol.as_str())) {
+        // A display's divisions have no ranges.
+        if !(c.symbol == "f" || used.contains(&c.symbol.as_str())) || c.readout.divisions {
             continue;
         }
-        let slot = instrument_slot(block, &c.symbol);
+        // A peak-to-peak reading is on the range that holds it, not its RMS value.
+        let k = c.readout.factor();
+        let slot = column_slot(block, c);
         let inst = slot.and_then(|n| ctx.instruments.get(&n.name));
         let iname = slot.map_or("no instrument", |n| n.name.as_str());
         let listed: Vec<String> = inst
@@ -427,12 +459,13 @@ fn column_ranges(
                 per_group.push(None);
                 continue;
             };
-            let over = |fs: &crate::quantity::Quantity| top.value.abs() > fs.value;
+            let reading = top.value.abs() / k;
+            let over = |fs: &crate::quantity::Quantity| reading > fs.value;
             let chosen = match forced {
                 Some(p) => {
                     Some(p).filter(|&p| !i.ranges.get(p).is_some_and(|r| over(&r.full_scale)))
                 }
-                None => range_for(i, c.unit, top.value),
+                None => range_for(i, c.unit, reading),
             };
             if chosen.is_none() {
                 let fs = match forced.and_then(|p| i.ranges.get(p)) {
@@ -513,29 +546,31 @@ impl BlockInputs {
 
         // Measured columns.
         let mut col_inputs: BTreeMap<String, Vec<Option<usize>>> = BTreeMap::new();
+        let mut diags = Vec::new();
         for c in &block.columns {
             let s = c.symbol.as_str();
             if !(s == "f" || used.contains(&s)) {
                 continue;
             }
             let Some(ci) = block.col(s) else { continue };
-            let inst = instrument_slot(block, s)
+            let inst = column_slot(block, c)
                 .and_then(|n| ctx.instruments.get(&n.name).map(|i| (n.name.as_str(), i)));
-            if inst.is_none() {
-                bi.flags.push(Flag {
-                    warn: false,
-                    span: Some(c.span),
-                    message: format!(
-                        "no instrument for column {s}: its Type B uncertainty is not included"
-                    ),
-                });
-            }
+            bi.readout_notes(c, inst.is_none());
             let col_ranges = ranges.get(s).map(Vec::as_slice).unwrap_or(&[]);
             let mut terms: Vec<(Option<usize>, TypeBTerms)> = Vec::new();
+            if c.readout.divisions {
+                match bi.display_terms(c, inst) {
+                    Ok(t) => terms.push((None, t)),
+                    Err(dg) => {
+                        diags.push(dg);
+                        continue;
+                    }
+                }
+            }
             for r in col_ranges
                 .iter()
                 .copied()
-                .chain(col_ranges.is_empty().then_some(None))
+                .chain((col_ranges.is_empty() && terms.is_empty()).then_some(None))
             {
                 if !terms.iter().any(|(x, _)| *x == r) {
                     let t = bi.type_b_terms(c, inst, r);
@@ -544,6 +579,9 @@ impl BlockInputs {
             }
             let idx_per_group = bi.column_values(block, c, ci, inst, (&terms, col_ranges));
             col_inputs.insert(s.to_string(), idx_per_group);
+        }
+        if !diags.is_empty() {
+            return Err(diags);
         }
         bi.type_a_correlations(block, &used, &col_inputs);
         bi.source_level(ctx, block);
@@ -604,7 +642,7 @@ impl BlockInputs {
             let Some(bw) = i.bandwidth else { continue };
             let serves = block.columns.iter().any(|c| {
                 (c.symbol == "f" || used.contains(&c.symbol.as_str()))
-                    && instrument_slot(block, &c.symbol)
+                    && column_slot(block, c)
                         .map(|m| m.name == n.name)
                         .unwrap_or(false)
             });
@@ -716,7 +754,107 @@ impl BlockInputs {
                 });
             }
         }
+        // A peak-to-peak reading's offsets are in the reading's volts: as RMS, × 1/(2√2).
+        let k = c.readout.factor();
+        if let Some(count) = t.count.as_mut() {
+            count.0 *= k;
+        }
+        if let Some(read) = t.read.as_mut() {
+            *read *= k;
+        }
         t
+    }
+
+    /// Notes on how column `c` was read: with no instrument (the frequency taken as exact),
+    /// and peak to peak (converted to RMS for a sine).
+    fn readout_notes(&mut self, c: &Column, no_instrument: bool) {
+        let s = c.symbol.as_str();
+        if no_instrument && !c.readout.divisions {
+            self.flags.push(Flag {
+                warn: false,
+                span: Some(c.span),
+                message: if s == "f" {
+                    "no instrument for column f (no `counter`, no `generator`): the frequency is taken as exact".to_string()
+                } else {
+                    format!("no instrument for column {s}: its Type B uncertainty is not included")
+                },
+            });
+        }
+        if c.readout.peak_to_peak {
+            self.flags.push(Flag {
+                warn: false,
+                span: Some(c.span),
+                message: format!(
+                    "{s} was read peak to peak (`{}`) and converted to RMS as Vpp/(2√2): sine assumed",
+                    c.heading
+                ),
+            });
+        }
+    }
+
+    /// The Type B terms of a voltage column read in divisions on display `inst`: the reading
+    /// half-width (`reading`, in div, rectangular) times the column's scale as a per-reading
+    /// offset, and the vertical gain (`vertical`) as one gain input for the column and its
+    /// scale. A column with no display, or a display with no `reading` in div, is an error at
+    /// the heading.
+    fn display_terms<'i>(
+        &mut self,
+        c: &Column,
+        inst: Option<(&'i str, &Instrument)>,
+    ) -> Result<TypeBTerms<'i>, Diagnostic> {
+        let h = c.heading.as_str();
+        let Some((iname, i)) = inst else {
+            return Err(Diagnostic::new(
+                c.span,
+                format!("column `{h}` is read off a display, and the block names none"),
+            )
+            .expected("`display: <instrument>` or `phase: <instrument>` in the block header")
+            .found("no `display` and no `phase`"));
+        };
+        let Some(rd) = i.reading.filter(|r| r.unit == Unit::Div) else {
+            return Err(Diagnostic::new(
+                c.span,
+                format!("column `{h}` is read off {iname}, which gives no reading half-width in divisions"),
+            )
+            .expected(format!("`reading: 0.1 div` (say) in the entry of {iname}"))
+            .found(match i.reading {
+                Some(q) => format!("`reading` in {}", q.unit.symbol()),
+                None => "no `reading`".to_string(),
+            }));
+        };
+        let k = c.readout.factor();
+        let per_div = c.readout.per_div.unwrap_or(1.0);
+        let gain = match i.vertical {
+            Some(fraction) => {
+                self.inputs.push(Input::type_b(
+                    format!(
+                        "gain({iname},{} {}/div)",
+                        c.symbol,
+                        crate::print::quantity(per_div, Unit::V)
+                    ),
+                    1.0,
+                    type_b(fraction, i.distribution),
+                    dist_of(i.distribution),
+                ));
+                Some(self.inputs.len() - 1)
+            }
+            None => {
+                self.flags.push(Flag {
+                    warn: false,
+                    span: Some(i.span),
+                    message: format!(
+                        "{iname} gives no `vertical` gain accuracy: column {} has no gain uncertainty",
+                        c.symbol
+                    ),
+                });
+                None
+            }
+        };
+        Ok(TypeBTerms {
+            gain,
+            count: None,
+            read: Some(type_b(rd.value * k, Distribution::Rectangular)),
+        })
     }
 
     /// The gain input of column `s` read with `i` (`iname`): `fraction` is its accuracy's
@@ -1221,6 +1359,7 @@ pub(crate) mod testutil {
             distribution: Distribution::Rectangular,
             ranges: Vec::new(),
             range_accuracy: Vec::new(),
+            vertical: None,
             span: Span::default(),
         }
     }
@@ -1254,6 +1393,7 @@ pub(crate) mod testutil {
                 unit: *u,
                 heading: format!("{s}/{}", u.symbol()),
                 range: None,
+                readout: Readout::default(),
                 span: Span::default(),
             })
             .collect();
@@ -1296,6 +1436,7 @@ pub(crate) mod testutil {
             body: String::new(),
             lot: None,
             model: Vec::new(),
+            readout: BlockReadout::default(),
         }
     }
 

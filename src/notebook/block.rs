@@ -6,8 +6,8 @@ use super::values::{undefined, ValueReader};
 use super::words::{list, one_of};
 use super::yaml::{kind_name, YamlLocator};
 use super::{
-    line_text, required_columns, split_lines, Decimal, LotSpec, MappedColumn, Named, Network,
-    ReadingsBlock, TableSpec, MAX_HEADER,
+    line_text, required_columns, split_lines, BlockReadout, Decimal, LotSpec, MappedColumn, Named,
+    Network, ReadingsBlock, TableSpec, MAX_HEADER,
 };
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::networks::model::{self, ModelResult};
@@ -31,6 +31,9 @@ const HEADER_KEYS: &[&str] = &[
     "columns",
     "skip",
     "model",
+    "display",
+    "generator",
+    "scale",
 ];
 
 /// Header keys that only a block reading its table from a file (`table:`) may give.
@@ -93,8 +96,11 @@ pub(super) fn parse_block(
             (Table::default(), None, Some(spec))
         }
         None => {
-            let table = parse_table(src, rest, d);
+            let mut table = parse_table(src, rest, d);
             check_table(&table, header.network.map(|n| n.0), fence, d);
+            if table.heading.is_some() {
+                super::readout::apply(&header.readout, &mut table.columns, &mut table.rows, d);
+            }
             let lot = lot_spec(header.unit_of.take(), &table, d);
             (table, lot, None)
         }
@@ -118,6 +124,7 @@ pub(super) fn parse_block(
             body: src[body.start..body.end].to_string(),
             lot,
             model: std::mem::take(&mut header.model),
+            readout: std::mem::take(&mut header.readout),
         },
         spec,
     ))
@@ -233,6 +240,8 @@ struct Header {
     file: FileKeys,
     /// The results of a `network: model` block.
     model: Vec<ModelResult>,
+    /// `display`, `generator` and `scale`.
+    readout: BlockReadout,
 }
 
 /// The header keys of a table read from a file; each is None when absent or wrong.
@@ -298,6 +307,11 @@ fn header(cx: &BlockCtx, region: Span, open_span: Span, d: &mut Vec<Diagnostic>)
             "meter" => h.meter = ex.instrument_name(&path, val, cx.defined.checked()),
             "phase" => h.phase = ex.instrument_name(&path, val, cx.defined.checked()),
             "counter" => h.counter = ex.instrument_name(&path, val, cx.defined.checked()),
+            "display" => h.readout.display = ex.instrument_name(&path, val, cx.defined.checked()),
+            "generator" => {
+                h.readout.generator = ex.instrument_name(&path, val, cx.defined.checked())
+            }
+            "scale" => h.readout.scales = super::readout::scale_key(&mut ex, val),
             "note" => h.note = ex.text(&path, val),
             "unit_of" => {
                 if let Some(s) = ex.nonempty_text(&path, val) {

@@ -6,10 +6,10 @@
 //! Spans into a file are offset by its `base` (past the notebook's end, see [`TableFile`]).
 
 use super::block::{check_table, lot_spec};
-use super::table::{cell, parse_heading, CellRange, Table, UNIT_COLUMN};
+use super::table::{cell, column_twice, parse_heading, CellRange, Table, UNIT_COLUMN};
 use super::words::short;
 use super::{check_lot_part, Decimal, Item, Named, Notebook, Row, TableFile, TableSpec};
-use crate::diag::{line_col, Diagnostic, Span};
+use crate::diag::{Diagnostic, Span};
 use crate::quantity::Unit;
 
 /// The largest table file read, in bytes (as for a notebook).
@@ -86,6 +86,9 @@ pub fn read_tables(
         block.lot = lot_spec(spec.unit_of.clone(), &table, &mut d);
         block.columns = table.columns;
         block.rows = table.rows;
+        if table.heading.is_some() {
+            super::readout::apply(&block.readout, &mut block.columns, &mut block.rows, &mut d);
+        }
         check_lot_part(&nb.front.parts, block, &mut d);
     }
     (nb, d)
@@ -346,13 +349,7 @@ fn own_headings(
         let (sym, col) = parse_heading(text, f.at, d);
         if let Some(s) = &sym {
             if let Some((_, first)) = table.symbols.iter().find(|(x, _)| x == s) {
-                let (fl, fc) = line_col(text, first.start);
-                d.push(
-                    Diagnostic::new(at, format!("column `{s}` appears twice"))
-                        .expected("each column once")
-                        .found(format!("a second `{s}`"))
-                        .help(format!("first at line {fl}, column {fc}")),
-                );
+                d.push(column_twice(text, s, at, *first));
             } else {
                 table.symbols.push((s.clone(), at));
             }

@@ -43,6 +43,7 @@ pub(super) const INSTRUMENT_KEYS: &[&str] = &[
     "distribution",
     "k",
     "ranges",
+    "vertical",
 ];
 const PART_KEYS: &[&str] = &[
     "kind",
@@ -103,7 +104,7 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
         }
     }
     const FORMS: &str =
-        "`P% + N` (percent of reading plus N counts), `P%`, or a value with a unit such as `5 mV`";
+        "`P% + N` (percent of reading plus N counts), `P%`, `N ppm`, or a value with a unit such as `5 mV`";
     let err = |o: usize, l: usize, m: &str, f: &str| QuantityError {
         offset: o,
         len: l,
@@ -117,15 +118,33 @@ pub fn parse_accuracy(text: &str) -> Result<Accuracy, QuantityError> {
         expected: FORMS.to_string(),
         ..e
     };
-    if let Some(pct) = t.find('%') {
-        let head = &t[..pct + 1];
-        let q = parse_quantity(head).map_err(|e| inner(off, e))?;
+    // Parts per million (`50 ppm`) read as a percentage of a millionth.
+    let relative = match (t.find('%'), t.find("ppm")) {
+        (Some(p), _) => Some((p + 1, parse_quantity(&t[..p + 1]))),
+        (None, Some(p)) => Some((
+            p + 3,
+            parse_quantity(t[..p].trim_end()).and_then(|q| {
+                if q.unit == Unit::One {
+                    Ok(Quantity {
+                        value: q.value * 1e-6,
+                        unit: Unit::Percent,
+                    })
+                } else {
+                    Err(err(0, p, "expected a number before `ppm`", &t[..p]))
+                }
+            }),
+        )),
+        (None, None) => None,
+    };
+    if let Some((end, q)) = relative {
+        let head = &t[..end];
+        let q = q.map_err(|e| inner(off, e))?;
         if q.value < 0.0 {
             return Err(err(off, head.len(), "accuracy cannot be negative", head));
         }
-        let rest = &t[pct + 1..];
+        let rest = &t[end..];
         let r = rest.trim_start();
-        let r_off = off + pct + 1 + (rest.len() - r.len());
+        let r_off = off + end + (rest.len() - r.len());
         if r.is_empty() {
             return Ok(Accuracy::Relative {
                 fraction: q.value,
@@ -432,6 +451,7 @@ pub(super) fn instrument(
         distribution: Distribution::Rectangular,
         ranges: Vec::new(),
         range_accuracy: Vec::new(),
+        vertical: None,
         span,
     };
     let entries = ex.entries(&["instruments", name], v, Some(keys));
@@ -461,6 +481,12 @@ pub(super) fn instrument(
             "bandwidth" => {
                 let q = ex.quantity(&path, val, &[Unit::Hz], Some(Unit::Hz));
                 ins.bandwidth = ex.positive(&path, q, "bandwidth").map(|q| q.value);
+            }
+            "vertical" => {
+                let q = ex.quantity(&path, val, &[Unit::Percent], None);
+                ins.vertical = ex
+                    .positive(&path, q, "vertical gain accuracy")
+                    .map(|q| q.value);
             }
             "calibrated" => ins.calibrated = ex.date(&path, val),
             "due" => ins.due = ex.date(&path, val),

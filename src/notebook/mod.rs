@@ -19,6 +19,7 @@ mod block;
 mod file_table;
 mod front;
 pub mod prose;
+mod readout;
 pub mod register;
 mod table;
 mod values;
@@ -227,6 +228,8 @@ pub struct Instrument {
     pub ranges: Vec<Range>,
     /// `accuracy` given per range: (index into `ranges`, accuracy); `accuracy` is then None.
     pub range_accuracy: Vec<(usize, Accuracy)>,
+    /// A display's vertical gain accuracy (`vertical: 3%`), as a fraction.
+    pub vertical: Option<f64>,
     pub span: Span,
 }
 
@@ -368,7 +371,61 @@ pub struct Column {
     pub heading: String,
     /// The instrument range the heading names (`VR/V@2V`).
     pub range: Option<Range>,
+    /// Read in divisions or peak to peak (`VR/div`, `VRpp/V`); plain otherwise.
+    pub readout: Readout,
     pub span: Span,
+}
+
+/// How a voltage column was read when not as an RMS value in volts. The cells hold the RMS
+/// value in volts either way: the reading × [`Readout::factor`].
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Readout {
+    /// Read in divisions of a display (`VR/div`): the column's vertical scale (V/div) from the
+    /// block's `scale`; None until the scale is applied, and for a column read in volts.
+    pub per_div: Option<f64>,
+    /// Read in divisions; set from the heading, before the scale is known.
+    pub divisions: bool,
+    /// Read peak to peak (`VRpp/…`), converted to RMS as for a sine: Vpp / (2√2).
+    pub peak_to_peak: bool,
+}
+
+/// Peak-to-peak over RMS of a sine: V_pp = 2 V_p = 2√2 V_rms (common practice).
+pub const SINE_PP_PER_RMS: f64 = 2.0 * std::f64::consts::SQRT_2;
+
+impl Readout {
+    /// The RMS value in volts per unit of the reading as written (div or V).
+    pub fn factor(&self) -> f64 {
+        let pp = if self.peak_to_peak {
+            1.0 / SINE_PP_PER_RMS
+        } else {
+            1.0
+        };
+        self.per_div.unwrap_or(1.0) * pp
+    }
+}
+
+/// What a block header says about readings off a display and the source's frequency
+/// (`display`, `scale`, `generator`).
+#[derive(Debug, Clone, Default)]
+pub struct BlockReadout {
+    /// The display the `/div` columns were read on (`display`; else the block's `phase`).
+    pub display: Option<Named>,
+    /// The generator whose frequency accuracy applies to `f` when no `counter` is named.
+    pub generator: Option<Named>,
+    /// `scale`: each column's vertical scale.
+    pub scales: Vec<Scale>,
+}
+
+/// One entry of `scale`: a voltage column and its vertical scale.
+#[derive(Debug, Clone)]
+pub struct Scale {
+    /// The column's symbol (`VR` for a key `VR` or `VRpp`).
+    pub symbol: String,
+    /// Volts per division (NaN for a value refused, and reported, where the header is read).
+    pub per_div: f64,
+    /// The key and the value as written.
+    pub key: Span,
+    pub value: Span,
 }
 
 #[derive(Debug, Clone)]
@@ -410,6 +467,8 @@ pub struct ReadingsBlock {
     pub lot: Option<LotSpec>,
     /// The results of a `network: model` block, each expression compiled (empty otherwise).
     pub model: Vec<crate::networks::model::ModelResult>,
+    /// `display`, `scale` and `generator` (empty when none is given).
+    pub readout: BlockReadout,
 }
 
 /// What makes a block a lot (FORMAT.md 1.1, "Lots").

@@ -2,7 +2,7 @@
 
 use super::front::range_value;
 use super::words::{list, unknown};
-use super::{line_text, symbol_unit, Cell, Column, Line, Named, Range, Row, SYMBOLS};
+use super::{line_text, symbol_unit, Cell, Column, Line, Named, Range, Readout, Row, SYMBOLS};
 use crate::diag::{line_col, Diagnostic, Span};
 use crate::quantity::{self, dimension_name, parse_in_unit, parse_quantity, parse_unit, Unit};
 
@@ -162,12 +162,20 @@ pub(super) fn parse_heading(
         ((0, text.len()), None)
     };
     let sym_tok = trim_tok(src, tok.start + sym_rel.0, tok.start + sym_rel.1);
-    let sym = &src[sym_tok.start..sym_tok.end];
+    let written = &src[sym_tok.start..sym_tok.end];
     let sym_span = Span::new(sym_tok.start, sym_tok.end);
+    // `VRpp`: a voltage read peak to peak.
+    let (sym, peak_to_peak) = match written.strip_suffix("pp") {
+        Some(b) if VOLTAGE_SYMBOLS.contains(&b) => (b, true),
+        _ => (written, false),
+    };
     let known = SYMBOLS.contains(&sym);
     if !known {
         let at = if sym.is_empty() { span } else { sym_span };
-        let expected = format!("one of {} (case-sensitive)", list(SYMBOLS));
+        let expected = format!(
+            "one of {} (case-sensitive), a voltage with `pp` for peak to peak (`VRpp`)",
+            list(SYMBOLS)
+        );
         d.push(unknown(at, "column", sym, SYMBOLS, expected).found(format!("`{text}`")));
     }
     let symbol = known.then(|| sym.to_string());
@@ -215,7 +223,20 @@ pub(super) fn parse_heading(
     else {
         return (symbol, None);
     };
-    if unit != want {
+    // A voltage read off a display in divisions (`VR/div`): volts once the scale is applied.
+    let divisions = want == Unit::V && unit == Unit::Div;
+    if divisions && range_tok.is_some() {
+        d.push(
+            Diagnostic::new(
+                full_span,
+                format!("column `{symbol_s}` read in divisions names no meter range"),
+            )
+            .expected(format!("`{written}/div` without `@`"))
+            .found(format!("`{full}`")),
+        );
+        return (symbol, None);
+    }
+    if unit != want && !divisions {
         d.push(
             Diagnostic::new(uspan, format!("column `{symbol_s}` cannot be in `{utext}`"))
                 .expected(format!("{} for `{symbol_s}`", dimension_name(want)))
@@ -238,11 +259,47 @@ pub(super) fn parse_heading(
                 unit,
                 heading: full.to_string(),
                 range: range.and_then(Result::ok),
+                readout: Readout {
+                    per_div: None,
+                    divisions,
+                    peak_to_peak,
+                },
                 span: full_span,
             },
             factor,
         )),
     )
+}
+
+/// Voltage symbols, which may be read peak to peak (`VRpp`) or in divisions (`VR/div`).
+pub(super) const VOLTAGE_SYMBOLS: &[&str] = &["Vs", "VR", "VC", "VL", "V", "VT"];
+
+/// A column symbol given twice in one table (`at` the second heading, `first` the first):
+/// said as a mix when one heading reads it peak to peak and the other as RMS.
+pub(super) fn column_twice(src: &str, s: &str, at: Span, first: Span) -> Diagnostic {
+    let (fl, fc) = line_col(src, first.start);
+    let heading = |sp: Span| src.get(sp.start..sp.end).unwrap_or("");
+    let pp = |h: &str| {
+        h.split(['/', '(', '@'])
+            .next()
+            .is_some_and(|x| x.trim().ends_with("pp"))
+    };
+    let (one, two) = (heading(first), heading(at));
+    let dg = if pp(one) != pp(two) {
+        Diagnostic::new(
+            at,
+            format!("column `{s}` is read both as RMS and peak to peak in one block"),
+        )
+        .expected(format!(
+            "`{s}` once: `{s}/…` for an RMS reading or `{s}pp/…` for a peak-to-peak one"
+        ))
+        .found(format!("`{one}` and `{two}`"))
+    } else {
+        Diagnostic::new(at, format!("column `{s}` appears twice"))
+            .expected("each column once")
+            .found(format!("a second `{s}`"))
+    };
+    dg.help(format!("first at line {fl}, column {fc}"))
 }
 
 /// The range a heading names after `@` (token `rt`), in the column's unit `want`.
@@ -500,16 +557,8 @@ fn heading_row(
         let (sym, col) = parse_heading(src, *tok, d);
         if let Some(s) = &sym {
             if let Some((_, first)) = table.symbols.iter().find(|(x, _)| x == s) {
-                let (fl, fc) = line_col(src, first.start);
-                d.push(
-                    Diagnostic::new(
-                        Span::new(tok.start, tok.end),
-                        format!("column `{s}` appears twice"),
-                    )
-                    .expected("each column once")
-                    .found(format!("a second `{s}`"))
-                    .help(format!("first at line {fl}, column {fc}")),
-                );
+                let at = Span::new(tok.start, tok.end);
+                d.push(column_twice(src, s, at, *first));
             } else {
                 table
                     .symbols

@@ -1147,7 +1147,10 @@ fn table_json(rb: &ReadingsBlock) -> Value {
         .columns
         .iter()
         .map(|c| {
-            let (base, sub, italic) = symbol_parts(&c.symbol);
+            let (base, mut sub, italic) = symbol_parts(&c.symbol);
+            if c.readout.peak_to_peak {
+                sub.push_str(if sub.is_empty() { "pp" } else { ",pp" });
+            }
             json!({ "base": base, "sub": sub, "italic": italic, "unit": heading_unit(c), "heading": c.heading })
         })
         .collect();

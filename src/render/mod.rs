@@ -335,6 +335,7 @@ pub(crate) mod tests {
             unit,
             heading: h.into(),
             range: None,
+            readout: Default::default(),
             span: s,
         };
         let block = ReadingsBlock {
@@ -380,6 +381,7 @@ pub(crate) mod tests {
             body: String::new(),
             lot: None,
             model: Vec::new(),
+            readout: Default::default(),
         };
         let mut items = Vec::new();
         items.push(Item::Prose {
@@ -415,6 +417,7 @@ pub(crate) mod tests {
                 distribution: Distribution::Rectangular,
                 ranges: Vec::new(),
                 range_accuracy: Vec::new(),
+                vertical: None,
                 span: s,
             },
         );
