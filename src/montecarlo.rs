@@ -29,10 +29,49 @@ const GROUP: usize = 4;
 
 /// A measurement model evaluated in place: `eval(x, y)` writes its `outputs` values into `y`
 /// (no allocation per trial). A trial with a non-finite output is dropped.
+///
+/// `columns`, when given, is the same model over a chunk of trials at once: it writes output
+/// `o` of trial `t` to `y[o·CHUNK + t]`, for `t < cols.len`, and may use `scratch` (kept
+/// from chunk to chunk, so sized once) for its intermediate columns. It must give the same values as
+/// `eval` (the Monte Carlo then uses it alone); it saves the per-trial call and lets the
+/// arithmetic run over arrays.
 #[derive(Clone, Copy)]
 pub struct InPlace<'a> {
     pub outputs: usize,
     pub eval: &'a (dyn Fn(&[f64], &mut [f64]) + Sync),
+    pub columns: Option<&'a ColumnModel<'a>>,
+}
+
+/// A model over a chunk of trials; see [`InPlace::columns`].
+pub type ColumnModel<'a> = dyn Fn(&Columns, &mut [f64], &mut Vec<f64>) + Sync + 'a;
+
+/// A chunk of trials, input by input: each model input is either drawn (a column of `len`
+/// values) or held at its estimate.
+pub struct Columns<'a> {
+    /// Drawn input `d` at `cols[d·CHUNK..d·CHUNK + len]`.
+    cols: &'a [f64],
+    /// Model input → its drawn column (None: held at its estimate).
+    drawn: &'a [Option<usize>],
+    /// Every model input's estimate.
+    x: &'a [f64],
+    /// Trials in the chunk (at most [`CHUNK`]).
+    pub len: usize,
+}
+
+/// One model input over a chunk: held fixed, or its drawn values.
+pub enum Col<'a> {
+    Fixed(f64),
+    Drawn(&'a [f64]),
+}
+
+impl<'a> Columns<'a> {
+    /// Model input `i` (fixed at NaN when there is no such input, as `eval` would read it).
+    pub fn col(&self, i: usize) -> Col<'a> {
+        match self.drawn.get(i).copied().flatten() {
+            Some(d) => Col::Drawn(&self.cols[d * CHUNK..d * CHUNK + self.len]),
+            None => Col::Fixed(self.x.get(i).copied().unwrap_or(f64::NAN)),
+        }
+    }
 }
 
 /// Tuning of the adaptive procedure.
@@ -181,6 +220,7 @@ pub fn monte_carlo_with(
     let model = InPlace {
         outputs: nout,
         eval: &eval,
+        columns: None,
     };
     run_adaptive(&sampler, model, p, seed, trials, opts)
 }
@@ -267,7 +307,13 @@ fn run_batches(
             return (stats, tails);
         }
         let hints: Vec<Option<Hint>> = (0..f.outputs)
-            .map(|o| hint_of(&stats, o).filter(|_| !keep_all))
+            .map(|o| {
+                if keep_all {
+                    Some(KEEP_ALL)
+                } else {
+                    hint_of(&stats, o)
+                }
+            })
             .collect();
         let group: Vec<Vec<(BatchStat, Tails)>> = (start..end)
             .into_par_iter()
@@ -346,8 +392,9 @@ struct Hint {
     high: f64,
 }
 
-/// The hint for output `o`: the mean of the earlier batches' ends, four standard deviations
-/// of them outwards (none before three batches).
+/// The hint for output `o`: the mean of the earlier batches' ends, moved four standard
+/// deviations of them towards the centre, so that the next batch's ends lie among the
+/// candidates (none before three batches).
 fn hint_of(stats: &[Vec<BatchStat>], o: usize) -> Option<Hint> {
     let h = stats.len();
     if h < 3 {
@@ -387,29 +434,21 @@ fn sum4(v: &[f64], f: impl Fn(f64) -> f64) -> f64 {
 }
 
 /// The summary of one batch: mean and squared deviations, and the interval ends selected
-/// among the candidates of `hint` (or among all values when there is none or it misses); and
-/// the batch's tails beyond the hint.
+/// among the candidates of `hint` (with none, of the batch's own cut, [`own_cut`]; among all
+/// values when the candidates miss an end); and the batch's tails beyond the cut.
 fn batch_stat(v: &[f64], p: f64, hint: Option<Hint>) -> (BatchStat, Tails) {
     let m = v.len();
+    let hint = hint.or_else(|| own_cut(v, p));
     let cut = hint.unwrap_or(Hint {
         low: f64::INFINITY,
         high: f64::NEG_INFINITY,
     });
-    let (mut low, mut high) = (Vec::new(), Vec::new());
-    if hint.is_some() {
-        for &x in v {
-            if x <= cut.low {
-                low.push(x);
-            }
-            if x >= cut.high {
-                high.push(x);
-            }
-        }
+    let (low, high) = if hint.is_some() {
+        tails_beyond(v, cut)
     } else {
-        low = v.to_vec();
-        high = v.to_vec();
-    }
-    let tails = Tails { cut, low, high };
+        (v.to_vec(), v.to_vec())
+    };
+    let mut tails = Tails { cut, low, high };
     if m < 2 {
         let x = v.first().copied().unwrap_or(0.0);
         let stat = BatchStat {
@@ -424,12 +463,13 @@ fn batch_stat(v: &[f64], p: f64, hint: Option<Hint>) -> (BatchStat, Tails) {
     let mean = sum4(v, |x| x) / m as f64;
     let m2 = sum4(v, |x| (x - mean) * (x - mean));
     let (lo_i, hi_i) = interval_ranks(m, p);
-    // `tails.low` are the |low| smallest values, `tails.high` the |high| largest.
+    // `tails.low` are the |low| smallest values, `tails.high` the |high| largest. Selecting
+    // reorders them, which the pooling does not mind.
     let first_high = m - tails.high.len();
     let (low, high) = if lo_i < tails.low.len() && hi_i >= first_high {
         (
-            nth(&mut tails.low.clone(), lo_i),
-            nth(&mut tails.high.clone(), hi_i - first_high),
+            nth(&mut tails.low, lo_i),
+            nth(&mut tails.high, hi_i - first_high),
         )
     } else {
         let s = summarise(&mut v.to_vec(), p);
@@ -444,6 +484,54 @@ fn batch_stat(v: &[f64], p: f64, hint: Option<Hint>) -> (BatchStat, Tails) {
     };
     (stat, tails)
 }
+
+thread_local! {
+    /// Room for one batch's tails, reused batch to batch.
+    static SCRATCH: std::cell::RefCell<Vec<f64>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// The values of `v` at or below `cut.low` and those at or above `cut.high`, in order. Every
+/// value is written and the write position moves on only for a value kept: no branch on the
+/// values, which fall beyond the cuts at random.
+fn tails_beyond(v: &[f64], cut: Hint) -> (Vec<f64>, Vec<f64>) {
+    SCRATCH.with_borrow_mut(|w| {
+        if w.len() < 2 * v.len() + 2 {
+            w.resize(2 * v.len() + 2, 0.0);
+        }
+        let (lo, hi) = w.split_at_mut(v.len() + 1);
+        let (mut a, mut b) = (0, 0);
+        for &x in v {
+            lo[a] = x;
+            hi[b] = x;
+            a += (x <= cut.low) as usize;
+            b += (x >= cut.high) as usize;
+        }
+        (lo[..a].to_vec(), hi[..b].to_vec())
+    })
+}
+
+/// A batch's own cut when no earlier batch gives a hint: its values at four times the
+/// interval ranks from either end (the outer 10 % each side for p = 0.95), so that its tails
+/// keep a fraction of the batch rather than all of it. None for fewer than 2 values.
+fn own_cut(v: &[f64], p: f64) -> Option<Hint> {
+    let m = v.len();
+    if m < 2 {
+        return None;
+    }
+    let (lo_i, hi_i) = interval_ranks(m, p);
+    let k = (4 * (lo_i + 1)).min(m - 1);
+    let j = (m - 1).saturating_sub(4 * (m - hi_i));
+    let mut w = v.to_vec();
+    let low = nth(&mut w, k);
+    let high = nth(&mut w, j);
+    Some(Hint { low, high })
+}
+
+/// A cut that keeps every value (the run that keeps all, when the tails missed).
+const KEEP_ALL: Hint = Hint {
+    low: f64::INFINITY,
+    high: f64::NEG_INFINITY,
+};
 
 /// The `k`-th smallest value (0-based) of `v`, which must be longer than `k`.
 fn nth(v: &mut [f64], k: usize) -> f64 {
@@ -578,15 +666,34 @@ fn summarise(v: &mut [f64], p: f64) -> McInterval {
 
 /// The generator of batch `h`: xoshiro256++ (Blackman and Vigna 2018), seeded from stream `h`
 /// of a ChaCha8 generator keyed by `seed`, so that batches draw from unrelated sequences.
-fn batch_rng(seed: u64, h: usize) -> Xoshiro256PlusPlus {
+fn batch_rng(seed: u64, h: usize) -> Lanes {
     let mut seeder = ChaCha8Rng::seed_from_u64(seed);
     seeder.set_stream(h as u64);
-    Xoshiro256PlusPlus::from_rng(&mut seeder)
+    std::array::from_fn(|_| Xoshiro256PlusPlus::from_rng(&mut seeder))
+}
+
+/// Generators drawn from in turn (trial t from lane t mod [`LANES`]): their state updates are
+/// independent, so the processor overlaps them.
+const LANES: usize = 4;
+type Lanes = [Xoshiro256PlusPlus; LANES];
+
+/// Fills `col` with `draw` of each lane in turn.
+#[inline(always)]
+fn draw_lanes(col: &mut [f64], rngs: &mut Lanes, draw: impl Fn(&mut Xoshiro256PlusPlus) -> f64) {
+    let mut quads = col.chunks_exact_mut(LANES);
+    for q in &mut quads {
+        for (v, r) in q.iter_mut().zip(rngs.iter_mut()) {
+            *v = draw(r);
+        }
+    }
+    for (v, r) in quads.into_remainder().iter_mut().zip(rngs.iter_mut()) {
+        *v = draw(r);
+    }
 }
 
 /// Trials drawn together, input by input, before the model runs on each (a size that keeps
 /// the columns in cache).
-const CHUNK: usize = 1024;
+pub const CHUNK: usize = 1024;
 
 thread_local! {
     /// The values of the batch a thread is drawing, per output.
@@ -596,30 +703,50 @@ thread_local! {
 /// One batch of `m` trials from stream `h` into `out`: values per output, non-finite trials
 /// dropped.
 fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize, out: &mut Vec<Vec<f64>>) {
-    let mut rng = batch_rng(seed, h);
+    let mut rngs = batch_rng(seed, h);
     out.resize_with(f.outputs, Vec::new);
     for o in out.iter_mut() {
         o.clear();
         o.reserve(m);
     }
     let mut x = s.start();
-    let mut y = vec![0.0; f.outputs];
     let n = s.law.len();
-    let dest: Vec<usize> = (0..n).map(|i| s.at(i)).collect();
+    // Drawn inputs only: one held at its estimate stays as `x` has it.
+    let dest: Vec<(usize, usize)> = (0..n)
+        .filter(|&i| !matches!(s.law[i], Law::Fixed))
+        .map(|i| (i, s.at(i)))
+        .collect();
     let mut cols = vec![0.0; n * CHUNK];
     let mut z = vec![0.0; s.group.len() * CHUNK];
+    let mut y = vec![0.0; f.outputs * if f.columns.is_some() { CHUNK } else { 1 }];
+    let mut drawn = vec![None; x.len()];
+    let mut scratch = Vec::new();
+    for &(i, d) in &dest {
+        drawn[d] = Some(i);
+    }
     let mut done = 0;
     while done < m {
         let c = CHUNK.min(m - done);
-        s.fill(&mut rng, &mut cols, &mut z, c);
-        for t in 0..c {
-            for (i, &d) in dest.iter().enumerate() {
-                x[d] = cols[i * CHUNK + t];
-            }
-            (f.eval)(&x, &mut y);
-            if y.iter().all(|v| v.is_finite()) {
-                for (o, &v) in out.iter_mut().zip(&y) {
-                    o.push(v);
+        s.fill(&mut rngs, &mut cols, &mut z, c);
+        if let Some(model) = f.columns {
+            let view = Columns {
+                cols: &cols,
+                drawn: &drawn,
+                x: &x,
+                len: c,
+            };
+            model(&view, &mut y, &mut scratch);
+            keep_finite(&y, c, out);
+        } else {
+            for t in 0..c {
+                for &(i, d) in &dest {
+                    x[d] = cols[i * CHUNK + t];
+                }
+                (f.eval)(&x, &mut y);
+                if y.iter().all(|v| v.is_finite()) {
+                    for (o, &v) in out.iter_mut().zip(&y) {
+                        o.push(v);
+                    }
                 }
             }
         }
@@ -627,7 +754,30 @@ fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize, out: &mut V
     }
 }
 
+/// Appends the first `c` trials of the chunk `y` (output `o` at `y[o·CHUNK..]`) to `out`,
+/// dropping a trial with any non-finite output.
+fn keep_finite(y: &[f64], c: usize, out: &mut [Vec<f64>]) {
+    let outputs = out.len();
+    let finite = |t: usize| (0..outputs).all(|o| y[o * CHUNK + t].is_finite());
+    let all_finite = y
+        .chunks(CHUNK)
+        .all(|o| o[..c].iter().fold(true, |ok, v| ok & v.is_finite()));
+    if all_finite {
+        for (o, v) in out.iter_mut().enumerate() {
+            v.extend_from_slice(&y[o * CHUNK..o * CHUNK + c]);
+        }
+        return;
+    }
+    for t in (0..c).filter(|&t| finite(t)) {
+        for (o, v) in out.iter_mut().enumerate() {
+            v.push(y[o * CHUNK + t]);
+        }
+    }
+}
+
 enum Law {
+    /// u = 0: held at its estimate, not drawn.
+    Fixed,
     Normal,
     Rect,
     T(StudentT<f64>),
@@ -652,7 +802,9 @@ struct Sampler {
 impl Sampler {
     fn new(inputs: &[Input], corr: &[(usize, usize, f64)]) -> Sampler {
         let n = inputs.len();
-        let ok = |i: usize| i < n;
+        // An input with u = 0 is held at its estimate: drawing it would change nothing.
+        let fixed = |i: usize| !(inputs[i].u.is_finite() && inputs[i].u != 0.0);
+        let ok = |i: usize| i < n && !fixed(i);
         let mut in_group = vec![false; n];
         for &(a, b, r) in corr {
             if ok(a) && ok(b) && a != b && r != 0.0 && r.is_finite() {
@@ -695,6 +847,9 @@ impl Sampler {
             .map(|(i, inp)| {
                 if in_group[i] {
                     return Law::Joint;
+                }
+                if fixed(i) {
+                    return Law::Fixed;
                 }
                 match inp.dist {
                     Dist::Normal => Law::Normal,
@@ -741,37 +896,29 @@ impl Sampler {
 
     /// Draws `c` trials into `cols` (input `i` at `cols[i·CHUNK..]`), input by input; `z`
     /// holds the standard normals of the jointly drawn inputs, trial by trial.
-    fn fill(&self, rng: &mut Xoshiro256PlusPlus, cols: &mut [f64], z: &mut [f64], c: usize) {
+    fn fill(&self, rngs: &mut Lanes, cols: &mut [f64], z: &mut [f64], c: usize) {
         for (i, law) in self.law.iter().enumerate() {
             let (x0, u) = (self.x[i], self.u[i]);
             let col = &mut cols[i * CHUNK..i * CHUNK + c];
             match law {
                 Law::Normal => {
-                    for v in col {
-                        *v = x0 + u * rng.sample::<f64, _>(StandardNormal);
-                    }
+                    draw_lanes(col, rngs, |r| x0 + u * r.sample::<f64, _>(StandardNormal));
                 }
                 Law::Rect => {
                     let a = u * 3f64.sqrt();
-                    for v in col {
-                        *v = x0 + a * (2.0 * rng.random::<f64>() - 1.0);
-                    }
+                    draw_lanes(col, rngs, |r| x0 + a * (2.0 * r.random::<f64>() - 1.0));
                 }
                 Law::T(t) => {
-                    for v in col {
-                        *v = x0 + u * t.sample(rng);
-                    }
+                    draw_lanes(col, rngs, |r| x0 + u * t.sample(r));
                 }
-                Law::Joint => {}
+                Law::Joint | Law::Fixed => {}
             }
         }
         let g = self.group.len();
         if g == 0 {
             return;
         }
-        for zi in z[..g * c].iter_mut() {
-            *zi = rng.sample(StandardNormal);
-        }
+        draw_lanes(&mut z[..g * c], rngs, |r| r.sample(StandardNormal));
         for t in 0..c {
             let zt = &z[t * g..t * g + g];
             for (a, &k) in self.group.iter().enumerate() {
@@ -991,6 +1138,58 @@ mod tests {
         let f = |x: &[f64]| vec![x[0] - x[1]];
         let mc = monte_carlo(&xs, &[(0, 1, 0.8)], &f, 0.95, 3, Some(400_000));
         assert!((mc[0].u - 0.4f64.sqrt()).abs() < 0.005, "{:?}", mc[0]);
+    }
+
+    #[test]
+    fn columns_give_what_the_per_trial_model_gives() {
+        // y = x0 · x1 + x2, with x3 (u = 0) held at its value: the chunked model and the
+        // per-trial one give the same intervals to the last bit, and x3 is not drawn.
+        let xs = vec![
+            inp("A", 2.0, 0.1, Dist::Rectangular, None),
+            inp("B", 3.0, 0.2, Dist::Normal, None),
+            inp("C", 0.5, 0.05, Dist::StudentT, Some(4.0)),
+            inp("D", 7.0, 0.0, Dist::Rectangular, None),
+        ];
+        let eval = |x: &[f64], y: &mut [f64]| {
+            y[0] = x[0] * x[1] + x[2];
+            y[1] = x[3];
+        };
+        let cols = |c: &Columns, y: &mut [f64], _: &mut Vec<f64>| {
+            let col = |i: usize, t: usize| match c.col(i) {
+                Col::Drawn(v) => v[t],
+                Col::Fixed(v) => v,
+            };
+            for t in 0..c.len {
+                y[t] = col(0, t) * col(1, t) + col(2, t);
+                y[CHUNK + t] = col(3, t);
+            }
+            assert!(matches!(c.col(3), Col::Fixed(v) if v == 7.0));
+        };
+        let run = |columns: Option<&ColumnModel>| {
+            let f = InPlace {
+                outputs: 2,
+                eval: &eval,
+                columns,
+            };
+            monte_carlo_on(&xs, &[], &[0, 1, 2, 3], f, 0.95, 5, Some(25_000))
+        };
+        let (a, b) = (run(None), run(Some(&cols)));
+        assert_eq!(a, b);
+        assert_eq!(a[0].trials, 25_000);
+        assert_eq!((a[1].low, a[1].high, a[1].u), (7.0, 7.0, 0.0));
+    }
+
+    #[test]
+    fn own_cuts_keep_a_tenth_and_the_ends() {
+        // Without a hint a batch keeps its outer tenths, not all of it, and its ends are the
+        // ends of the whole batch (§7.7.2 ranks).
+        let v: Vec<f64> = (0..10_000).map(|i| ((i * 7919) % 10_000) as f64).collect();
+        let (s, t) = batch_stat(&v, 0.95, None);
+        let one = summarise(&mut v.clone(), 0.95);
+        assert_eq!((s.low, s.high), (one.low, one.high));
+        // Ranks 249 and 9 749 (0-based); cuts at ranks 4·250 = 1 000 and 9 999 − 4·251.
+        assert_eq!((s.low, s.high), (249.0, 9_749.0));
+        assert_eq!((t.low.len(), t.high.len()), (1_001, 1_005));
     }
 
     #[test]

@@ -37,6 +37,7 @@
 
 use super::{Context, Flag};
 use crate::diag::{Diagnostic, Span};
+use crate::montecarlo::{Col, Columns, CHUNK};
 use crate::notebook::{
     Accuracy, Column, Distribution, Instrument, Named, PartKind, ReadingsBlock, Tolerance,
 };
@@ -132,6 +133,26 @@ impl Value {
             v += at(o);
         }
         v
+    }
+
+    /// [`Value::eval`] over a chunk of Monte Carlo trials, into `out[..c.len]`: the same
+    /// operations in the same order, so the same values.
+    pub fn eval_cols(&self, c: &Columns, out: &mut [f64]) {
+        let out = &mut out[..c.len];
+        match self.mean.map(|i| c.col(i)) {
+            Some(Col::Drawn(v)) => out.copy_from_slice(v),
+            Some(Col::Fixed(v)) => out.fill(v),
+            None => out.fill(self.base),
+        }
+        let terms = self.gain.iter().map(|&g| (g, true));
+        for (i, gain) in terms.chain(self.offsets.iter().map(|&o| (o, false))) {
+            match (c.col(i), gain) {
+                (Col::Drawn(v), true) => out.iter_mut().zip(v).for_each(|(o, g)| *o *= g),
+                (Col::Drawn(v), false) => out.iter_mut().zip(v).for_each(|(o, a)| *o += a),
+                (Col::Fixed(g), true) => out.iter_mut().for_each(|o| *o *= g),
+                (Col::Fixed(a), false) => out.iter_mut().for_each(|o| *o += a),
+            }
+        }
     }
 }
 
@@ -1099,6 +1120,55 @@ impl BlockInputs {
                 Some((level, vs)) => v * level / vs.map_or(f64::NAN, |s| s.eval(x)),
                 None => v,
             }
+        }
+    }
+
+    /// [`BlockInputs::voltage_of`] over a chunk of Monte Carlo trials, into `out[..c.len]`.
+    pub fn voltage_cols(
+        &self,
+        symbol: &str,
+        g: usize,
+    ) -> impl Fn(&Columns, &mut [f64]) + Sync + '_ {
+        let value = self.values.get(symbol).and_then(|v| v.get(g));
+        let norm = match (self.source, self.normalise.get(g)) {
+            (Some(level), Some(true)) if VOLTAGES.contains(&symbol) => {
+                Some((level, self.values.get("Vs").and_then(|v| v.get(g))))
+            }
+            _ => None,
+        };
+        move |c: &Columns, out: &mut [f64]| {
+            match value {
+                Some(v) => v.eval_cols(c, out),
+                None => out[..c.len].fill(f64::NAN),
+            }
+            if let Some((level, vs)) = norm {
+                let mut s = [0.0; CHUNK];
+                match vs {
+                    Some(vs) => vs.eval_cols(c, &mut s),
+                    None => s.fill(f64::NAN),
+                }
+                for (o, s) in out[..c.len].iter_mut().zip(&s) {
+                    *o = *o * level / s;
+                }
+            }
+        }
+    }
+
+    /// [`BlockInputs::f`] over a chunk of Monte Carlo trials, into `out[..c.len]`.
+    pub fn f_cols(&self, g: usize, c: &Columns, out: &mut [f64]) {
+        match self.freq.get(g).and_then(|v| v.as_ref()) {
+            Some(v) => v.eval_cols(c, out),
+            None => out[..c.len].fill(f64::NAN),
+        }
+    }
+
+    /// [`BlockInputs::r`] over a chunk of Monte Carlo trials, into `out[..c.len]`.
+    pub fn r_cols(&self, c: &Columns, out: &mut [f64]) {
+        let out = &mut out[..c.len];
+        match self.resistor.as_ref().map(|(i, _)| c.col(*i)) {
+            Some(Col::Drawn(v)) => out.copy_from_slice(v),
+            Some(Col::Fixed(v)) => out.fill(v),
+            None => out.fill(f64::NAN),
         }
     }
 

@@ -19,7 +19,7 @@ use super::{
     PlotData, PlotKind,
 };
 use crate::diag::Diagnostic;
-use crate::montecarlo::{attach_validation, monte_carlo_on};
+use crate::montecarlo::{attach_validation, monte_carlo_on, Columns, CHUNK};
 use crate::notebook::{PartKind, ReadingsBlock};
 use crate::print::{hz, plain};
 use crate::quantity::Unit;
@@ -62,6 +62,20 @@ pub fn three_voltmeter(vs: f64, vr: f64, vl: f64, r: f64, f: f64) -> [f64; 5] {
     let z = vl / i;
     let (rac, xl) = (z * c, z * s);
     [i, rac, xl, xl / (2.0 * PI * f), xl / rac]
+}
+
+/// [`three_voltmeter`] over the first `n` trials of Monte Carlo columns (each [`CHUNK`]
+/// long): output k of trial t to `y[k·CHUNK + t]`, by the same operations.
+fn three_voltmeter_cols(x: [&mut [f64]; 5], y: &mut [f64], n: usize) {
+    let [vs, vr, vl, r, f] = x;
+    let n = n.min(CHUNK);
+    let (vs, vr, vl, r, f) = (&vs[..n], &vr[..n], &vl[..n], &r[..n], &f[..n]);
+    let mut y = y.chunks_exact_mut(CHUNK);
+    let mut next = || y.next().expect("five output columns");
+    let (i, rac, xl, l, q) = (next(), next(), next(), next(), next());
+    for t in 0..n {
+        [i[t], rac[t], xl[t], l[t], q[t]] = three_voltmeter(vs[t], vr[t], vl[t], r[t], f[t]);
+    }
 }
 
 /// cos θ of the coil from the law of cosines: Vs² = VR² + VL² + 2·VR·VL·cos θ.
@@ -716,16 +730,40 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
                     *o = y[k];
                 }
             };
+            let (vs_cols, vr_cols, vl_cols) = (
+                bi.voltage_cols("Vs", g),
+                bi.voltage_cols("VR", g),
+                bi.voltage_cols("VL", g),
+            );
+            let columns = |c: &Columns, out: &mut [f64], scratch: &mut Vec<f64>| {
+                scratch.resize(10 * CHUNK, 0.0);
+                let (x, y) = scratch.split_at_mut(5 * CHUNK);
+                let mut x = x.chunks_exact_mut(CHUNK);
+                let mut col = || x.next().expect("five input columns");
+                let (vs, vr, vl, r, f) = (col(), col(), col(), col(), col());
+                vs_cols(c, vs);
+                vr_cols(c, vr);
+                vl_cols(c, vl);
+                bi.r_cols(c, r);
+                bi.f_cols(g, c, f);
+                three_voltmeter_cols([vs, vr, vl, r, f], y, c.len);
+                for (o, &k) in pick.iter().enumerate() {
+                    let from = &y[k * CHUNK..k * CHUNK + c.len];
+                    out[o * CHUNK..o * CHUNK + c.len].copy_from_slice(from);
+                }
+            };
             let mc_model = crate::montecarlo::InPlace {
                 outputs: pick.len(),
                 eval: &eval,
+                columns: Some(&columns),
             };
             let outs: Vec<usize> = layout
                 .iter()
                 .enumerate()
-                .filter(|(_, o)| matches!(o, Out::Row(gg, _) if *gg == g))
+                .filter(|(_, o)| matches!(o, Out::Row(gg, n) if *gg == g && names.contains(n)))
                 .map(|(k, _)| k)
                 .collect();
+            // The inputs the Monte Carlo outputs read (not the DC method's winding resistance).
             let used = p.inputs_of(&outs);
             let mc = monte_carlo_on(
                 inputs,
@@ -922,6 +960,35 @@ fn plot_of(rows: &[NamedResult]) -> PlotData {
 
 #[cfg(test)]
 mod tests {
+    /// The chunked three-voltmeter model gives what the per-trial one gives, bit for bit, on
+    /// a coil at 80° and on a triangle that does not close (NaN outputs, dropped later).
+    #[test]
+    fn three_voltmeter_over_columns_is_the_same_arithmetic() {
+        use super::{three_voltmeter, three_voltmeter_cols, CHUNK};
+        let n = 37;
+        let mut x = vec![[0.0; CHUNK]; 5];
+        for t in 0..n {
+            let d = t as f64 * 1e-3;
+            x[0][t] = 1.5 + d;
+            x[1][t] = 1.2 - d;
+            x[2][t] = if t == 5 { 0.01 } else { 0.77 + d };
+            x[3][t] = 22.0;
+            x[4][t] = 1000.0;
+        }
+        let want: Vec<[f64; 5]> = (0..n)
+            .map(|t| three_voltmeter(x[0][t], x[1][t], x[2][t], x[3][t], x[4][t]))
+            .collect();
+        let mut y = vec![0.0; 5 * CHUNK];
+        let [a, b, c, d, e] = &mut x[..] else { unreachable!() };
+        three_voltmeter_cols([a, b, c, d, e], &mut y, n);
+        for (t, w) in want.iter().enumerate() {
+            for k in 0..5 {
+                assert_eq!(y[k * CHUNK + t].to_bits(), w[k].to_bits(), "trial {t} output {k}");
+            }
+        }
+        assert!(want[5][2].is_nan(), "the triangle at trial 5 does not close: no XL");
+    }
+
     /// Dropped trials (JCGM 101 §7: the model is undefined for part of the input law) are
     /// counted and make the interval conditional; above 1 % the flag is a warning.
     #[test]
