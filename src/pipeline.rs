@@ -843,6 +843,12 @@ pub fn render_file_with(path: &Path, lab: Option<&Lab>) -> Result<(Record, Vec<u
 
 fn render_source(src: &Source, lab: Option<&Lab>) -> Result<(Record, Vec<u8>), Failure> {
     let path = src.path.as_path();
+    // The first record of a process: fonts and the typst library load on a thread of their
+    // own while the notebook is reduced (its Monte Carlo is the longest part).
+    static WARM: std::sync::Once = std::sync::Once::new();
+    WARM.call_once(|| {
+        std::thread::spawn(render::world::warm_up);
+    });
     let rec = analyse_file(src, lab)?;
     let too_long = prose_limits(&rec.notebook.items);
     if !too_long.is_empty() {

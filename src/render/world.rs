@@ -33,6 +33,13 @@ pub fn embedded_font(family: &str) -> Option<Font> {
 
 static LIBRARY: LazyLock<LazyHash<Library>> = LazyLock::new(|| LazyHash::new(Library::default()));
 
+/// Builds the fonts and the standard library now (they are otherwise built by the first
+/// render), so that a caller can do it on a thread of its own while it reduces a notebook.
+pub fn warm_up() {
+    LazyLock::force(&FONTS);
+    LazyLock::force(&LIBRARY);
+}
+
 /// The id of a project-rooted virtual path such as `/data.json`.
 pub fn file_id(path: &str) -> Option<FileId> {
     let vpath = VirtualPath::new(path).ok()?;
