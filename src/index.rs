@@ -47,6 +47,35 @@ struct Cache {
     version: u32,
     /// PDF path → (size, modification time in ns, row).
     rows: BTreeMap<String, (u64, u128, Row)>,
+    /// What the last run wrote: absent in a cache from before it was kept.
+    #[serde(default)]
+    written: Option<Written>,
+}
+
+/// The index files the last run wrote: the key of their content and each file's stamp. When
+/// the key is the same and both files still have their stamps, nothing is written again.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+struct Written {
+    key: String,
+    html: (u64, u128),
+    pdf: (u64, u128),
+}
+
+/// The key of the index files' content: this program's version, the template and the rows.
+fn content_key(rows: &[Row]) -> String {
+    use sha2::{Digest, Sha256};
+    let mut h = Sha256::new();
+    h.update(env!("CARGO_PKG_VERSION"));
+    h.update([0]);
+    h.update(INDEX_TEMPLATE);
+    h.update([0]);
+    h.update(serde_json::to_vec(rows).unwrap_or_default());
+    h.finalize().iter().map(|b| format!("{b:02x}")).collect()
+}
+
+/// The stamp of a file as it is now (None when it is missing).
+fn stamp_of(path: &Path) -> Option<(u64, u128)> {
+    std::fs::metadata(path).ok().map(|m| stamp(&m))
 }
 
 #[derive(Deserialize)]
@@ -134,6 +163,7 @@ pub fn index_dir(dir: &Path) -> Result<Indexed, Failure> {
     let mut next = Cache {
         version: CACHE_VERSION,
         rows: BTreeMap::new(),
+        written: None,
     };
     for (row, st, _) in &rows {
         if let Some((size, mtime)) = st {
@@ -144,10 +174,26 @@ pub fn index_dir(dir: &Path) -> Result<Indexed, Failure> {
     let rows: Vec<Row> = rows.into_iter().map(|r| r.0).collect();
     let html = dir.join("index.html");
     let pdf = dir.join("index.pdf");
-    pipeline::write_atomic(&html, html_page(&rows).as_bytes()).map_err(|e| io(&html, e))?;
-    let pdf_bytes = index_pdf(&rows).map_err(|e| io(&pdf, e))?;
-    pipeline::write_atomic(&pdf, &pdf_bytes).map_err(|e| io(&pdf, e))?;
-    if read > 0 || next.rows.len() != cache.rows.len() {
+    let key = content_key(&rows);
+    let unchanged = cache.written.as_ref().is_some_and(|w| {
+        w.key == key && stamp_of(&html) == Some(w.html) && stamp_of(&pdf) == Some(w.pdf)
+    });
+    if unchanged {
+        next.written = cache.written.clone();
+    } else {
+        pipeline::write_atomic(&html, html_page(&rows).as_bytes()).map_err(|e| io(&html, e))?;
+        let pdf_bytes = index_pdf(&rows).map_err(|e| io(&pdf, e))?;
+        pipeline::write_atomic(&pdf, &pdf_bytes).map_err(|e| io(&pdf, e))?;
+        next.written = match (stamp_of(&html), stamp_of(&pdf)) {
+            (Some(h), Some(p)) => Some(Written {
+                key,
+                html: h,
+                pdf: p,
+            }),
+            _ => None,
+        };
+    }
+    if read > 0 || next.rows.len() != cache.rows.len() || next.written != cache.written {
         std::fs::create_dir_all(&cache_dir).map_err(|e| io(&cache_dir, e))?;
         let bytes = serde_json::to_vec(&next).unwrap_or_default();
         pipeline::write_atomic(&cache_path, &bytes).map_err(|e| io(&cache_path, e))?;

@@ -137,6 +137,18 @@ fn index_lists_every_record_with_its_state_and_counts() {
     assert!(String::from_utf8_lossy(&o.stderr).contains("0 read, 4 unchanged"));
     assert_eq!(std::fs::read(d.join("index.pdf")).unwrap(), pdf);
     assert_eq!(std::fs::read_to_string(d.join("index.html")).unwrap(), html);
+    // ... and the files are not written again (the index PDF is not typeset again).
+    let mtime = |f: &str| std::fs::metadata(d.join(f)).unwrap().modified().unwrap();
+    let (h0, p0) = (mtime("index.html"), mtime("index.pdf"));
+    std::thread::sleep(std::time::Duration::from_millis(20));
+    assert!(run(&["index", s(d)]).status.success());
+    assert_eq!((mtime("index.html"), mtime("index.pdf")), (h0, p0));
+    // A removed or edited index file is written again, the same bytes.
+    std::fs::remove_file(d.join("index.pdf")).unwrap();
+    std::fs::write(d.join("index.html"), "edited").unwrap();
+    assert!(run(&["index", s(d)]).status.success());
+    assert_eq!(std::fs::read(d.join("index.pdf")).unwrap(), pdf);
+    assert_eq!(std::fs::read_to_string(d.join("index.html")).unwrap(), html);
     // A changed reading: that record is read again and shows void.
     let t = std::fs::read_to_string(d.join("tank.md")).unwrap();
     // The first reading row under the `f/Hz` heading: VR gets one more digit.
