@@ -672,22 +672,22 @@ fn batch_rng(seed: u64, h: usize) -> Lanes {
     std::array::from_fn(|_| Xoshiro256PlusPlus::from_rng(&mut seeder))
 }
 
-/// Generators drawn from in turn (trial t from lane t mod [`LANES`]): their state updates are
-/// independent, so the processor overlaps them.
+/// Generators of one batch, each drawing a quarter of every column: four short independent
+/// streams instead of one long one, which the processor overlaps.
 const LANES: usize = 4;
 type Lanes = [Xoshiro256PlusPlus; LANES];
 
-/// Fills `col` with `draw` of each lane in turn.
+/// Fills `col` with `draw`: its first quarter from lane 0, the next from lane 1, and so on.
+/// Each lane runs on a copy of its state, which the compiler keeps in registers.
 #[inline(always)]
 fn draw_lanes(col: &mut [f64], rngs: &mut Lanes, draw: impl Fn(&mut Xoshiro256PlusPlus) -> f64) {
-    let mut quads = col.chunks_exact_mut(LANES);
-    for q in &mut quads {
-        for (v, r) in q.iter_mut().zip(rngs.iter_mut()) {
-            *v = draw(r);
+    let part = col.len().div_ceil(LANES).max(1);
+    for (c, r) in col.chunks_mut(part).zip(rngs.iter_mut()) {
+        let mut local = r.clone();
+        for v in c {
+            *v = draw(&mut local);
         }
-    }
-    for (v, r) in quads.into_remainder().iter_mut().zip(rngs.iter_mut()) {
-        *v = draw(r);
+        *r = local;
     }
 }
 
