@@ -69,7 +69,10 @@ const DRIVER: &str = r#"<script>
 fn sorting_and_filtering_work_in_headless_chromium() {
     let Some(chromium) = browser() else {
         let required = std::env::var("BENCHREC_REQUIRE_BROWSER").is_ok_and(|v| v == "1");
-        assert!(!required, "BENCHREC_REQUIRE_BROWSER=1 but no Chromium was found");
+        assert!(
+            !required,
+            "BENCHREC_REQUIRE_BROWSER=1 but no Chromium was found"
+        );
         eprintln!("skipped: no Chromium on this machine (install Debian's `chromium` to run it)");
         return;
     };
@@ -87,7 +90,12 @@ fn sorting_and_filtering_work_in_headless_chromium() {
     std::fs::write(&file, page.replace("</body>", DRIVER)).unwrap();
     let profile = dir.path().join("profile");
     let o = Command::new(&chromium)
-        .args(["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run"])
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--no-first-run",
+        ])
         .arg(format!("--user-data-dir={}", profile.display()))
         .arg("--dump-dom")
         .arg(format!("file://{}", file.display()))

@@ -979,14 +979,23 @@ mod tests {
             .map(|t| three_voltmeter(x[0][t], x[1][t], x[2][t], x[3][t], x[4][t]))
             .collect();
         let mut y = vec![0.0; 5 * CHUNK];
-        let [a, b, c, d, e] = &mut x[..] else { unreachable!() };
+        let [a, b, c, d, e] = &mut x[..] else {
+            unreachable!()
+        };
         three_voltmeter_cols([a, b, c, d, e], &mut y, n);
         for (t, w) in want.iter().enumerate() {
             for k in 0..5 {
-                assert_eq!(y[k * CHUNK + t].to_bits(), w[k].to_bits(), "trial {t} output {k}");
+                assert_eq!(
+                    y[k * CHUNK + t].to_bits(),
+                    w[k].to_bits(),
+                    "trial {t} output {k}"
+                );
             }
         }
-        assert!(want[5][2].is_nan(), "the triangle at trial 5 does not close: no XL");
+        assert!(
+            want[5][2].is_nan(),
+            "the triangle at trial 5 does not close: no XL"
+        );
     }
 
     /// Dropped trials (JCGM 101 §7: the model is undefined for part of the input law) are
