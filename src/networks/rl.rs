@@ -1087,6 +1087,55 @@ mod tests {
         assert!((l - xl / (100.0 * PI)).abs() < 1e-15 && (q - 3f64.sqrt()).abs() < 1e-12);
     }
 
+    // Triangles that cannot close, one each way, next to a good row: each is named with its
+    // own side lengths (Vs = 3 V above VR + VL = 2 V; Vs = 0.5 V below |VR − VL| = 1 V).
+    #[test]
+    fn open_triangles_say_which_side_is_wrong() {
+        let mut env = Env::new();
+        env.parts
+            .insert("R3".into(), resistor("R3", 100.0, Some(Tolerance::Relative(0.01))));
+        env.parts.insert("L3".into(), coil("L3", None));
+        let mut data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
+        data.push(vec![500.0, 3.0, 1.0, 1.0]);
+        data.push(vec![600.0, 0.5, 2.0, 1.0]);
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let said = |w: &str| out.flags.iter().any(|f| f.message.contains(w));
+        assert!(said("Vs = 3 V is above VR + VL = 2 V"), "{:?}", out.flags);
+        assert!(said("Vs = 0.5 V is below |VR − VL| = 1 V"), "{:?}", out.flags);
+        assert!(!said("the coil's angle is 0"));
+    }
+
+    // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
+    #[test]
+    fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
+        assert_eq!(weights_of(&[1.0, 2.0, 4.0]), vec![1.0, 0.25, 0.0625]);
+        assert_eq!(weights_of(&[0.0, 2.0]), vec![1.0, 1.0]);
+    }
+
+    // The χ² agreement test: n < 2, a variance list of the wrong length and a zero variance
+    // give no test; the generalised form is used up to GENERALISED_MAX_ROWS rows, the row
+    // variances above.
+    #[test]
+    fn agreement_test_needs_rows_and_variances_and_says_its_basis() {
+        assert!(consistency_uncorrelated(&[1.0], &[1.0]).is_none());
+        assert!(consistency_uncorrelated(&[1.0, 2.0], &[1.0]).is_none());
+        assert!(consistency_uncorrelated(&[1.0, 2.0], &[1.0, 0.0]).is_none());
+        // χ² = Σ (x − x̄)²/u² = 0.25 + 0.25 for 1 and 2 with unit variances (x̄ = 1.5).
+        let c = consistency_uncorrelated(&[1.0, 2.0], &[1.0, 1.0]).unwrap();
+        assert!((c.chi2 - 0.5).abs() < 1e-15 && c.dof == 1 && c.consistent);
+        let flag = |n: usize| {
+            let xs: Vec<f64> = (0..n).map(|i| (i % 2) as f64 * 1e-3).collect();
+            let cov = |i: usize, j: usize| if i == j { 1.0 } else { 0.0 };
+            consistency_flag("L", &xs, &cov, Default::default()).unwrap().message
+        };
+        assert!(flag(3).contains("with the row covariance"), "{}", flag(3));
+        let long = flag(GENERALISED_MAX_ROWS + 1);
+        assert!(long.contains("from the row uncertainties"), "{long}");
+        assert!(flag(GENERALISED_MAX_ROWS).contains("with the row covariance"));
+    }
+
     #[test]
     fn exact_readings_reduce_back_with_uncertainties() {
         let (r, l, rc) = (330.0, 0.0683, 27.5);
