@@ -1105,6 +1105,30 @@ mod tests {
         assert!(said("Vs = 3 V is above VR + VL = 2 V"), "{:?}", out.flags);
         assert!(said("Vs = 0.5 V is below |VR − VL| = 1 V"), "{:?}", out.flags);
         assert!(!said("the coil's angle is 0"));
+        // The good row (θ well inside 0°–90°) is resolved both ways: no cos θ ≈ 1 or 0 note.
+        assert!(!said("cos θ is 1 within") && !said("zero within its uncertainty"));
+    }
+
+    // A winding resistance above the coil's whole impedance: VL is below I·dcr, so the DC
+    // correction has no XL (I = VR/R; the drop is I·dcr, not I/dcr).
+    #[test]
+    fn a_dcr_drop_above_vl_gives_no_dc_result() {
+        let mut env = Env::new();
+        env.parts
+            .insert("R3".into(), resistor("R3", 100.0, Some(Tolerance::Relative(0.01))));
+        env.parts.insert("L3".into(), coil("L3", Some(1000.0)));
+        let data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(
+            out.flags
+                .iter()
+                .any(|f| f.message.contains("is not above the resistive drop I·dcr")),
+            "{:?}",
+            out.flags
+        );
+        assert!(!out.rows.iter().any(|r| r.name == "L_dcr"));
     }
 
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
