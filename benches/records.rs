@@ -132,6 +132,10 @@ fn main() {
         "crossover-coils.md",
         "sensor-tank.md",
         "reel-sample.md",
+        "logger-export/logger-sweep.md",
+        "capacitor-loss.md",
+        "parallel-tank.md",
+        "written-model.md",
     ] {
         let nb = Path::new(env!("CARGO_MANIFEST_DIR"))
             .join("demo")
