@@ -1087,8 +1087,9 @@ mod tests {
         assert!((l - xl / (100.0 * PI)).abs() < 1e-15 && (q - 3f64.sqrt()).abs() < 1e-12);
     }
 
-    // Triangles that cannot close, one each way, next to a good row: each is named with its
-    // own side lengths (Vs = 3 V above VR + VL = 2 V; Vs = 0.5 V below |VR − VL| = 1 V).
+    // Triangles that cannot close, one each way, and a flat one, next to a good row: each is
+    // named with its own side lengths (Vs = 3 V above VR + VL = 2 V; Vs = 0.5 V below
+    // |VR − VL| = 1 V; Vs = VR + VL = 2 V, θ = 0).
     #[test]
     fn open_triangles_say_which_side_is_wrong() {
         let mut env = Env::new();
@@ -1098,13 +1099,16 @@ mod tests {
         let mut data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
         data.push(vec![500.0, 3.0, 1.0, 1.0]);
         data.push(vec![600.0, 0.5, 2.0, 1.0]);
+        // Flat: Vs = VR + VL exactly, cos θ = 1.
+        data.push(vec![700.0, 2.0, 1.0, 1.0]);
         let mut b = block(Network::RL, &cols(), &data);
         b.parts = vec![named("R3"), named("L3")];
         let out = reduce(&env.ctx(), &b).unwrap();
         let said = |w: &str| out.flags.iter().any(|f| f.message.contains(w));
         assert!(said("Vs = 3 V is above VR + VL = 2 V"), "{:?}", out.flags);
         assert!(said("Vs = 0.5 V is below |VR − VL| = 1 V"), "{:?}", out.flags);
-        assert!(!said("the coil's angle is 0"));
+        assert!(said("Vs = VR + VL, so the coil's angle is 0"), "{:?}", out.flags);
+        assert_eq!(out.flags.iter().filter(|f| f.message.contains(" is above ")).count(), 1);
         // The good row (θ well inside 0°–90°) is resolved both ways: no cos θ ≈ 1 or 0 note.
         assert!(!said("cos θ is 1 within") && !said("zero within its uncertainty"));
     }
@@ -1149,6 +1153,13 @@ mod tests {
         // χ² = Σ (x − x̄)²/u² = 0.25 + 0.25 for 1 and 2 with unit variances (x̄ = 1.5).
         let c = consistency_uncorrelated(&[1.0, 2.0], &[1.0, 1.0]).unwrap();
         assert!((c.chi2 - 0.5).abs() < 1e-15 && c.dof == 1 && c.consistent);
+        // 1, 2, 3: χ² = 1 + 0 + 1 = 2, ν = 2, Birge ratio √(χ²/ν) = 1; χ²₀.₉₅(2) = 5.991
+        // (any χ² table, e.g. NIST/SEMATECH e-Handbook 1.3.6.7.4).
+        let c = consistency_uncorrelated(&[1.0, 2.0, 3.0], &[1.0, 1.0, 1.0]).unwrap();
+        assert!((c.chi2 - 2.0).abs() < 1e-15 && (c.birge - 1.0).abs() < 1e-15);
+        assert!((c.chi2_95 - 5.991).abs() < 5e-4 && c.consistent);
+        let c = consistency_uncorrelated(&[1.0, 2.0, 3.0], &[0.25, 0.25, 0.25]).unwrap();
+        assert!((c.birge - 2.0).abs() < 1e-15 && !c.consistent);
         let flag = |n: usize| {
             let xs: Vec<f64> = (0..n).map(|i| (i % 2) as f64 * 1e-3).collect();
             let cov = |i: usize, j: usize| if i == j { 1.0 } else { 0.0 };
