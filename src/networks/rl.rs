@@ -1093,8 +1093,10 @@ mod tests {
     #[test]
     fn open_triangles_say_which_side_is_wrong() {
         let mut env = Env::new();
-        env.parts
-            .insert("R3".into(), resistor("R3", 100.0, Some(Tolerance::Relative(0.01))));
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
+        );
         env.parts.insert("L3".into(), coil("L3", None));
         let mut data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
         data.push(vec![500.0, 3.0, 1.0, 1.0]);
@@ -1106,9 +1108,23 @@ mod tests {
         let out = reduce(&env.ctx(), &b).unwrap();
         let said = |w: &str| out.flags.iter().any(|f| f.message.contains(w));
         assert!(said("Vs = 3 V is above VR + VL = 2 V"), "{:?}", out.flags);
-        assert!(said("Vs = 0.5 V is below |VR − VL| = 1 V"), "{:?}", out.flags);
-        assert!(said("Vs = VR + VL, so the coil's angle is 0"), "{:?}", out.flags);
-        assert_eq!(out.flags.iter().filter(|f| f.message.contains(" is above ")).count(), 1);
+        assert!(
+            said("Vs = 0.5 V is below |VR − VL| = 1 V"),
+            "{:?}",
+            out.flags
+        );
+        assert!(
+            said("Vs = VR + VL, so the coil's angle is 0"),
+            "{:?}",
+            out.flags
+        );
+        assert_eq!(
+            out.flags
+                .iter()
+                .filter(|f| f.message.contains(" is above "))
+                .count(),
+            1
+        );
         // The good row (θ well inside 0°–90°) is resolved both ways: no cos θ ≈ 1 or 0 note.
         assert!(!said("cos θ is 1 within") && !said("zero within its uncertainty"));
     }
@@ -1118,8 +1134,10 @@ mod tests {
     #[test]
     fn a_dcr_drop_above_vl_gives_no_dc_result() {
         let mut env = Env::new();
-        env.parts
-            .insert("R3".into(), resistor("R3", 100.0, Some(Tolerance::Relative(0.01))));
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
+        );
         env.parts.insert("L3".into(), coil("L3", Some(1000.0)));
         let data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
         let mut b = block(Network::RL, &cols(), &data);
@@ -1163,7 +1181,9 @@ mod tests {
         let flag = |n: usize| {
             let xs: Vec<f64> = (0..n).map(|i| (i % 2) as f64 * 1e-3).collect();
             let cov = |i: usize, j: usize| if i == j { 1.0 } else { 0.0 };
-            consistency_flag("L", &xs, &cov, Default::default()).unwrap().message
+            consistency_flag("L", &xs, &cov, Default::default())
+                .unwrap()
+                .message
         };
         assert!(flag(3).contains("with the row covariance"), "{}", flag(3));
         let long = flag(GENERALISED_MAX_ROWS + 1);
