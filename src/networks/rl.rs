@@ -1234,6 +1234,17 @@ mod tests {
             assert!(((get("Rac").m.value - rc) / rc).abs() < 1e-9);
             assert!(((get("L_dcr").m.value - l) / l).abs() < 1e-9);
             assert!(get("L").m.u > 0.0 && get("L").m.mc.is_some());
+            // Each output's Monte Carlo interval is its own: its mean lies within 3 u of the
+            // GUM value, and where the model is near-linear (I, XL, L; not Rac or Q, ratios
+            // of a small cos θ) its u within 20 % of the GUM u (JCGM 101 §8).
+            for n in ["I", "Rac", "XL", "L", "Q"] {
+                let m = &get(n).m;
+                let mc = m.mc.as_ref().unwrap_or_else(|| panic!("{n} has an interval"));
+                assert!((mc.mean - m.value).abs() < 3.0 * m.u, "{n}: {mc:?} against {m:?}");
+                if ["I", "XL", "L"].contains(&n) {
+                    assert!((mc.u / m.u - 1.0).abs() < 0.2, "{n}: u {} against {}", mc.u, m.u);
+                }
+            }
         }
         let bl = out.results.iter().find(|x| x.name == "L").unwrap();
         assert!(((bl.m.value - l) / l).abs() < 1e-9);
