@@ -1239,10 +1239,20 @@ mod tests {
             // of a small cos θ) its u within 20 % of the GUM u (JCGM 101 §8).
             for n in ["I", "Rac", "XL", "L", "Q"] {
                 let m = &get(n).m;
-                let mc = m.mc.as_ref().unwrap_or_else(|| panic!("{n} has an interval"));
-                assert!((mc.mean - m.value).abs() < 3.0 * m.u, "{n}: {mc:?} against {m:?}");
+                let mc =
+                    m.mc.as_ref()
+                        .unwrap_or_else(|| panic!("{n} has an interval"));
+                assert!(
+                    (mc.mean - m.value).abs() < 3.0 * m.u,
+                    "{n}: {mc:?} against {m:?}"
+                );
                 if ["I", "XL", "L"].contains(&n) {
-                    assert!((mc.u / m.u - 1.0).abs() < 0.2, "{n}: u {} against {}", mc.u, m.u);
+                    assert!(
+                        (mc.u / m.u - 1.0).abs() < 0.2,
+                        "{n}: u {} against {}",
+                        mc.u,
+                        m.u
+                    );
                 }
             }
         }
