@@ -8,9 +8,10 @@
 //! correlation matrix (eigen-decomposition with clipped eigenvalues when it is not positive
 //! definite).
 //!
-//! Determinism: trials run in batches of [`BATCH`]; batch `h` draws from a xoshiro256++
-//! generator seeded from ChaCha8 stream `h` of the caller's seed, so the numbers do not depend on the number of threads. Batches run
-//! in parallel (rayon) in groups of fixed size and are merged in order.
+//! Determinism: trials run in batches of [`BATCH`]; batch `h` draws from xoshiro256++
+//! generators seeded from ChaCha8 stream `h` of the caller's seed, so the numbers do not
+//! depend on the number of threads. Batches run in parallel (rayon) in groups of fixed size
+//! and are merged in order.
 
 use crate::uncertainty::{Dist, Input, McInterval, Measured};
 use nalgebra::DMatrix;
@@ -27,22 +28,27 @@ pub const BATCH: usize = 10_000;
 /// past the stopping point.
 const GROUP: usize = 4;
 
-/// A measurement model evaluated in place: `eval(x, y)` writes its `outputs` values into `y`
-/// (no allocation per trial). A trial with a non-finite output is dropped.
-///
-/// `columns`, when given, is the same model over a chunk of trials at once: it writes output
-/// `o` of trial `t` to `y[o·CHUNK + t]`, for `t < cols.len`, and may use `scratch` (kept
-/// from chunk to chunk, so sized once) for its intermediate columns. It must give the same values as
-/// `eval` (the Monte Carlo then uses it alone); it saves the per-trial call and lets the
-/// arithmetic run over arrays.
+/// A measurement model with `outputs` results, evaluated in place (no allocation per trial).
+/// A trial with a non-finite output is dropped.
 #[derive(Clone, Copy)]
 pub struct InPlace<'a> {
     pub outputs: usize,
-    pub eval: &'a (dyn Fn(&[f64], &mut [f64]) + Sync),
-    pub columns: Option<&'a ColumnModel<'a>>,
+    pub eval: Eval<'a>,
 }
 
-/// A model over a chunk of trials; see [`InPlace::columns`].
+/// How a model is evaluated.
+#[derive(Clone, Copy)]
+pub enum Eval<'a> {
+    /// One trial at a time: `f(x, y)` writes the outputs at inputs `x` into `y`.
+    Trial(&'a (dyn Fn(&[f64], &mut [f64]) + Sync)),
+    /// A chunk of trials at once ([`ColumnModel`]): output `o` of trial `t` to
+    /// `y[o·CHUNK + t]`, for `t < cols.len`; `scratch` is kept from chunk to chunk (sized
+    /// once) for intermediate columns. It saves the per-trial call and lets the arithmetic
+    /// run over arrays.
+    Chunk(&'a ColumnModel<'a>),
+}
+
+/// A model over a chunk of trials; see [`Eval::Chunk`].
 pub type ColumnModel<'a> = dyn Fn(&Columns, &mut [f64], &mut Vec<f64>) + Sync + 'a;
 
 /// A chunk of trials, input by input: each model input is either drawn (a column of `len`
@@ -219,8 +225,7 @@ pub fn monte_carlo_with(
     };
     let model = InPlace {
         outputs: nout,
-        eval: &eval,
-        columns: None,
+        eval: Eval::Trial(&eval),
     };
     run_adaptive(&sampler, model, p, seed, trials, opts)
 }
@@ -352,7 +357,7 @@ struct Plan {
 }
 
 /// The values one batch keeps of one output: every value at or below `cut.low` and every
-/// value at or above `cut.high` (with no hint, the cut is ±∞ and both hold every value).
+/// value at or above `cut.high` (with [`KEEP_ALL`] both hold every value).
 #[derive(Debug, Clone)]
 struct Tails {
     cut: Hint,
@@ -439,10 +444,7 @@ fn sum4(v: &[f64], f: impl Fn(f64) -> f64) -> f64 {
 fn batch_stat(v: &[f64], p: f64, hint: Option<Hint>) -> (BatchStat, Tails) {
     let m = v.len();
     let hint = hint.or_else(|| own_cut(v, p));
-    let cut = hint.unwrap_or(Hint {
-        low: f64::INFINITY,
-        high: f64::NEG_INFINITY,
-    });
+    let cut = hint.unwrap_or(KEEP_ALL);
     let (low, high) = if hint.is_some() {
         tails_beyond(v, cut)
     } else {
@@ -691,7 +693,7 @@ fn draw_lanes(col: &mut [f64], rngs: &mut Lanes, draw: impl Fn(&mut Xoshiro256Pl
     }
 }
 
-/// Trials drawn together, input by input, before the model runs on each (a size that keeps
+/// Trials drawn together, input by input, before the model runs on them (a size that keeps
 /// the columns in cache).
 pub const CHUNK: usize = 1024;
 
@@ -718,7 +720,8 @@ fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize, out: &mut V
         .collect();
     let mut cols = vec![0.0; n * CHUNK];
     let mut z = vec![0.0; s.group.len() * CHUNK];
-    let mut y = vec![0.0; f.outputs * if f.columns.is_some() { CHUNK } else { 1 }];
+    let chunked = matches!(f.eval, Eval::Chunk(_));
+    let mut y = vec![0.0; f.outputs * if chunked { CHUNK } else { 1 }];
     let mut drawn = vec![None; x.len()];
     let mut scratch = Vec::new();
     for &(i, d) in &dest {
@@ -728,24 +731,27 @@ fn run_batch(s: &Sampler, f: InPlace, seed: u64, h: usize, m: usize, out: &mut V
     while done < m {
         let c = CHUNK.min(m - done);
         s.fill(&mut rngs, &mut cols, &mut z, c);
-        if let Some(model) = f.columns {
-            let view = Columns {
-                cols: &cols,
-                drawn: &drawn,
-                x: &x,
-                len: c,
-            };
-            model(&view, &mut y, &mut scratch);
-            keep_finite(&y, c, out);
-        } else {
-            for t in 0..c {
-                for &(i, d) in &dest {
-                    x[d] = cols[i * CHUNK + t];
-                }
-                (f.eval)(&x, &mut y);
-                if y.iter().all(|v| v.is_finite()) {
-                    for (o, &v) in out.iter_mut().zip(&y) {
-                        o.push(v);
+        match f.eval {
+            Eval::Chunk(model) => {
+                let view = Columns {
+                    cols: &cols,
+                    drawn: &drawn,
+                    x: &x,
+                    len: c,
+                };
+                model(&view, &mut y, &mut scratch);
+                keep_finite(&y, c, out);
+            }
+            Eval::Trial(model) => {
+                for t in 0..c {
+                    for &(i, d) in &dest {
+                        x[d] = cols[i * CHUNK + t];
+                    }
+                    model(&x, &mut y);
+                    if y.iter().all(|v| v.is_finite()) {
+                        for (o, &v) in out.iter_mut().zip(&y) {
+                            o.push(v);
+                        }
                     }
                 }
             }
@@ -957,8 +963,8 @@ mod tests {
     }
 
     /// The batched summary gives exactly the §7.7.2 interval ends of all values taken
-    /// together (and the mean and u to rounding), with good brackets, with brackets that miss
-    /// (fallback), and with hints that miss; a batch's ends do not depend on its hint.
+    /// together (and the mean and u to rounding), with good hints, with none (each batch's
+    /// own cut) and with hints that miss (fallback); a batch's ends do not depend on its hint.
     #[test]
     fn batched_summary_equals_the_summary_of_all_values() {
         let mut rng = ChaCha8Rng::seed_from_u64(7);
@@ -1165,15 +1171,11 @@ mod tests {
             }
             assert!(matches!(c.col(3), Col::Fixed(v) if v == 7.0));
         };
-        let run = |columns: Option<&ColumnModel>| {
-            let f = InPlace {
-                outputs: 2,
-                eval: &eval,
-                columns,
-            };
+        let run = |eval: Eval| {
+            let f = InPlace { outputs: 2, eval };
             monte_carlo_on(&xs, &[], &[0, 1, 2, 3], f, 0.95, 5, Some(25_000))
         };
-        let (a, b) = (run(None), run(Some(&cols)));
+        let (a, b) = (run(Eval::Trial(&eval)), run(Eval::Chunk(&cols)));
         assert_eq!(a, b);
         assert_eq!(a[0].trials, 25_000);
         assert_eq!((a[1].low, a[1].high, a[1].u), (7.0, 7.0, 0.0));

@@ -1104,26 +1104,8 @@ impl BlockInputs {
         }
     }
 
-    /// [`Self::voltage`] of `symbol` in group `g` with the lookups done once, for a model
-    /// evaluated many times (Monte Carlo): the same numbers, without a map search per trial.
-    pub fn voltage_of(&self, symbol: &str, g: usize) -> impl Fn(&[f64]) -> f64 + Sync + '_ {
-        let value = self.values.get(symbol).and_then(|v| v.get(g));
-        let norm = match (self.source, self.normalise.get(g)) {
-            (Some(level), Some(true)) if VOLTAGES.contains(&symbol) => {
-                Some((level, self.values.get("Vs").and_then(|v| v.get(g))))
-            }
-            _ => None,
-        };
-        move |x: &[f64]| {
-            let v = value.map_or(f64::NAN, |v| v.eval(x));
-            match norm {
-                Some((level, vs)) => v * level / vs.map_or(f64::NAN, |s| s.eval(x)),
-                None => v,
-            }
-        }
-    }
-
-    /// [`BlockInputs::voltage_of`] over a chunk of Monte Carlo trials, into `out[..c.len]`.
+    /// [`Self::voltage`] of `symbol` in group `g` over a chunk of Monte Carlo trials, into
+    /// `out[..c.len]`: the same operations, with the lookups done once.
     pub fn voltage_cols(
         &self,
         symbol: &str,

@@ -708,12 +708,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
                     _ => None,
                 })
                 .collect();
-            // Lookups resolved once: the model runs for every Monte Carlo trial.
-            let (vs_of, vr_of, vl_of) = (
-                bi.voltage_of("Vs", g),
-                bi.voltage_of("VR", g),
-                bi.voltage_of("VL", g),
-            );
+            // Lookups resolved once: the model runs for every chunk of Monte Carlo trials.
             let pick: Vec<usize> = names
                 .iter()
                 .map(|n| match *n {
@@ -724,12 +719,6 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
                     _ => 4,
                 })
                 .collect();
-            let eval = |x: &[f64], out: &mut [f64]| {
-                let y = three_voltmeter(vs_of(x), vr_of(x), vl_of(x), bi.r(x), bi.f(g, x));
-                for (o, &k) in out.iter_mut().zip(&pick) {
-                    *o = y[k];
-                }
-            };
             let (vs_cols, vr_cols, vl_cols) = (
                 bi.voltage_cols("Vs", g),
                 bi.voltage_cols("VR", g),
@@ -754,8 +743,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
             };
             let mc_model = crate::montecarlo::InPlace {
                 outputs: pick.len(),
-                eval: &eval,
-                columns: Some(&columns),
+                eval: crate::montecarlo::Eval::Chunk(&columns),
             };
             let outs: Vec<usize> = layout
                 .iter()
