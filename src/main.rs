@@ -409,7 +409,6 @@ fn build(paths: &[PathBuf], output: Option<&Path>, force: bool) -> ExitCode {
     }
 }
 
-/// Every notebook named or found under the folders named.
 /// Every notebook under `paths`, analysed one by one as the iterator is read, with each lab
 /// register read once (a broken one reported once, for the first notebook that uses it;
 /// `done` names what the others were not).

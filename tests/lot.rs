@@ -159,11 +159,11 @@ fn json_without_lots_has_no_unit_keys() {
     assert_eq!(keys, ["U", "dof", "f", "k", "name", "u", "unit", "value"]);
 }
 
-#[test]
-fn the_record_shows_one_table_of_units_and_the_histogram() {
+/// Builds `notebook` in a fresh folder and returns its record's page text without whitespace.
+fn built_text(notebook: &str) -> String {
     let dir = tempfile::tempdir().unwrap();
     let nb = dir.path().join("lot.md");
-    std::fs::write(&nb, notebook()).unwrap();
+    std::fs::write(&nb, notebook).unwrap();
     let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
         .arg("build")
         .arg(&nb)
@@ -172,11 +172,16 @@ fn the_record_shows_one_table_of_units_and_the_histogram() {
         .expect("benchrec runs");
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let bytes = std::fs::read(dir.path().join("lot.pdf")).unwrap();
-    let text: String = pdf_extract::extract_text_from_mem(&bytes)
+    pdf_extract::extract_text_from_mem(&bytes)
         .unwrap_or_default()
         .chars()
         .filter(|c| !c.is_whitespace())
-        .collect();
+        .collect()
+}
+
+#[test]
+fn the_record_shows_one_table_of_units_and_the_histogram() {
+    let text = built_text(&notebook());
     for needle in [
         "FC-107",
         "Cpk",
@@ -196,22 +201,7 @@ fn a_lot_of_one_unit_says_why_its_capability_is_missing() {
         .filter(|l| !l.starts_with("| ") || l.starts_with("| unit") || l.contains(LOT[0].0))
         .map(|l| format!("{l}\n"))
         .collect();
-    let dir = tempfile::tempdir().unwrap();
-    let nb = dir.path().join("one.md");
-    std::fs::write(&nb, one).unwrap();
-    let o = Command::new(env!("CARGO_BIN_EXE_benchrec"))
-        .arg("build")
-        .arg(&nb)
-        .stdin(Stdio::null())
-        .output()
-        .expect("benchrec runs");
-    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
-    let bytes = std::fs::read(dir.path().join("one.pdf")).unwrap();
-    let text: String = pdf_extract::extract_text_from_mem(&bytes)
-        .unwrap_or_default()
-        .chars()
-        .filter(|c| !c.is_whitespace())
-        .collect();
+    let text = built_text(&one);
     for needle in [
         "Lotof1unitofC1",
         "1unit:1pass",
