@@ -138,6 +138,11 @@ impl Value {
     /// [`Value::eval`] over a chunk of Monte Carlo trials, into `out[..c.len]`: the same
     /// operations in the same order, so the same values.
     pub fn eval_cols(&self, c: &Columns, out: &mut [f64]) {
+        crate::montecarlo::wide(|| self.eval_cols_here(c, out))
+    }
+
+    #[inline(always)]
+    fn eval_cols_here(&self, c: &Columns, out: &mut [f64]) {
         let out = &mut out[..c.len];
         match self.mean.map(|i| c.col(i)) {
             Some(Col::Drawn(v)) => out.copy_from_slice(v),

@@ -73,9 +73,11 @@ fn three_voltmeter_cols(x: [&mut [f64]; 5], y: &mut [f64], n: usize) {
     let mut y = y.chunks_exact_mut(CHUNK);
     let mut next = || y.next().expect("five output columns");
     let (i, rac, xl, l, q) = (next(), next(), next(), next(), next());
-    for t in 0..n {
-        [i[t], rac[t], xl[t], l[t], q[t]] = three_voltmeter(vs[t], vr[t], vl[t], r[t], f[t]);
-    }
+    crate::montecarlo::wide(|| {
+        for t in 0..n {
+            [i[t], rac[t], xl[t], l[t], q[t]] = three_voltmeter(vs[t], vr[t], vl[t], r[t], f[t]);
+        }
+    })
 }
 
 /// cos θ of the coil from the law of cosines: Vs² = VR² + VL² + 2·VR·VL·cos θ.

@@ -22,10 +22,11 @@ use super::{
     PlotData, PlotKind,
 };
 use crate::diag::Diagnostic;
-use crate::montecarlo::{attach_validation, monte_carlo};
+use crate::montecarlo::{attach_validation, monte_carlo_on, Columns, Eval, InPlace, CHUNK};
 use crate::notebook::{PartKind, ReadingsBlock};
 use crate::print::{hz, plain};
 use crate::quantity::Unit;
+use crate::uncertainty::McInterval;
 use crate::uncertainty::{
     add_term, correlation, propagate, propagate_sparse, BudgetLine, Dist, EvalType, Input, Model,
     Propagated,
@@ -57,19 +58,28 @@ pub fn admittance(f: f64, f0: f64, q: f64, rt: f64) -> f64 {
 
 /// [f0, Q, BW, L, C, Rt] from θ = (ln f0, ln Q, ln Rt).
 pub fn derived(theta: &[f64]) -> Vec<f64> {
-    let (f0, q, rt) = (
-        theta.first().copied().unwrap_or(f64::NAN).exp(),
-        theta.get(1).copied().unwrap_or(f64::NAN).exp(),
-        theta.get(2).copied().unwrap_or(f64::NAN).exp(),
-    );
-    let w0 = 2.0 * PI * f0;
-    vec![f0, q, f0 / q, q * rt / w0, 1.0 / (w0 * q * rt), rt]
+    let lin: Vec<f64> = theta.iter().map(|t| t.exp()).collect();
+    derived_lin(&lin)
 }
 
 /// [f0, Q, BW, L, C, Rt] from (f0, Q, Rt).
 pub fn derived_lin(p: &[f64]) -> Vec<f64> {
-    let logs: Vec<f64> = p.iter().map(|v| v.ln()).collect();
-    derived(&logs)
+    fill_vec(derived_into, DERIVED.len(), p)
+}
+
+/// [`derived_lin`] written into `y` (6 values), for the Monte Carlo trials.
+pub fn derived_into(p: &[f64; 3], y: &mut [f64]) {
+    let [f0, q, rt] = *p;
+    let w0 = 2.0 * PI * f0;
+    y[..6].copy_from_slice(&[f0, q, f0 / q, q * rt / w0, 1.0 / (w0 * q * rt), rt]);
+}
+
+/// The `n` outputs `fill` writes for parameters `p` (NaN for a missing parameter).
+pub(crate) fn fill_vec(fill: fn(&[f64; 3], &mut [f64]), n: usize, p: &[f64]) -> Vec<f64> {
+    let at = |k: usize| p.get(k).copied().unwrap_or(f64::NAN);
+    let mut y = vec![0.0; n];
+    fill(&[at(0), at(1), at(2)], &mut y);
+    y
 }
 
 /// Names and units of [`derived`].
@@ -908,6 +918,8 @@ pub(crate) struct FitModel {
     pub(crate) name: &'static str,
     pub(crate) params: [&'static str; 3],
     pub(crate) derived: fn(&[f64]) -> Vec<f64>,
+    /// `derived` written in place (the same arithmetic), for the Monte Carlo trials.
+    pub(crate) fill: fn(&[f64; 3], &mut [f64]),
     pub(crate) results: &'static [(&'static str, Unit)],
     pub(crate) pairs: &'static [(usize, usize)],
     pub(crate) curve: fn(f64, &[f64; 3]) -> f64,
@@ -919,6 +931,7 @@ const SERIES: FitModel = FitModel {
     name: "RLC fit",
     params: ["f0 (fit)", "Q (fit)", "Rtotal (fit)"],
     derived: derived_lin,
+    fill: derived_into,
     results: &DERIVED,
     pairs: &[(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)],
     curve: |f, p| admittance(f, p[0], p[1], p[2]),
@@ -969,14 +982,7 @@ pub(crate) fn fit_results(
         }
     }
     let (mc_in, mc_corr) = fit_inputs(fm.params, p0, &cov_mc);
-    let mc = monte_carlo(
-        &mc_in,
-        &mc_corr,
-        &derived_lin,
-        ctx.coverage,
-        crate::montecarlo::seed_of(&block.id, 0x5eed),
-        None,
-    );
+    let mc = fit_monte_carlo(fm, &mc_in, &mc_corr, ctx.coverage, &block.id);
     let mut unvalidated = Vec::new();
     for (k, (name, unit)) in fm.results.iter().enumerate() {
         let mut m = pd.results[k].clone();
@@ -1036,6 +1042,37 @@ pub(crate) fn fit_results(
     ));
     Ok(())
 }
+
+/// Monte Carlo over the fitted parameters (correlated normal `inputs`) through `fm.fill`, a
+/// chunk of trials at a time with no allocation per trial.
+fn fit_monte_carlo(
+    fm: &FitModel,
+    inputs: &[Input],
+    corr: &[(usize, usize, f64)],
+    p: f64,
+    id: &str,
+) -> Vec<McInterval> {
+    let (fill, n) = (fm.fill, fm.results.len().min(MAX_DERIVED));
+    let columns = |c: &Columns, out: &mut [f64], _: &mut Vec<f64>| {
+        let cols = [c.col(0), c.col(1), c.col(2)];
+        let mut y = [0.0; MAX_DERIVED];
+        for t in 0..c.len {
+            fill(&cols.each_ref().map(|col| col.at(t)), &mut y[..n]);
+            for (o, v) in y[..n].iter().enumerate() {
+                out[o * CHUNK + t] = *v;
+            }
+        }
+    };
+    let model = InPlace {
+        outputs: n,
+        eval: Eval::Chunk(&columns),
+    };
+    let seed = crate::montecarlo::seed_of(id, 0x5eed);
+    monte_carlo_on(inputs, corr, &[0, 1, 2], model, p, seed, None)
+}
+
+/// Most results a fit model derives (the tank's eight).
+const MAX_DERIVED: usize = 8;
 
 /// 95 % upper limit of χ²/ν for ν degrees of freedom (the χ² quantile, statrs).
 fn chi2_limit(nu: usize) -> f64 {

@@ -78,18 +78,29 @@ pub fn fit(f: &[f64], y: &[f64], u: &[f64]) -> Result<rlc::ResonanceFit, rlc::Fi
 
 /// [f0, Q, BW, L, C, R, R_D, f_r] from (f_r, Q_r, R_D); f0, Q and BW are NaN for Q_r ≤ 1.
 pub fn derived(p: &[f64]) -> Vec<f64> {
-    let at = |k: usize| p.get(k).copied().unwrap_or(f64::NAN);
-    let (fr, qr, rd) = (at(0), at(1), at(2));
+    rlc::fill_vec(derived_into, DERIVED.len(), p)
+}
+
+/// [`derived`] written into `y` (8 values), for the Monte Carlo trials.
+fn derived_into(p: &[f64; 3], y: &mut [f64]) {
+    let [fr, qr, rd] = *p;
     let wr = 2.0 * PI * fr;
     let (l, c, r) = (rd / (qr * wr), qr / (wr * rd), rd / (qr * qr));
     let f0 = fr * (1.0 - 1.0 / (qr * qr)).sqrt();
     let q = (qr * qr - 1.0).sqrt();
-    vec![f0, q, f0 / q, l, c, r, rd, fr]
+    y[..8].copy_from_slice(&[f0, q, f0 / q, l, c, r, rd, fr]);
 }
 
 /// [`derived`] without f0, Q and BW: [L, C, R, R_D, f_r].
 fn derived_low_q(p: &[f64]) -> Vec<f64> {
-    derived(p)[3..].to_vec()
+    rlc::fill_vec(low_q_into, 5, p)
+}
+
+/// [`derived_low_q`] written into `y` (5 values).
+fn low_q_into(p: &[f64; 3], y: &mut [f64]) {
+    let mut all = [0.0; 8];
+    derived_into(p, &mut all);
+    y[..5].copy_from_slice(&all[3..]);
 }
 
 /// Names and units of [`derived`].
@@ -114,6 +125,7 @@ const TANK: FitModel = FitModel {
     name: "tank fit",
     params: PARAMS,
     derived,
+    fill: derived_into,
     results: &DERIVED,
     pairs: &[(0, 1), (1, 6), (3, 4), (3, 5), (4, 5)],
     curve,
@@ -124,6 +136,7 @@ const TANK_LOW_Q: FitModel = FitModel {
     name: "tank fit",
     params: PARAMS,
     derived: derived_low_q,
+    fill: low_q_into,
     results: &[
         ("L", Unit::H),
         ("C", Unit::F),
