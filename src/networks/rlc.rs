@@ -917,8 +917,7 @@ fn interpolation_line(a: f64) -> BudgetLine {
 pub(crate) struct FitModel {
     pub(crate) name: &'static str,
     pub(crate) params: [&'static str; 3],
-    pub(crate) derived: fn(&[f64]) -> Vec<f64>,
-    /// `derived` written in place (the same arithmetic), for the Monte Carlo trials.
+    /// The results from (f0, Q, R) written in place: one per entry of `results`.
     pub(crate) fill: fn(&[f64; 3], &mut [f64]),
     pub(crate) results: &'static [(&'static str, Unit)],
     pub(crate) pairs: &'static [(usize, usize)],
@@ -930,7 +929,6 @@ pub(crate) struct FitModel {
 const SERIES: FitModel = FitModel {
     name: "RLC fit",
     params: ["f0 (fit)", "Q (fit)", "Rtotal (fit)"],
-    derived: derived_lin,
     fill: derived_into,
     results: &DERIVED,
     pairs: &[(0, 1), (0, 2), (1, 5), (3, 4), (3, 5), (4, 5)],
@@ -949,7 +947,7 @@ pub(crate) fn fit_results(
 ) -> Result<(), Vec<Diagnostic>> {
     let (ctx, block, fs) = (sw.ctx, sw.block, &sw.fs);
     let (py, u_tot, weights_note) = (&pts.py, &pts.u_tot, pts.weights_note);
-    let derived_lin = fm.derived;
+    let derived = |p: &[f64]| fill_vec(fm.fill, fm.results.len(), p);
     let ng = fs.len();
     let (plot, results, correlations, flags) = (
         &mut out.plot,
@@ -967,7 +965,7 @@ pub(crate) fn fit_results(
             inputs: &fit_in,
             corr: &corr,
         },
-        &derived_lin,
+        &derived,
         ctx.coverage,
     )
     .at_block(block)?;

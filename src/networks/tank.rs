@@ -91,12 +91,7 @@ fn derived_into(p: &[f64; 3], y: &mut [f64]) {
     y[..8].copy_from_slice(&[f0, q, f0 / q, l, c, r, rd, fr]);
 }
 
-/// [`derived`] without f0, Q and BW: [L, C, R, R_D, f_r].
-fn derived_low_q(p: &[f64]) -> Vec<f64> {
-    rlc::fill_vec(low_q_into, 5, p)
-}
-
-/// [`derived_low_q`] written into `y` (5 values).
+/// [`derived`] without f0, Q and BW, written into `y`: [L, C, R, R_D, f_r].
 fn low_q_into(p: &[f64; 3], y: &mut [f64]) {
     let mut all = [0.0; 8];
     derived_into(p, &mut all);
@@ -124,7 +119,6 @@ fn curve(f: f64, p: &[f64; 3]) -> f64 {
 const TANK: FitModel = FitModel {
     name: "tank fit",
     params: PARAMS,
-    derived,
     fill: derived_into,
     results: &DERIVED,
     pairs: &[(0, 1), (1, 6), (3, 4), (3, 5), (4, 5)],
@@ -135,7 +129,6 @@ const TANK: FitModel = FitModel {
 const TANK_LOW_Q: FitModel = FitModel {
     name: "tank fit",
     params: PARAMS,
-    derived: derived_low_q,
     fill: low_q_into,
     results: &[
         ("L", Unit::H),
@@ -333,8 +326,8 @@ mod tests {
     #[test]
     fn low_q_leaves_out_f0() {
         assert!(derived(&[1000.0, 0.8, 50.0])[0].is_nan());
-        assert_eq!(derived_low_q(&[1000.0, 0.8, 50.0]).len(), 5);
-        assert!(derived_low_q(&[1000.0, 0.8, 50.0])
+        assert_eq!(rlc::fill_vec(low_q_into, 5, &[1000.0, 0.8, 50.0]).len(), 5);
+        assert!(rlc::fill_vec(low_q_into, 5, &[1000.0, 0.8, 50.0])
             .iter()
             .all(|v| v.is_finite()));
     }
