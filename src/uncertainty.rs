@@ -982,6 +982,54 @@ mod tests {
         assert_eq!(type_a_correlation(&[1.0], &[2.0]), 0.0);
     }
 
+    // GUM H.2.3 (approach 1), from the Table H.2 means and their correlations: u(R) = 0.071 Ω,
+    // u(X) = 0.295 Ω, u(Z) = 0.236 Ω; r(R,X) = −0.588, r(R,Z) = −0.485, r(X,Z) = 0.993.
+    #[test]
+    fn output_correlations_gum_h2() {
+        let v = [5.007, 4.994, 5.005, 4.990, 4.999];
+        let i = [19.663e-3, 19.639e-3, 19.640e-3, 19.685e-3, 19.678e-3];
+        let p = [1.0456, 1.0438, 1.0468, 1.0428, 1.0433];
+        let input = |name: &str, x: &[f64]| {
+            let (m, s, nu) = type_a(x);
+            Input::type_a(name, m, s, nu)
+        };
+        let inputs = vec![input("V", &v), input("I", &i), input("phi", &p)];
+        let corr = [
+            (0usize, 1usize, type_a_correlation(&v, &i)),
+            (0, 2, type_a_correlation(&v, &p)),
+            (1, 2, type_a_correlation(&i, &p)),
+        ];
+        let f = |x: &[f64]| {
+            let z = x[0] / x[1];
+            vec![z * x[2].cos(), z * x[2].sin(), z]
+        };
+        let model = Model {
+            inputs: &inputs,
+            corr: &corr,
+        };
+        let out = propagate(&model, &f, 0.95).unwrap();
+        for (k, u) in [0.071, 0.295, 0.236].into_iter().enumerate() {
+            // GUM prints three decimals from rounded means: u(X) here is 0.2956.
+            assert!(
+                close(out.results[k].u, u, 0.001),
+                "u[{k}] = {}",
+                out.results[k].u
+            );
+        }
+        for (a, b, r) in [(0, 1, -0.588), (0, 2, -0.485), (1, 2, 0.993)] {
+            assert!(close(correlation(&out, a, b), r, 0.0005), "r({a},{b})");
+            assert!(close(correlation(&out, b, a), r, 0.0005), "r({b},{a})");
+        }
+        assert!(close(correlation(&out, 1, 1), 1.0, 1e-12));
+        assert_eq!(correlation(&out, 0, 3), 0.0);
+        assert_eq!(correlation(&out, 3, 0), 0.0);
+        // An output that no input reaches has zero variance: no correlation.
+        let g = |x: &[f64]| vec![x[0], 2.5];
+        let flat = propagate(&model, &g, 0.95).unwrap();
+        assert_eq!(correlation(&flat, 0, 1), 0.0);
+        assert_eq!(correlation(&flat, 1, 0), 0.0);
+    }
+
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
     #[test]
     fn type_b_half_widths() {
