@@ -1143,6 +1143,58 @@ mod tests {
         assert!(!out.rows.iter().any(|r| r.name == "L_dcr"));
     }
 
+    // Exact readings of a 68.3 mH coil whose AC resistance is 27.5 Ω, with dcr = 25 Ω: the
+    // block means are the coil's own L and Rac, and the flag compares Rac with dcr by their
+    // difference, 2.5 Ω (ideal-coil phasor model; common practice). The conditioning note
+    // prints each method's u(L)/L in percent as its row results give them.
+    #[test]
+    fn block_means_and_the_dcr_comparison_are_the_coils_own() {
+        let mut env = Env::new();
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
+        );
+        env.parts.insert("L3".into(), coil("L3", Some(25.0)));
+        let data: Vec<Vec<f64>> = [400.0, 800.0]
+            .iter()
+            .map(|&f| ideal(100.0, 0.0683, 27.5, 1.7, f).to_vec())
+            .collect();
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let mean = |n: &str| out.results.iter().find(|r| r.name == n).unwrap().m.value;
+        assert!((mean("L") - 0.0683).abs() < 1e-9, "{}", mean("L"));
+        assert!((mean("Rac") - 27.5).abs() < 1e-6, "{}", mean("Rac"));
+        let said: Vec<&str> = out.flags.iter().map(|f| f.message.as_str()).collect();
+        let dcr = said
+            .iter()
+            .find(|m| m.starts_with("Rac (mean) = "))
+            .unwrap_or_else(|| panic!("{said:?}"));
+        assert!(dcr.starts_with("Rac (mean) = 27.5"), "{dcr}");
+        assert!(dcr.contains("against dcr = 25"), "{dcr}");
+        assert!(dcr.contains("difference (2.50 ±"), "{dcr}");
+        assert!(dcr.contains("Rac is the larger"), "{dcr}");
+        for f in [400.0, 800.0] {
+            let rel = |n: &str| {
+                let r = out
+                    .rows
+                    .iter()
+                    .find(|r| r.name == n && r.f == Some(f))
+                    .unwrap();
+                format!("{:.2}", 100.0 * r.m.u / r.m.value)
+            };
+            let want = format!(
+                "(u(L)/L = {} % three-voltmeter, {} % with dcr)",
+                rel("L"),
+                rel("L_dcr")
+            );
+            assert!(
+                said.iter().any(|m| m.ends_with(&want)),
+                "{want} in {said:?}"
+            );
+        }
+    }
+
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
     #[test]
     fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
