@@ -1030,6 +1030,45 @@ mod tests {
         assert_eq!(correlation(&flat, 1, 0), 0.0);
     }
 
+    // Edges of the small helpers, each of which a wrong guard would get wrong: a quotient
+    // that overflows is no ratio; two observations of a straight line correlate fully (GUM
+    // eq. 17 with n = 2), lists of unequal length not at all; a budget line with a non-finite
+    // contribution changes nothing; a normal half-width with k = 0 is taken as u (k = 1).
+    #[test]
+    fn helper_edges() {
+        assert_eq!(ratio(1e308, 1e-308), None);
+        assert_eq!(ratio(1.0, 0.0), None);
+        assert_eq!(ratio(3.0, 4.0), Some(0.75));
+        assert!(close(type_a_correlation(&[1.0, 2.0], &[3.0, 5.0]), 1.0, 1e-15));
+        assert!(close(type_a_correlation(&[1.0, 2.0], &[5.0, 3.0]), -1.0, 1e-15));
+        assert_eq!(type_a_correlation(&[1.0, 2.0, 3.0], &[3.0, 5.0]), 0.0);
+        let mut m = Measured {
+            value: 1.0,
+            u: 0.1,
+            dof: Some(4.0),
+            k: 2.87,
+            expanded: 0.287,
+            budget: Vec::new(),
+            mc: None,
+        };
+        let before = m.clone();
+        for c in [f64::NAN, f64::INFINITY, 0.0] {
+            let line = BudgetLine {
+                input: "x".into(),
+                estimate: 0.0,
+                u: c,
+                kind: EvalType::B,
+                dist: Dist::Normal,
+                sensitivity: 1.0,
+                contribution: c,
+                dof: None,
+            };
+            add_term(&mut m, line, 0.9545);
+            assert_eq!(m, before, "contribution {c}");
+        }
+        assert_eq!(type_b(2.0, Distribution::Normal { k: 0.0 }), 2.0);
+    }
+
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
     #[test]
     fn type_b_half_widths() {
