@@ -1028,6 +1028,18 @@ mod tests {
         let flat = propagate(&model, &g, 0.95).unwrap();
         assert_eq!(correlation(&flat, 0, 1), 0.0);
         assert_eq!(correlation(&flat, 1, 0), 0.0);
+        // Outputs that share one of their inputs (uncorrelated inputs): y0 = x2, y1 = x0 + x2
+        // give cov = u2², r = u2/√(u0² + u2²) (GUM eq. 13 and 5.2.2).
+        let h = |x: &[f64]| vec![x[2], x[0] + x[2]];
+        let apart = Model {
+            inputs: &inputs,
+            corr: &[],
+        };
+        let shared = propagate(&apart, &h, 0.95).unwrap();
+        let (u0, u2) = (inputs[0].u, inputs[2].u);
+        let r = u2 / u0.hypot(u2);
+        assert!(close(correlation(&shared, 0, 1), r, 1e-9));
+        assert!(close(correlation(&shared, 1, 0), r, 1e-9));
     }
 
     // Edges of the small helpers, each of which a wrong guard would get wrong: a quotient
@@ -1039,8 +1051,16 @@ mod tests {
         assert_eq!(ratio(1e308, 1e-308), None);
         assert_eq!(ratio(1.0, 0.0), None);
         assert_eq!(ratio(3.0, 4.0), Some(0.75));
-        assert!(close(type_a_correlation(&[1.0, 2.0], &[3.0, 5.0]), 1.0, 1e-15));
-        assert!(close(type_a_correlation(&[1.0, 2.0], &[5.0, 3.0]), -1.0, 1e-15));
+        assert!(close(
+            type_a_correlation(&[1.0, 2.0], &[3.0, 5.0]),
+            1.0,
+            1e-15
+        ));
+        assert!(close(
+            type_a_correlation(&[1.0, 2.0], &[5.0, 3.0]),
+            -1.0,
+            1e-15
+        ));
         assert_eq!(type_a_correlation(&[1.0, 2.0, 3.0], &[3.0, 5.0]), 0.0);
         let mut m = Measured {
             value: 1.0,
