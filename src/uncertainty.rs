@@ -1089,6 +1089,74 @@ mod tests {
         assert_eq!(type_b(2.0, Distribution::Normal { k: 0.0 }), 2.0);
     }
 
+    // Inputs and correlations that no propagation can use are refused, each with its reason:
+    // a non-finite value or u, a negative u, a pair that is not two distinct inputs, r outside
+    // [−1, 1], a pair given twice (either order). r within 1e-12 of ±1 is clamped, not refused.
+    #[test]
+    fn bad_inputs_and_correlations_are_refused() {
+        let f = |x: &[f64]| vec![x[0] + x[1]];
+        let ok = || {
+            vec![
+                Input::type_b("a", 1.0, 0.1, Dist::Normal),
+                Input::type_b("b", 2.0, 0.2, Dist::Normal),
+            ]
+        };
+        let run = |inputs: &[Input], corr: &[(usize, usize, f64)]| {
+            propagate(&Model { inputs, corr }, &f, 0.95).map(|p| p.results[0].u)
+        };
+        for (k, bad) in [f64::NAN, f64::INFINITY].into_iter().enumerate() {
+            let mut i = ok();
+            i[k].value = bad;
+            assert!(
+                run(&i, &[]).unwrap_err().contains("not a finite value"),
+                "value {bad}"
+            );
+            let mut i = ok();
+            i[1 - k].u = bad;
+            assert!(
+                run(&i, &[]).unwrap_err().contains("not a finite value"),
+                "u {bad}"
+            );
+        }
+        let mut i = ok();
+        i[1].u = -0.2;
+        assert!(run(&i, &[]).unwrap_err().contains("u ≥ 0"));
+        for pair in [(0, 2), (2, 0), (1, 1)] {
+            let e = run(&ok(), &[(pair.0, pair.1, 0.5)]).unwrap_err();
+            assert!(e.contains("two distinct inputs"), "{pair:?}: {e}");
+        }
+        for r in [1.1, -1.1, f64::NAN] {
+            assert!(run(&ok(), &[(0, 1, r)])
+                .unwrap_err()
+                .contains("outside [−1, 1]"));
+        }
+        let e = run(&ok(), &[(0, 1, 0.5), (1, 0, 0.5)]).unwrap_err();
+        assert!(e.contains("given twice"), "{e}");
+        // Pairs that share one input are two pairs: y = a + b + c, u² = 0.01 + 0.04 + 0.09
+        // + 2·0.5·0.1·0.2 + 2·0.2·0.1·0.3 = 0.172.
+        let mut three = ok();
+        three.push(Input::type_b("c", 3.0, 0.3, Dist::Normal));
+        let g = |x: &[f64]| vec![x[0] + x[1] + x[2]];
+        let corr = [(0, 1, 0.5), (0, 2, 0.2)];
+        let p = propagate(
+            &Model {
+                inputs: &three,
+                corr: &corr,
+            },
+            &g,
+            0.95,
+        )
+        .unwrap();
+        assert!(close(p.results[0].u, 0.172f64.sqrt(), 1e-9));
+        // u² = 0.1² + 0.2² + 2·r·0.1·0.2 (GUM eq. 16) with r clamped to 1: u = 0.3.
+        let u = run(&ok(), &[(1, 0, 1.0 + 1e-13)]).unwrap();
+        assert!(close(u, 0.3, 1e-9), "{u}");
+        let u = run(&ok(), &[(0, 1, -0.5)]).unwrap();
+        assert!(close(u, (0.05f64 - 0.02).sqrt(), 1e-9), "{u}");
+        // Welch–Satterthwaite with ν = 0 given takes ν = 1 for that term.
+        assert_eq!(welch_satterthwaite(&[(1.0, Some(0.0))]), Some(1.0));
+    }
+
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
     #[test]
     fn type_b_half_widths() {
