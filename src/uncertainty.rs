@@ -1157,6 +1157,87 @@ mod tests {
         assert_eq!(welch_satterthwaite(&[(1.0, Some(0.0))]), Some(1.0));
     }
 
+    // GUM H.2.4: correlated Type A means from one series of n = 5 observations enter
+    // Welch–Satterthwaite (G.4.1) as one contribution with ν = 4, its variance that of the
+    // cluster alone (eq. 16). With a further Type B term of infinite ν beside it,
+    // ν_eff = (u_A² + u_B²)² / (u_A⁴ / 4). Correlations that no covariance matrix can have
+    // (three inputs pairwise at r = −0.9) give a negative variance, which is refused.
+    #[test]
+    fn a_correlated_series_enters_welch_satterthwaite_as_one() {
+        let v = [5.007, 4.994, 5.005, 4.990, 4.999];
+        let i = [19.663e-3, 19.639e-3, 19.640e-3, 19.685e-3, 19.678e-3];
+        let p = [1.0456, 1.0438, 1.0468, 1.0428, 1.0433];
+        let input = |name: &str, x: &[f64]| {
+            let (m, s, nu) = type_a(x);
+            Input::type_a(name, m, s, nu)
+        };
+        let mut inputs = vec![input("V", &v), input("I", &i), input("phi", &p)];
+        let corr = [
+            (0usize, 1usize, type_a_correlation(&v, &i)),
+            (0, 2, type_a_correlation(&v, &p)),
+            (1, 2, type_a_correlation(&i, &p)),
+        ];
+        let r_of = |x: &[f64]| vec![x[0] / x[1] * x[2].cos() + x.get(3).copied().unwrap_or(0.0)];
+        let alone = propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &corr,
+            },
+            &r_of,
+            0.95,
+        )
+        .unwrap();
+        assert_eq!(alone.results[0].dof, Some(4.0));
+        let ua = alone.results[0].u;
+        let ub = 0.05;
+        inputs.push(Input::type_b("offset", 0.0, ub, Dist::Normal));
+        let both = propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &corr,
+            },
+            &r_of,
+            0.95,
+        )
+        .unwrap();
+        let m = &both.results[0];
+        // Numerical derivatives (checked steps) agree to about 1e-7 relative.
+        assert!(
+            close(m.u, ua.hypot(ub), 1e-7),
+            "{} vs {}",
+            m.u,
+            ua.hypot(ub)
+        );
+        let nu = (ua * ua + ub * ub).powi(2) / (ua.powi(4) / 4.0);
+        assert!(close(m.dof.unwrap(), nu, 1e-5 * nu), "{:?} vs {nu}", m.dof);
+        // Its budget lists each input with |c|·u.
+        for line in &m.budget {
+            assert!(close(
+                line.contribution,
+                line.sensitivity.abs() * line.u,
+                1e-15
+            ));
+        }
+        assert_eq!(m.budget.len(), 4);
+        let bad = vec![
+            Input::type_b("a", 1.0, 1.0, Dist::Normal),
+            Input::type_b("b", 1.0, 1.0, Dist::Normal),
+            Input::type_b("c", 1.0, 1.0, Dist::Normal),
+        ];
+        let corr = [(0, 1, -0.9), (0, 2, -0.9), (1, 2, -0.9)];
+        let sum = |x: &[f64]| vec![x[0] + x[1] + x[2]];
+        let e = propagate(
+            &Model {
+                inputs: &bad,
+                corr: &corr,
+            },
+            &sum,
+            0.95,
+        )
+        .unwrap_err();
+        assert!(e.contains("negative variance"), "{e}");
+    }
+
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
     #[test]
     fn type_b_half_widths() {
