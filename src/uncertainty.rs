@@ -982,10 +982,9 @@ mod tests {
         assert_eq!(type_a_correlation(&[1.0], &[2.0]), 0.0);
     }
 
-    // GUM H.2.3 (approach 1), from the Table H.2 means and their correlations: u(R) = 0.071 Ω,
-    // u(X) = 0.295 Ω, u(Z) = 0.236 Ω; r(R,X) = −0.588, r(R,Z) = −0.485, r(X,Z) = 0.993.
-    #[test]
-    fn output_correlations_gum_h2() {
+    /// GUM Table H.2's five (V, I, φ) observations as Type A means (I in A) and their
+    /// correlations.
+    fn h2_inputs() -> (Vec<Input>, [(usize, usize, f64); 3]) {
         let v = [5.007, 4.994, 5.005, 4.990, 4.999];
         let i = [19.663e-3, 19.639e-3, 19.640e-3, 19.685e-3, 19.678e-3];
         let p = [1.0456, 1.0438, 1.0468, 1.0428, 1.0433];
@@ -999,6 +998,14 @@ mod tests {
             (0, 2, type_a_correlation(&v, &p)),
             (1, 2, type_a_correlation(&i, &p)),
         ];
+        (inputs, corr)
+    }
+
+    // GUM H.2.3 (approach 1), from the Table H.2 means and their correlations: u(R) = 0.071 Ω,
+    // u(X) = 0.295 Ω, u(Z) = 0.236 Ω; r(R,X) = −0.588, r(R,Z) = −0.485, r(X,Z) = 0.993.
+    #[test]
+    fn output_correlations_gum_h2() {
+        let (inputs, corr) = h2_inputs();
         let f = |x: &[f64]| {
             let z = x[0] / x[1];
             vec![z * x[2].cos(), z * x[2].sin(), z]
@@ -1164,19 +1171,7 @@ mod tests {
     // (three inputs pairwise at r = −0.9) give a negative variance, which is refused.
     #[test]
     fn a_correlated_series_enters_welch_satterthwaite_as_one() {
-        let v = [5.007, 4.994, 5.005, 4.990, 4.999];
-        let i = [19.663e-3, 19.639e-3, 19.640e-3, 19.685e-3, 19.678e-3];
-        let p = [1.0456, 1.0438, 1.0468, 1.0428, 1.0433];
-        let input = |name: &str, x: &[f64]| {
-            let (m, s, nu) = type_a(x);
-            Input::type_a(name, m, s, nu)
-        };
-        let mut inputs = vec![input("V", &v), input("I", &i), input("phi", &p)];
-        let corr = [
-            (0usize, 1usize, type_a_correlation(&v, &i)),
-            (0, 2, type_a_correlation(&v, &p)),
-            (1, 2, type_a_correlation(&i, &p)),
-        ];
+        let (mut inputs, corr) = h2_inputs();
         let r_of = |x: &[f64]| vec![x[0] / x[1] * x[2].cos() + x.get(3).copied().unwrap_or(0.0)];
         let alone = propagate(
             &Model {
