@@ -174,21 +174,22 @@ fn normal_quantile(q: f64) -> f64 {
 /// themselves, so with correlated inputs (where G.4.1 does not strictly apply) ν_eff still lies
 /// between min ν_i and Σ ν_i.
 pub fn welch_satterthwaite(contribs: &[(f64, Option<f64>)]) -> Option<f64> {
+    // Contributions are scaled by the largest, so that c⁴ neither under- nor overflows (the
+    // ratio is scale-free). All zero, none with finite dof or one not finite: 0/0, x/0 or
+    // ∞/∞, so None.
+    let s = contribs.iter().fold(0.0, |s: f64, c| s.max(c.0.abs()));
     let mut num = 0.0;
     let mut den = 0.0;
     for &(cu, nu) in contribs {
-        let c2 = cu * cu;
+        let c2 = (cu / s).powi(2);
         num += c2;
         if let Some(nu) = nu {
             let nu = if nu > 0.0 { nu } else { 1.0 };
             den += c2 * c2 / nu;
         }
     }
-    if den > 0.0 && num > 0.0 && (num * num / den).is_finite() {
-        Some(num * num / den)
-    } else {
-        None
-    }
+    let nu = num * num / den;
+    nu.is_finite().then_some(nu)
 }
 
 /// Adds to `m` one further contribution, independent of its other inputs (a method term such
@@ -778,16 +779,13 @@ fn measure(
             .map_or(0.0, |p| row[p].1)
     };
     let diag: f64 = row.iter().map(|&(i, d)| (d * inputs[i].u).powi(2)).sum();
-    let mut var = var;
-    if var < 0.0 {
-        if var < -1e-9 * diag {
-            return Err(format!(
-                "output {k} has a negative variance: the input correlations are inconsistent"
-            ));
-        }
-        var = 0.0;
+    // Below zero by more than round-off at r = ±1: the correlations are not a covariance.
+    if var < -1e-9 * diag {
+        return Err(format!(
+            "output {k} has a negative variance: the input correlations are inconsistent"
+        ));
     }
-    let u = var.sqrt();
+    let u = var.max(0.0).sqrt();
     let mut budget = Vec::new();
     let mut contribs = Vec::new();
     for &(i, c) in row {
@@ -833,7 +831,8 @@ fn measure(
     let dof = welch_satterthwaite(&contribs);
     let kf = coverage_factor(coverage, dof);
     let expanded = kf * u;
-    if !u.is_finite() || !kf.is_finite() || !expanded.is_finite() {
+    // k > 0, so a non-finite u or k shows in U.
+    if !expanded.is_finite() {
         return Err(format!("output {k} has a non-finite uncertainty"));
     }
     Ok(Measured {
@@ -850,18 +849,12 @@ fn measure(
 /// Correlation coefficient r(y_i, y_j) = cov_ij / (u_i u_j) (GUM 5.2.2 / H.2); 0 when an index
 /// is out of range or a variance is zero.
 pub fn correlation(p: &Propagated, i: usize, j: usize) -> f64 {
-    let m = p.values.len();
-    let get = |a: usize, b: usize| (a < m && b < m).then(|| p.cov(a, b));
-    match (get(i, j), get(i, i), get(j, j)) {
-        (Some(c), Some(a), Some(b)) if a > 0.0 && b > 0.0 => {
-            let r = c / (a.sqrt() * b.sqrt());
-            if r.is_finite() {
-                r.clamp(-1.0, 1.0)
-            } else {
-                0.0
-            }
-        }
-        _ => 0.0,
+    // `cov` is 0 out of range; a zero (or round-off negative) variance makes r NaN or ∞.
+    let r = p.cov(i, j) / (p.cov(i, i).sqrt() * p.cov(j, j).sqrt());
+    if r.is_finite() {
+        r.clamp(-1.0, 1.0)
+    } else {
+        0.0
     }
 }
 
@@ -1231,6 +1224,155 @@ mod tests {
         )
         .unwrap_err();
         assert!(e.contains("negative variance"), "{e}");
+    }
+
+    // Where f is not finite below (above) an estimate, the derivative is the forward
+    // (backward) difference (common practice in numerical differentiation), exact for a linear
+    // f; u then follows GUM eq. 10. A dependency pattern may name inputs the model lacks.
+    #[test]
+    fn one_sided_derivatives_and_misshapen_models() {
+        let inputs = vec![
+            Input::type_b("x", 1.0, 0.1, Dist::Normal),
+            Input::type_b("y", 2.0, 0.2, Dist::Normal),
+        ];
+        let model = Model {
+            inputs: &inputs,
+            corr: &[],
+        };
+        let f = |x: &[f64]| {
+            let a = if x[0] >= 1.0 { 3.0 * x[0] } else { f64::NAN };
+            let b = if x[1] <= 2.0 { -5.0 * x[1] } else { f64::NAN };
+            vec![a + b]
+        };
+        let wide = [vec![2, 0, 1, 7]];
+        for pattern in [None, Some(&wide[..])] {
+            let out = propagate_sparse(&model, &f, pattern, 0.95).unwrap();
+            assert!(close(out.sensitivity(0, 0), 3.0, 1e-7), "{pattern:?}");
+            assert!(close(out.sensitivity(0, 1), -5.0, 1e-7), "{pattern:?}");
+            assert!(close(out.results[0].u, 1.09f64.sqrt(), 1e-8), "{pattern:?}");
+        }
+        let nowhere = |x: &[f64]| vec![if x[0] == 1.0 { 0.0 } else { f64::NAN }];
+        let e = propagate(&model, &nowhere, 0.95).unwrap_err();
+        assert!(e.contains("not finite near the estimate of input x"), "{e}");
+        // One more output above the estimate only.
+        let grows = |x: &[f64]| {
+            if x[0] > 1.0 {
+                vec![x[0], 0.0]
+            } else {
+                vec![x[0]]
+            }
+        };
+        let e = propagate(&model, &grows, 0.95).unwrap_err();
+        assert!(e.contains("varying number of outputs"), "{e}");
+    }
+
+    // Three inputs pairwise at r = −1/2 + ε: the correlation matrix's least eigenvalue is
+    // 1 + 2r = −2ε (linear algebra), so u² = 4·(3 + 6r) = −24ε for y = x₁ + x₂ + x₃ with
+    // u_i = 2 (exact sensitivities at x = 0). Within 1e-9 of Σ(c_i u_i)² = 12 that is round-off
+    // and u = 0; beyond it the correlations are refused.
+    #[test]
+    fn a_negative_variance_is_round_off_or_an_error() {
+        let inputs: Vec<Input> = ["a", "b", "c"]
+            .into_iter()
+            .map(|n| Input::type_b(n, 0.0, 2.0, Dist::Normal))
+            .collect();
+        let sum = |x: &[f64]| vec![x[0] + x[1] + x[2]];
+        let run = |eps: f64| {
+            let r = -0.5 - eps;
+            let corr = [(0, 1, r), (0, 2, r), (1, 2, r)];
+            propagate(
+                &Model {
+                    inputs: &inputs,
+                    corr: &corr,
+                },
+                &sum,
+                0.95,
+            )
+        };
+        let ok = run(4e-10).unwrap();
+        assert_eq!(ok.results[0].u, 0.0);
+        assert_eq!(ok.results[0].expanded, 0.0);
+        let e = run(6e-10).unwrap_err();
+        assert!(e.contains("negative variance"), "{e}");
+    }
+
+    // An input with u = 0 that the output depends on contributes nothing and has no budget
+    // line; the other's line is |c|·u (GUM eq. 10).
+    #[test]
+    fn an_exact_input_has_no_budget_line() {
+        let inputs = vec![
+            Input::type_b("a", 1.0, 0.1, Dist::Normal),
+            Input::type_b("b", 2.0, 0.0, Dist::Normal),
+        ];
+        let out = propagate(
+            &Model {
+                inputs: &inputs,
+                corr: &[],
+            },
+            &|x: &[f64]| vec![x[0] * x[1]],
+            0.95,
+        )
+        .unwrap();
+        let m = &out.results[0];
+        assert!(close(out.sensitivity(0, 1), 1.0, 1e-9));
+        assert_eq!(m.budget.len(), 1);
+        assert_eq!(m.budget[0].input, "a");
+        assert!(close(m.budget[0].contribution, 0.2, 1e-9));
+        assert!(close(m.u, 0.2, 1e-9));
+    }
+
+    // Correlated inputs are pooled only when all share one finite ν (GUM H.2.4); otherwise each
+    // enters G.4.1 on its own: ν_eff = (Σ c_i²u_i²)² / Σ c_i⁴u_i⁴/ν_i.
+    #[test]
+    fn only_correlated_inputs_of_one_dof_are_pooled() {
+        let sum = |x: &[f64]| vec![x.iter().sum::<f64>()];
+        let nu_of = |inputs: &[Input], corr: &[(usize, usize, f64)]| {
+            propagate(&Model { inputs, corr }, &sum, 0.95)
+                .unwrap()
+                .results[0]
+                .dof
+                .unwrap()
+        };
+        let two_dofs = [
+            Input::type_a("a", 1.0, 0.1, 4.0),
+            Input::type_a("b", 1.0, 0.2, 9.0),
+        ];
+        let ws = 0.05f64.powi(2) / (1e-4 / 4.0 + 0.04f64.powi(2) / 9.0);
+        let nu = nu_of(&two_dofs, &[(0, 1, 0.5)]);
+        assert!(close(nu, ws, 1e-9 * ws), "{nu} vs {ws}");
+        let b_pair = [
+            Input::type_b("a", 1.0, 0.1, Dist::Normal),
+            Input::type_b("b", 1.0, 0.1, Dist::Normal),
+            Input::type_a("c", 1.0, 0.1, 5.0),
+        ];
+        let nu = nu_of(&b_pair, &[(0, 1, 0.9)]);
+        assert!(close(nu, 45.0, 1e-9), "{nu}");
+        let one_dof = [
+            Input::type_a("a", 1.0, 0.1, 4.0),
+            Input::type_a("b", 1.0, 0.2, 4.0),
+        ];
+        assert!(close(nu_of(&one_dof, &[(0, 1, 0.5)]), 4.0, 1e-9));
+    }
+
+    // G.4.1's ratio does not depend on the contributions' scale (a value in farads gives
+    // c·u ~ 1e-12, whose fourth power is near the bottom of f64).
+    #[test]
+    fn welch_satterthwaite_is_scale_free() {
+        let ws = 25.0 / (0.25 + 16.0 / 9.0);
+        for s in [1.0, 1e-100, 1e100, 1e-160] {
+            let nu = welch_satterthwaite(&[(s, Some(4.0)), (2.0 * s, Some(9.0))]).unwrap();
+            assert!(close(nu, ws, 1e-12 * ws), "scale {s}: {nu}");
+        }
+        assert_eq!(welch_satterthwaite(&[(1e300, Some(4.0))]), Some(4.0));
+        for bad in [
+            vec![],
+            vec![(0.0, Some(3.0))],
+            vec![(1.0, None)],
+            vec![(f64::INFINITY, Some(3.0)), (1.0, Some(3.0))],
+            vec![(f64::NAN, Some(3.0)), (1.0, Some(3.0))],
+        ] {
+            assert_eq!(welch_satterthwaite(&bad), None, "{bad:?}");
+        }
     }
 
     // GUM 4.3.7 (rectangular a/√3) and 4.3.3 (normal: a/k).
