@@ -117,6 +117,111 @@ fn model_results_are_judged_and_cited() {
     assert_eq!(format!("{:?}", v[0].outcome), "Pass");
 }
 
+// Each row of a written model gets its Monte Carlo interval (JCGM 101) and the §8 check of
+// its GUM interval, as the built-in coil rows do. The FORMAT.md example is near linear
+// (u(R1) is 0.58 %), so the Monte Carlo u and mean agree with GUM's (within 1 % of u, JCGM 101
+// §5.1); its output is dominated by three rectangular inputs (two meter gains and R1's
+// tolerance), flatter than normal, so the Monte Carlo interval is inside y ± 2u.
+#[test]
+fn a_near_linear_model_gets_monte_carlo_beside_gum() {
+    let blocks = reduce(&notebook_with(&[("m", "model", EXAMPLE)]));
+    let m = &blocks[0];
+    assert_eq!(m.rows.len(), 8);
+    for r in &m.rows {
+        let mc =
+            r.m.mc
+                .as_ref()
+                .unwrap_or_else(|| panic!("no Monte Carlo for {}", r.name));
+        assert!(
+            mc.trials >= 100_000 && mc.dropped == 0,
+            "{}: {mc:?}",
+            r.name
+        );
+        assert!(
+            ((mc.u - r.m.u) / r.m.u).abs() < 0.01,
+            "{}: {} vs {}",
+            r.name,
+            mc.u,
+            r.m.u
+        );
+        assert!(
+            (mc.mean - r.m.value).abs() < 0.01 * r.m.u,
+            "{}: {mc:?}",
+            r.name
+        );
+        let u2 = 2.0 * r.m.u;
+        assert!(
+            mc.low > r.m.value - u2 && mc.high < r.m.value + u2,
+            "{mc:?}"
+        );
+        assert!(
+            mc.low < r.m.value - 0.9 * u2 && mc.high > r.m.value + 0.9 * u2,
+            "{mc:?}"
+        );
+    }
+}
+
+// y = exp((R1 − 2200 Ω)/10 Ω) with R1 rectangular on 2200 ± 22 Ω (1 %, GUM 4.3.7): c·a = 2.2.
+// Its probabilistically symmetric interval at p is exp(±2.2·p) exactly (the quantiles of a
+// uniform variable through a monotonic function), its mean sinh(2.2)/2.2 and its second
+// moment sinh(4.4)/4.4 (integrals of exp over an interval, calculus). The GUM interval,
+// 1 ± k·2.2/√3, fails JCGM 101 §8, so the record prints the Monte Carlo one and says so.
+#[test]
+fn a_skewed_model_gets_its_monte_carlo_interval() {
+    let model = "model:\n  y: { expr: \"exp((R1 - 2200) / 10)\", unit: 1 }\n";
+    let blocks = reduce(&notebook_with(&[("nl", "model", model)]));
+    let b = &blocks[0];
+    let p = 0.9545;
+    let (lo, hi) = ((-2.2 * p as f64).exp(), (2.2 * p as f64).exp());
+    let mean = 2.2f64.sinh() / 2.2;
+    let sd = (4.4f64.sinh() / 4.4 - mean * mean).sqrt();
+    for r in &b.rows {
+        let mc = r.m.mc.as_ref().unwrap();
+        assert!(!mc.gum_validated, "{mc:?}");
+        assert!((mc.low - lo).abs() < 0.01 * lo, "low {} vs {lo}", mc.low);
+        assert!((mc.high - hi).abs() < 0.02 * hi, "high {} vs {hi}", mc.high);
+        assert!(
+            (mc.mean - mean).abs() < 0.01 * mean,
+            "mean {} vs {mean}",
+            mc.mean
+        );
+        assert!((mc.u - sd).abs() < 0.01 * sd, "u {} vs {sd}", mc.u);
+    }
+    assert!(
+        b.flags.iter().any(|f| !f.warn
+            && f.message
+                .contains("not near enough to linear or to normal for the GUM interval")
+            && f.message.contains("JCGM 101 §8")),
+        "{:?}",
+        b.flags
+    );
+}
+
+// √(R1 − 2200 Ω) has no value for half of a symmetric R1: about half the trials are left
+// out (binomial, n ≥ 1e5: within ±2 %), and above 1 % that is a warning at each row.
+#[test]
+fn trials_without_a_value_are_counted_and_warned() {
+    let model = "model:\n  y: { expr: \"sqrt(R1 - 2200)\", unit: 1 }\n";
+    let text = notebook_with(&[("dr", "model", model)]);
+    let blocks = reduce(&text);
+    let b = &blocks[0];
+    for r in &b.rows {
+        let mc = r.m.mc.as_ref().unwrap();
+        let share = mc.dropped as f64 / (mc.dropped + mc.trials) as f64;
+        assert!((share - 0.5).abs() < 0.02, "{mc:?}");
+    }
+    let warned: Vec<_> = b
+        .flags
+        .iter()
+        .filter(|f| f.warn && f.message.contains("Monte Carlo trials drew readings at which an expression of the model has no value"))
+        .collect();
+    assert_eq!(warned.len(), 4, "{:?}", b.flags);
+    let row = text.find("1000    1.36979").unwrap();
+    assert!(warned
+        .iter()
+        .any(|f| f.span.is_some_and(|s| s.start == row)));
+}
+
 // A division by zero at a reading, and the root of a negative number, are refused at the
 // row they fail at (the 1 kHz row, line of `1000`), naming the expression: never a NaN.
 #[test]
