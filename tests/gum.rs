@@ -113,6 +113,49 @@ fn gum_h2_resistance_reactance() {
     );
 }
 
+// The same Annex H.2 written as a measurement model in the notebook (`network: model`,
+// FORMAT.md 1.1): R = V/I·cos φ, X = V/I·sin φ, |Z| = V/I over the same five sets must give
+// Table H.3's values and uncertainties (approach 1), with ν_eff = 4 (GUM H.2.4).
+#[test]
+fn gum_h2_written_as_a_model() {
+    let sets = [
+        [5.007, 19.663, 1.0456],
+        [4.994, 19.639, 1.0438],
+        [5.005, 19.640, 1.0468],
+        [4.990, 19.685, 1.0428],
+        [4.999, 19.678, 1.0433],
+    ];
+    let mut table = String::from("V/V I/mA phi/rad\n");
+    for [v, i, phi] in sets {
+        table.push_str(&format!("{v} {i} {phi}\n"));
+    }
+    let src = format!(
+        "---\nrecord: GUM-H2M\ntitle: Annex H.2 as a model\ndate: 2026-05-02\noperator: test\n---\n\n\
+         ```readings\nid: h2m\nnetwork: model\nmodel:\n  R: {{ expr: \"V / I * cos(phi)\", unit: ohm }}\n  X: {{ expr: \"V / I * sin(phi)\", unit: ohm }}\n  Z: {{ expr: \"V / I\", unit: ohm }}\n---\n{table}```\n"
+    );
+    let nb = parse(&src).unwrap_or_else(|d| panic!("the fixture parses: {d:?}"));
+    let b = networks::reduce(&nb).expect("H.2 reduces").blocks.remove(0);
+    let get = |n: &str| {
+        b.results
+            .iter()
+            .find(|r| r.name == n)
+            .unwrap_or_else(|| panic!("no {n}"))
+            .m
+            .clone()
+    };
+    for (n, value, u) in [
+        ("R", 127.732, 0.071),
+        ("X", 219.847, 0.295),
+        ("Z", 254.260, 0.236),
+    ] {
+        let m = get(n);
+        assert!(within(m.value, value, 0.001), "{n} = {}", m.value);
+        assert!(within(m.u, u, 0.001), "u({n}) = {}", m.u);
+        let nu = m.dof.expect("finite dof");
+        assert!((nu - 4.0).abs() < 1e-9, "ν_eff({n}) = {nu}");
+    }
+}
+
 // Physically impossible readings (zero current) are a diagnostic at the cell, never NaN.
 #[test]
 fn zero_current_is_a_diagnostic() {
