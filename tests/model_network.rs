@@ -168,7 +168,9 @@ fn a_near_linear_model_gets_monte_carlo_beside_gum() {
 // 1 ± k·2.2/√3, fails JCGM 101 §8, so the record prints the Monte Carlo one and says so.
 #[test]
 fn a_skewed_model_gets_its_monte_carlo_interval() {
-    let model = "model:\n  y: { expr: \"exp((R1 - 2200) / 10)\", unit: 1 }\n";
+    // 10 Ω is written R1 − R1 + 10: a number in a sum takes its neighbour's unit, so the
+    // argument of exp is a pure number.
+    let model = "model:\n  y: { expr: \"exp((R1 - 2200) / (R1 - R1 + 10))\", unit: 1 }\n";
     let blocks = reduce(&notebook_with(&[("nl", "model", model)]));
     let b = &blocks[0];
     let p = 0.9545;
@@ -201,7 +203,7 @@ fn a_skewed_model_gets_its_monte_carlo_interval() {
 // out (binomial, n ≥ 1e5: within ±2 %), and above 1 % that is a warning at each row.
 #[test]
 fn trials_without_a_value_are_counted_and_warned() {
-    let model = "model:\n  y: { expr: \"sqrt(R1 - 2200)\", unit: 1 }\n";
+    let model = "model:\n  y: { expr: \"sqrt((R1 - 2200) / (R1 - R1 + 1))\", unit: 1 }\n";
     let text = notebook_with(&[("dr", "model", model)]);
     let blocks = reduce(&text);
     let b = &blocks[0];
@@ -222,14 +224,42 @@ fn trials_without_a_value_are_counted_and_warned() {
         .any(|f| f.span.is_some_and(|s| s.start == row)));
 }
 
+// A result whose expression cannot have its unit is refused at the unit word (VR/VC is a pure
+// number, not farads: F = s/Ω, SI Brochure Table 4); one whose expression has no dimension
+// (volts added to ohms) at the expression. Both name the units the names carry.
+#[test]
+fn a_unit_the_expression_cannot_have_is_refused_where_it_stands() {
+    let model =
+        "model:\n  C: { expr: \"VR / VC\", unit: F }\n  Z: { expr: \"VR + R1\", unit: ohm }\n";
+    let text = notebook_with(&[("m", "model", model)]);
+    let nb = notebook::parse(&text).unwrap_or_else(|d| panic!("{d:?}"));
+    let d = benchrec::networks::reduce(&nb).expect_err("refused");
+    assert_eq!(d.len(), 2, "{d:?}");
+    let unit_at = text.find("unit: F").unwrap() + "unit: ".len();
+    assert_eq!((d[0].span.start, d[0].span.end), (unit_at, unit_at + 1));
+    assert!(
+        d[0].message == "C = VR / VC has the dimension 1 (a pure number), not that of its unit F",
+        "{}",
+        d[0].message
+    );
+    assert!(d[0]
+        .help
+        .as_deref()
+        .unwrap_or("")
+        .contains("VC in V, VR in V"));
+    let expr_at = text.find("\"VR + R1\"").unwrap();
+    assert_eq!((d[1].span.start, d[1].span.end), (expr_at + 1, expr_at + 8));
+    assert!(d[1].message.contains("adds V and Ω"), "{}", d[1].message);
+}
+
 // A division by zero at a reading, and the root of a negative number, are refused at the
 // row they fail at (the 1 kHz row, line of `1000`), naming the expression: never a NaN.
 #[test]
 fn a_result_that_fails_at_a_reading_is_a_located_error() {
     for model in [
-        "model:\n  Z: { expr: \"VR / (VC - 1.45728)\", unit: ohm }\n",
-        "model:\n  Z: { expr: \"sqrt(1.45728 - VC - 1e-9) * R1\", unit: ohm }\n",
-        "model:\n  Z: { expr: \"ln(VC - 1.45728) + R1\", unit: ohm }\n",
+        "model:\n  Z: { expr: \"VR / (VC - 1.45728) * R1\", unit: ohm }\n",
+        "model:\n  Z: { expr: \"sqrt(1.45728 - VC - 1e-9) / sqrt(VC) * R1\", unit: ohm }\n",
+        "model:\n  Z: { expr: \"ln((VC - 1.45728) / VC) * R1\", unit: ohm }\n",
     ] {
         let text = notebook_with(&[("m", "model", model)]);
         let nb = notebook::parse(&text).unwrap_or_else(|d| panic!("{d:?}"));

@@ -103,6 +103,9 @@ macro_rules! our_operators {
     }};
 }
 
+mod dim;
+pub use dim::Dim;
+
 /// x^y, with a square as x·x (correctly rounded, and a tenth of the cost of `powf`).
 fn power(a: f64, b: f64) -> f64 {
     if b == 2.0 {
@@ -214,6 +217,8 @@ pub struct Expr {
     flat: FlatEx<f64, Ops, Number>,
     /// The same text over chunks of Monte Carlo trials.
     lanes: FlatEx<Lanes, LaneOps, Number>,
+    /// The same text over dimensions.
+    dims: FlatEx<Dim, dim::DimOps, Number>,
     pub vars: Vec<(String, Span)>,
 }
 
@@ -221,6 +226,14 @@ impl Expr {
     /// The value with the variables' values in the order of `vars` (NaN on any failure).
     pub fn eval(&self, vals: &[f64]) -> f64 {
         self.flat.eval(vals).unwrap_or(f64::NAN)
+    }
+
+    /// The dimension the expression has when its variables (in the order of `vars`) have
+    /// theirs.
+    pub fn dimension(&self, vars: Vec<Dim>) -> Dim {
+        self.dims
+            .eval_vec(vars)
+            .unwrap_or_else(|e| Dim::Clash(e.to_string()))
     }
 
     /// [`Self::eval`] of `n` trials at once, each variable's values a column of `n`, into
@@ -241,9 +254,13 @@ pub struct ModelResult {
     pub name: String,
     pub name_span: Span,
     pub unit: Unit,
+    /// The unit word in the header.
+    pub unit_span: Span,
     pub expr: Expr,
     /// The expression's value in the header.
     pub span: Span,
+    /// The expression's text in the notebook (`span` when it is not there verbatim).
+    pub text_span: Span,
 }
 
 /// Where each byte of an expression text lies in the notebook: `start` when the text sits
@@ -309,8 +326,13 @@ pub fn compile(text: &str, place: Place, parts: Option<&[&str]>) -> Result<Expr,
         }
     };
     // The same parser with the same operators: this cannot fail where the scalar form did not.
-    let Ok(Ok(lanes)) = std::panic::catch_unwind(|| FlatEx::<Lanes, LaneOps, Number>::parse(text))
-    else {
+    let forms = std::panic::catch_unwind(|| {
+        (
+            FlatEx::<Lanes, LaneOps, Number>::parse(text),
+            FlatEx::<Dim, dim::DimOps, Number>::parse(text),
+        )
+    });
+    let Ok((Ok(lanes), Ok(dims))) = forms else {
         return Err(
             Diagnostic::new(place.span, "the expression could not be read")
                 .expected("a well-formed expression"),
@@ -331,6 +353,7 @@ pub fn compile(text: &str, place: Place, parts: Option<&[&str]>) -> Result<Expr,
         text: text.to_string(),
         flat,
         lanes,
+        dims,
         vars: ordered,
     })
 }
@@ -548,6 +571,7 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
             }
         }
     }
+    diags.extend(results.iter().filter_map(|r| dimension_check(ctx, r)));
     if !diags.is_empty() {
         return Err(diags);
     }
@@ -649,6 +673,76 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         flags,
         plot,
     })
+}
+
+/// The dimension a name carries in an expression: a column's by its symbol, a part's by its
+/// kind (None: an unknown name, refused elsewhere).
+fn dim_of_name(ctx: &Context, name: &str) -> Option<Dim> {
+    let unit = symbol_unit(name).or_else(|| {
+        Some(match ctx.parts.get(name)?.kind {
+            PartKind::Resistor => Unit::Ohm,
+            PartKind::Capacitor => Unit::F,
+            PartKind::Inductor => Unit::H,
+        })
+    })?;
+    dim::of_unit(unit).map(Dim::Of)
+}
+
+/// The SI unit of a column symbol's values (an angle and a fraction of a period are pure).
+fn symbol_unit(name: &str) -> Option<Unit> {
+    Some(match name {
+        "f" => Unit::Hz,
+        "I" | "IR" | "IC" | "IL" => Unit::A,
+        "phi" | "shift" | "period" => Unit::One,
+        v if SYMBOLS.contains(&v) => Unit::V,
+        _ => return None,
+    })
+}
+
+/// A result whose expression cannot have the dimension of its unit is refused at the unit; an
+/// expression that has none (volts added to ohms, the sine of a voltage) at the expression.
+fn dimension_check(ctx: &Context, r: &ModelResult) -> Option<Diagnostic> {
+    let vars: Option<Vec<Dim>> = r
+        .expr
+        .vars
+        .iter()
+        .map(|(v, _)| dim_of_name(ctx, v))
+        .collect();
+    let carried = || {
+        let list: Vec<String> = r
+            .expr
+            .vars
+            .iter()
+            .filter_map(|(v, _)| match dim_of_name(ctx, v)? {
+                Dim::Of(d) => Some(format!("{v} in {}", dim::show(&d))),
+                _ => None,
+            })
+            .collect();
+        format!("the names carry their SI units: {}", list.join(", "))
+    };
+    match r.expr.dimension(vars?) {
+        Dim::Clash(why) => Some(
+            Diagnostic::new(r.text_span, format!("{} = {} {why}", r.name, r.expr.text))
+                .expected("terms of one dimension, and pure numbers as the arguments of exp, ln, log10 and the angle functions")
+                .help(carried()),
+        ),
+        Dim::Of(d) if dim::of_unit(r.unit).is_some_and(|u| u != d) => Some(
+            Diagnostic::new(
+                r.unit_span,
+                format!(
+                    "{} = {} has the dimension {}, not that of its unit {}",
+                    r.name,
+                    r.expr.text,
+                    dim::show(&d),
+                    r.unit.symbol()
+                ),
+            )
+            .expected(format!("a unit of dimension {}", dim::show(&d)))
+            .found(crate::quantity::dimension_name(r.unit).to_string())
+            .help(carried()),
+        ),
+        _ => None,
+    }
 }
 
 /// Monte Carlo (JCGM 101) of every row's results, each with the §8 check of its GUM
@@ -980,6 +1074,64 @@ mod tests {
         }
         assert_eq!(ok("VR^2").eval(&[3.0]), 9.0);
         assert_eq!(ok("VR^3").eval(&[2.0]), 8.0);
+    }
+
+    // Dimensions by the SI's coherent derived units (SI Brochure, 9th ed., Table 4): Ω = V/A,
+    // F = A·s/V = s/Ω, H = V·s/A = Ω·s, W = V·A, Hz = 1/s; so 1/(2π√(LC)) is in Hz and ωL in Ω.
+    #[test]
+    fn dimensions_of_expressions() {
+        let dim_of = |text: &str| {
+            let e = ok(text);
+            let vars: Vec<Dim> = e
+                .vars
+                .iter()
+                .map(|(v, _)| {
+                    let u = match v.as_str() {
+                        "R1" => Unit::Ohm,
+                        "C1" => Unit::F,
+                        v => symbol_unit(v).unwrap(),
+                    };
+                    Dim::Of(dim::of_unit(u).unwrap())
+                })
+                .collect();
+            e.dimension(vars)
+        };
+        let is = |text: &str, u: Unit| {
+            assert_eq!(dim_of(text), Dim::Of(dim::of_unit(u).unwrap()), "{text}");
+        };
+        is("VR / (2*pi*f*R1*VC)", Unit::F);
+        is("VC * R1 / VR", Unit::Ohm);
+        is("1 / (2*pi*sqrt(R1*C1*R1*C1))", Unit::Hz);
+        is("VR / R1", Unit::A);
+        is("VR * I", Unit::W);
+        is("VC - 0.002", Unit::V);
+        is("hypot(VR, 1) * VR / VR", Unit::V);
+        is("VR^(3-1) / VR", Unit::V);
+        is("sqrt(VR^2 - VC^2) / VC", Unit::One);
+        is("atan2(VR, VC) + phi + 2*pi*shift/period", Unit::One);
+        is("abs(-VR)", Unit::V);
+        is("R1 * C1", Unit::S);
+        assert_eq!(dim_of("2 * 3 ^ 2"), Dim::Num(18.0));
+        for (text, why) in [
+            ("VR + R1", "adds V and Ω"),
+            ("VR - I", "subtracts V and A"),
+            ("sin(VR)", "takes sin of a quantity in V"),
+            ("ln(R1)", "takes ln of a quantity in Ω"),
+            ("VR ^ VC", "raises to a power in V"),
+            ("R1 ^ (VR / VC)", "not a written number"),
+            ("R1 ^ 0.3", "raises Ω to the power 0.3"),
+            ("sqrt(sqrt(R1))", "square root of Ω^(1/2)"),
+            ("atan2(VR, I)", "takes atan2 of V and A"),
+            ("hypot(R1, C1)", "takes hypot of Ω and F"),
+        ] {
+            match dim_of(text) {
+                Dim::Clash(m) => assert!(m.contains(why), "{text}: {m}"),
+                other => panic!("{text}: {other:?}"),
+            }
+        }
+        assert_eq!(dim::show(&[1, 2, -3, -2]), "Ω^(1/2)");
+        assert_eq!(dim::show(&[0, 0, 4, 0]), "s^2");
+        assert_eq!(dim::show(&[2, 1, 0, 0]), "kg·m^(1/2)");
     }
 
     #[test]

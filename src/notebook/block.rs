@@ -501,6 +501,7 @@ fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResul
             continue;
         };
         let unit = model_unit(ex, &path, u);
+        let unit_span = y.value_span(&[path[0], path[1], "unit"]);
         let epath = ["model", name.as_str(), "expr"];
         let Some(text) = ex.nonempty_text(&epath, e) else {
             continue;
@@ -524,8 +525,10 @@ fn model_key(cx: &BlockCtx, ex: &mut ValueReader, val: &Value) -> Vec<ModelResul
                         name: name.clone(),
                         name_span,
                         unit,
+                        unit_span,
                         expr,
                         span,
+                        text_span: start.map_or(span, |s| Span::new(s, s + text.len())),
                     });
                 }
             }

@@ -211,6 +211,8 @@ case("mdl-unbalanced", mdl("(VR").replace("  C: {", "⟧  C: {"), "could not be 
 case("mdl-operator-run", mdl("VR * / VC").replace("  C: {", "⟧  C: {"), "could not be read", "two operators in a row")
 case("mdl-empty", mdl("").replace("  C: {", "⟧  C: {"), "is empty|must not be empty", "an empty expression")
 case("mdl-unit-unknown", mdl("VR / (2*pi*f*R1*VC)", "⟦nF"), "not a unit a model result may have", "a prefixed unit word")
+case("mdl-unit-dimension", mdl("VR / VC", "⟦F"), "not that of its unit", "a unit the expression cannot have (a pure number as farads)")
+case("mdl-dimension-clash", mdl("⟦VR + R1"), "adds V and", "volts added to ohms in an expression")
 case("mdl-missing-model", sub("```readings\nid: blk\nnetwork: RC\n", "⟦```readings\nid: blk\nnetwork: model\n"), "needs `model`", "network model without its model")
 case("mdl-model-on-rc", sub("network: RC\n", 'network: RC\n⟦model:\n  C: { expr: "VR", unit: F }\n'), "applies only to a block with", "a model on a built-in network")
 case("mdl-column-absent", mdl("VR / (2*pi*f*R1*⟦VL)"), "not in this block's table", "a model reading a column the table lacks")
