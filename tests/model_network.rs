@@ -296,10 +296,12 @@ fn unknown_names_are_refused_where_they_stand() {
         e.contains("R1") && e.contains("hypot") && e.contains("pi"),
         "{e}"
     );
+    assert_eq!(d.help.as_deref(), Some("did you mean `R1`?"));
     // An unknown function, and a unit word outside the list.
     let model = "model:\n  C: { expr: \"cosh(VR)\", unit: F }\n";
     let (d, ..) = refused(&notebook_with(&[("m", "model", model)]));
     assert!(d.message.contains("not a function"), "{}", d.message);
+    assert_eq!(d.help.as_deref(), Some("did you mean `cos`?"));
     let model = "model:\n  C: { expr: \"VR\", unit: nF }\n";
     let (d, ..) = refused(&notebook_with(&[("m", "model", model)]));
     assert!(d.message.contains("not a unit"), "{}", d.message);

@@ -530,9 +530,23 @@ fn check_name(
     } else {
         format!("`{name}` is no name an expression may use")
     };
-    Err(Diagnostic::new(at, what)
+    // A near miss among what this place allows: functions for a call, else names.
+    let mut known: Vec<&str> = if call {
+        FUNCTIONS.to_vec()
+    } else {
+        let mut k = SYMBOLS.to_vec();
+        k.push("pi");
+        k.extend(parts.unwrap_or(&[]));
+        k
+    };
+    known.sort_unstable();
+    let mut d = Diagnostic::new(at, what)
         .expected(allowed())
-        .found(format!("`{name}`")))
+        .found(format!("`{name}`"));
+    if let Some(s) = crate::notebook::words::suggest(name, &known) {
+        d = d.help(s);
+    }
+    Err(d)
 }
 
 /// What each variable of an expression reads.

@@ -23,7 +23,7 @@ mod readout;
 pub mod register;
 mod table;
 mod values;
-mod words;
+pub(crate) mod words;
 mod yaml;
 
 pub use file_table::{read_tables, table_refs, TABLE_MAX_BYTES};

@@ -25,7 +25,7 @@ fn edit_distance(a: &str, b: &str) -> usize {
 }
 
 /// "did you mean …?" for a near miss among `known`.
-pub(super) fn suggest(word: &str, known: &[&str]) -> Option<String> {
+pub(crate) fn suggest(word: &str, known: &[&str]) -> Option<String> {
     if word.chars().count() > 64 {
         return None;
     }
