@@ -246,3 +246,45 @@ fn the_snubber_record_prints_one_shared_gain() {
         assert!(!flat.contains(col), "{col} printed");
     }
 }
+
+// The whole RLC chain, readings → |Y| → fit → f0, Q, BW, L, C, Rtotal, against an independent
+// first-order propagation whose sensitivities come from re-fitting with scipy's curve_fit
+// (tests/reference/rlc_shared_gain.py, its .md and .out). Vs and VR on one range share one
+// gain, which cancels in |Y| = VR/(R·Vs): u(Rtotal) is then R1's alone; with VR named on the
+// 20 V range the two gains are independent and u(Rtotal), u(L), u(C) grow. f0 and Q do not
+// depend on a scale of |Y|, so theirs are the readings' offsets' either way.
+#[test]
+fn rlc_chain_with_shared_and_independent_gains_matches_scipy() {
+    let shared = include_str!("reference/rlc_shared_gain.md");
+    let heading = "f/Hz    Vs/V    VR/V\n";
+    assert!(shared.contains(heading));
+    let independent = shared.replace(heading, "f/Hz    Vs/V    VR/V@20V\n");
+    let reference = include_str!("reference/rlc_shared_gain.out");
+    let mut checked = 0;
+    for (case, text) in [("shared", shared), ("independent", independent.as_str())] {
+        let b = block_of(text);
+        for line in reference.lines().filter(|l| l.starts_with(case)) {
+            let v: Vec<&str> = line.split_whitespace().collect();
+            let (name, value, u): (&str, f64, f64) =
+                (v[1], v[2].parse().unwrap(), v[3].parse().unwrap());
+            let m = &b
+                .results
+                .iter()
+                .find(|r| r.name == name && r.f.is_none())
+                .unwrap_or_else(|| panic!("{case}: no {name}"))
+                .m;
+            assert!(
+                ((m.value - value) / value).abs() < 1e-9,
+                "{case} {name}: {} vs {value}",
+                m.value
+            );
+            assert!(
+                ((m.u - u) / u).abs() < 5e-5,
+                "{case} u({name}): {} vs {u}",
+                m.u
+            );
+            checked += 1;
+        }
+    }
+    assert_eq!(checked, 12);
+}
