@@ -23,6 +23,22 @@ use rayon::prelude::*;
 
 /// Trials per batch (JCGM 101 §7.9.4 b): M = max(100/(1 − p), 10⁴) for p ≤ 0.99).
 pub const BATCH: usize = 10_000;
+
+/// Most rows of one block that get a Monte Carlo run each: the adaptive rule draws at least
+/// 10⁵ trials a row, so a long sweep would otherwise cost minutes. A longer block keeps its
+/// GUM intervals, unvalidated, and says so ([`rows_skipped`]).
+pub const MAX_ROWS: usize = 100;
+
+/// The note of a block whose `rows` exceed [`MAX_ROWS`].
+pub fn rows_skipped(rows: usize, span: crate::diag::Span) -> crate::networks::Flag {
+    crate::networks::Flag {
+        warn: false,
+        span: Some(span),
+        message: format!(
+            "Monte Carlo was not run on this block's {rows} rows (more than {MAX_ROWS}): its GUM intervals are not checked against JCGM 101 §8"
+        ),
+    }
+}
 /// Batches computed at once in the adaptive procedure. The stopping test runs batch by batch
 /// in order, so the result does not depend on this number; it only bounds the batches drawn
 /// past the stopping point.

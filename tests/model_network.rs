@@ -252,6 +252,37 @@ fn a_unit_the_expression_cannot_have_is_refused_where_it_stands() {
     assert!(d[1].message.contains("adds V and Ω"), "{}", d[1].message);
 }
 
+// A block of more than 100 rows (here 101 frequencies) keeps its GUM intervals and says that
+// Monte Carlo was not run, rather than spend 10⁵ trials on every row.
+#[test]
+fn a_long_block_is_not_run_through_monte_carlo_row_by_row() {
+    let mut t = synthetic_front("MODEL-02", "Long model block (synthetic)", "2026-10-09");
+    t.push_str(&format!(
+        "Invented readings.\n\n```readings\nid: long\nnetwork: model\nparts: [R1, C1]\nmeter: dmm\n{EXAMPLE}---\nf/Hz VR/V VC/V\n"
+    ));
+    for k in 0..101 {
+        let f = 300.0 + 10.0 * k as f64;
+        let xc = 1.0 / (2.0 * std::f64::consts::PI * f * 68e-9);
+        let z = (2200.0f64).hypot(xc);
+        t.push_str(&format!(
+            "{f} {:.5} {:.5}\n",
+            2.0 * 2200.0 / z,
+            2.0 * xc / z
+        ));
+    }
+    t.push_str("```\n");
+    let b = &reduce(&t)[0];
+    assert_eq!(b.rows.len(), 202);
+    assert!(b.rows.iter().all(|r| r.m.mc.is_none() && r.m.u > 0.0));
+    assert!(
+        b.flags.iter().any(|f| !f.warn
+            && f.message
+                .starts_with("Monte Carlo was not run on this block's 101 rows (more than 100)")),
+        "{:?}",
+        b.flags
+    );
+}
+
 // A division by zero at a reading, and the root of a negative number, are refused at the
 // row they fail at (the 1 kHz row, line of `1000`), naming the expression: never a NaN.
 #[test]

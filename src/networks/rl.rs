@@ -485,7 +485,11 @@ pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<D
         layout: &layout,
         p: &p,
     };
-    monte_carlo_rows(&run, &ok.tri, &mut rows, &mut flags);
+    if ng <= crate::montecarlo::MAX_ROWS {
+        monte_carlo_rows(&run, &ok.tri, &mut rows, &mut flags);
+    } else {
+        flags.push(crate::montecarlo::rows_skipped(ng, block.span));
+    }
     let correlations = row_flags(&run, &mut flags);
     let results = block_results(&run, &full, &weights, dcr_value, &mut flags);
     let plot = plot_of(&rows);

@@ -147,7 +147,10 @@ fn product(a: Dim, b: Dim, sign: i16, value: fn(f64, f64) -> f64) -> Dim {
         (Dim::Num(x), Dim::Num(y)) => Dim::Num(value(x, y)),
         (a, b) => {
             let (x, y) = (of(&a).unwrap_or(PURE), of(&b).unwrap_or(PURE));
-            Dim::Of(std::array::from_fn(|i| x[i] + sign * y[i]))
+            // Saturating: only an absurd expression gets there, and no unit is that far out.
+            Dim::Of(std::array::from_fn(|i| {
+                x[i].saturating_add(y[i].saturating_mul(sign))
+            }))
         }
     }
 }
@@ -165,7 +168,7 @@ fn raise(d: Exps, e: f64) -> Option<Dim> {
     let scaled: Vec<f64> = d.iter().map(|&x| f64::from(x) * e).collect();
     scaled
         .iter()
-        .all(|x| x.fract() == 0.0 && x.abs() < 1e4)
+        .all(|x| x.fract() == 0.0 && x.abs() < 3e4)
         .then(|| Dim::Of(std::array::from_fn(|i| scaled[i] as i16)))
 }
 
