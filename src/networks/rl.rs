@@ -1423,4 +1423,24 @@ mod tests {
         let c = consistency(&[1.0, 1.5], &[vec![1.01, 1.0], vec![1.0, 1.01]]).unwrap();
         assert!(!c.consistent && c.generalised);
     }
+
+    // A covariance that is not n × n, or a single estimate, has no agreement test. A nearly
+    // singular one (u = 0.01, r = 1 − 1e-12: Cholesky L₂₂ = u·√(1 − r²) ≈ 1.4e-8, above the
+    // 1e-9·u cut) keeps the generalised form, whose χ² for two estimates is
+    // d²/(V₁₁ + V₂₂ − 2V₁₂) = (1e-8)²/(2e-16) = 0.5 (algebra of the 2 × 2 inverse).
+    #[test]
+    fn consistency_shapes_and_a_nearly_singular_covariance() {
+        let eye = || vec![vec![1.0, 0.0], vec![0.0, 1.0]];
+        let mut three = eye();
+        three.push(vec![0.0, 1.0]);
+        assert_eq!(consistency(&[1.0, 2.0], &three), None);
+        assert_eq!(consistency(&[1.0, 2.0], &[vec![1.0, 0.0], vec![0.0]]), None);
+        assert_eq!(consistency(&[1.0], &[vec![1.0]]), None);
+        assert!(consistency(&[1.0, 2.0], &eye()).is_some());
+        let (v, r) = (1e-4, 1.0 - 1e-12);
+        let cov = [vec![v, r * v], vec![r * v, v]];
+        let c = consistency(&[1.0, 1.0 + 1e-8], &cov).unwrap();
+        assert!(c.generalised, "{c:?}");
+        assert!((c.chi2 - 0.5).abs() < 1e-3, "{c:?}");
+    }
 }
