@@ -1199,6 +1199,78 @@ mod tests {
         }
     }
 
+    // The same coil against a dcr above its Rac (30 Ω) and equal to it (27.5 Ω): the first is a
+    // warning that no coil does that, the second "equal within" (a coil's AC resistance is at
+    // least its DC resistance: skin and proximity effect, core loss; common practice). Rows carry
+    // their units (I in A, L in H, Q a pure number, the rest Ω), and each row's conditioning
+    // verdict follows its printed u(L)/L: within 5 % alike, else the smaller one is better.
+    #[test]
+    fn dcr_above_rac_is_a_warning_and_rows_carry_units() {
+        for (dcr, words, warn) in [
+            (30.0, "Rac is below the DC resistance", true),
+            (27.5, "equal within the expanded uncertainty", false),
+        ] {
+            let mut env = Env::new();
+            env.parts.insert(
+                "R3".into(),
+                resistor("R3", 100.0, Some(Tolerance::Relative(0.001))),
+            );
+            env.parts.insert("L3".into(), coil("L3", Some(dcr)));
+            let data: Vec<Vec<f64>> = [300.0, 600.0, 1200.0]
+                .iter()
+                .map(|&f| ideal(100.0, 0.0683, 27.5, 1.7, f).to_vec())
+                .collect();
+            let mut b = block(Network::RL, &cols(), &data);
+            b.parts = vec![named("R3"), named("L3")];
+            let out = reduce(&env.ctx(), &b).unwrap();
+            let flag = out
+                .flags
+                .iter()
+                .find(|f| f.message.starts_with("Rac (mean) = "))
+                .unwrap();
+            assert!(flag.message.contains(words), "{dcr}: {}", flag.message);
+            assert_eq!(flag.warn, warn, "{dcr}: {}", flag.message);
+            for r in &out.rows {
+                let want = match r.name.as_str() {
+                    "I" => Unit::A,
+                    "L" | "L_dcr" => Unit::H,
+                    "Q" => Unit::One,
+                    _ => Unit::Ohm,
+                };
+                assert_eq!(r.unit, want, "{}", r.name);
+            }
+            for f in [300.0, 600.0, 1200.0] {
+                let rel = |n: &str| {
+                    let r = out
+                        .rows
+                        .iter()
+                        .find(|r| r.name == n && r.f == Some(f))
+                        .unwrap();
+                    r.m.u / r.m.value
+                };
+                let (ra, rb) = (rel("L"), rel("L_dcr"));
+                let verdict = if (ra - rb).abs() <= 0.05 * ra.max(rb) {
+                    "about equally well conditioned"
+                } else if ra < rb {
+                    "the three-voltmeter method is better conditioned"
+                } else {
+                    "the DC-resistance correction method is better conditioned"
+                };
+                let at = format!("at {}: ", hz(f));
+                let said = out
+                    .flags
+                    .iter()
+                    .find(|x| x.message.starts_with(&at) && x.message.contains("conditioned"))
+                    .unwrap();
+                assert!(
+                    said.message.contains(verdict),
+                    "{ra} {rb}: {}",
+                    said.message
+                );
+            }
+        }
+    }
+
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
     #[test]
     fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
