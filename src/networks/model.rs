@@ -862,7 +862,7 @@ fn monte_carlo_rows(
             warn: false,
             span: Some(block.span),
             message: format!(
-                "the GUM and Monte Carlo intervals differ by more than the numerical tolerance (JCGM 101 §8) at {}: the result is not near enough to linear or to normal for the GUM interval, so the record prints the Monte Carlo interval (probabilistically symmetric, JCGM 101 §7.7.2) and judges with it",
+                "the GUM and Monte Carlo intervals differ by more than the numerical tolerance (JCGM 101 §8) at {}: the result is not near enough to linear or to normal for the GUM interval, so the record marks those results † and prints their Monte Carlo intervals (probabilistically symmetric, JCGM 101 §7.7.2) under the table",
                 not_validated.join("; ")
             ),
         });

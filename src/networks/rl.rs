@@ -802,7 +802,7 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
             warn: false,
             span: Some(block.span),
             message: format!(
-                "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: the record prints the Monte Carlo intervals there (probabilistically symmetric, JCGM 101 §7.7.2) beside the GUM ones",
+                "the GUM intervals differ from the Monte Carlo intervals by more than the numerical tolerance (JCGM 101 §8) at {}: the record marks those results † and prints their Monte Carlo intervals (probabilistically symmetric, JCGM 101 §7.7.2) under the table",
                 not_validated.join("; ")
             ),
         });

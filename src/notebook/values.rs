@@ -263,7 +263,14 @@ pub(super) fn undefined(
 ) -> Diagnostic {
     let names: Vec<&str> = known.iter().map(|s| s.as_str()).collect();
     let expected = if names.is_empty() {
-        format!("a {kind} defined under `{section}:` in the front matter (none are defined)")
+        let article = if kind.starts_with(['a', 'e', 'i', 'o', 'u']) {
+            "an"
+        } else {
+            "a"
+        };
+        format!(
+            "{article} {kind} defined under `{section}:` in the front matter (none are defined)"
+        )
     } else {
         format!("one of {}", list(&names))
     };

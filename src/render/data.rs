@@ -530,6 +530,9 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
         }
     }
     let (shown, omitted) = head_and_tail(freqs.len());
+    // Cells whose GUM interval Monte Carlo did not validate (JCGM 101 §8): marked, and their
+    // Monte Carlo intervals listed under the table.
+    let mut mc_list: Vec<Value> = Vec::new();
     let rows: Vec<Value> = shown
         .iter()
         .map(|&i| match i {
@@ -546,7 +549,19 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
                         Some(r) => {
                             let (v, e) = print::value_and_u(r.m.value / div, r.m.expanded / div);
                             let k = if *show_k { Some(k_text(r.m.k)) } else { None };
-                            json!({ "text": format!("{v} ± {e}"), "k": k })
+                            let mark = match r.m.mc.as_ref().filter(|mc| !mc.gum_validated && mc.trials >= 2) {
+                                Some(mc) => {
+                                    mc_list.push(json!({
+                                        "symbol": symbol_json(name),
+                                        "f": print::quantity(f, Unit::Hz),
+                                        "interval": print::interval(mc.low, mc.high, r.unit),
+                                        "conditional": mc_conditional(mc),
+                                    }));
+                                    " †"
+                                }
+                                None => "",
+                            };
+                            json!({ "text": format!("{v} ± {e}{mark}"), "k": k })
                         }
                         None => json!({ "text": "—", "k": null }),
                     }
@@ -573,7 +588,7 @@ fn frequency_json(block: &BlockResult) -> (Value, Value) {
     }
     let grid = json!({
         "f_unit": format!("{fprefix}Hz"), "columns": columns, "rows": rows, "omitted": omitted,
-        "widths": widths,
+        "widths": widths, "mc": mc_list,
     });
     (Value::Array(long), grid)
 }
