@@ -199,6 +199,30 @@ fn a_skewed_model_gets_its_monte_carlo_interval() {
     );
 }
 
+// On the page: each row result whose GUM interval Monte Carlo did not validate is marked †
+// in the per-frequency table, and its Monte Carlo interval is printed under the table.
+#[test]
+fn the_page_marks_unvalidated_rows_and_prints_their_intervals() {
+    let model = "model:\n  y: { expr: \"exp((R1 - 2200) / (R1 - R1 + 10))\", unit: 1 }\n";
+    let dir = tempfile::tempdir().unwrap();
+    let nb = dir.path().join("skewed.md");
+    std::fs::write(&nb, notebook_with(&[("nl", "model", model)])).unwrap();
+    let o = run(&["build", nb.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let text = pdf_text(&std::fs::read(dir.path().join("skewed.pdf")).unwrap());
+    let marked = text
+        .lines()
+        .filter(|l| l.trim_end().ends_with(" †"))
+        .count();
+    assert_eq!(marked, 4, "{text}");
+    assert!(text.contains("† The GUM interval is not validated by Monte Carlo (JCGM 101 §8)"));
+    // The text extraction spaces symbols apart; compare with single spaces.
+    let flat = text.split_whitespace().collect::<Vec<_>>().join(" ");
+    for f in ["500.0 Hz", "1.000 kHz", "2.000 kHz", "5.000 kHz"] {
+        assert!(flat.contains(&format!("y at {f}: [0.1, 8.")), "{f}: {flat}");
+    }
+}
+
 // √(R1 − 2200 Ω) has no value for half of a symmetric R1: about half the trials are left
 // out (binomial, n ≥ 1e5: within ±2 %), and above 1 % that is a warning at each row.
 #[test]
