@@ -1271,6 +1271,50 @@ mod tests {
         }
     }
 
+    // A nearly resistive coil (1 mH, 50 Ω at 50 Hz: θ = atan(0.314/50) = 0.36°, cos θ =
+    // 0.99998, ideal-coil phasor model) closes its triangle, but cos θ is 1 within its own
+    // uncertainty: the row says XL is not resolved and points at the Monte Carlo interval.
+    // A well-resolved row (68.3 mH, 27.5 Ω at 400 Hz, θ = 81°) gets no such note.
+    #[test]
+    fn a_coil_angle_within_u_of_zero_is_noted() {
+        let mut env = Env::new();
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
+        );
+        env.parts.insert("L3".into(), coil("L3", None));
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.003,
+                    counts: 2.0,
+                }),
+                Some(Quantity {
+                    value: 1e-4,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        let data = vec![
+            ideal(100.0, 0.001, 50.0, 1.7, 50.0).to_vec(),
+            ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec(),
+        ];
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        b.meter = Some(named("dmm"));
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let noted = |f: &str| {
+            out.flags.iter().any(|x| {
+                x.message
+                    .starts_with(&format!("at {f}: cos θ is 1 within its uncertainty"))
+            })
+        };
+        assert!(noted("50 Hz"), "{:?}", out.flags);
+        assert!(!noted("400 Hz"), "{:?}", out.flags);
+    }
+
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
     #[test]
     fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
