@@ -1238,6 +1238,19 @@ mod tests {
                     _ => Unit::Ohm,
                 };
                 assert_eq!(r.unit, want, "{}", r.name);
+                // Monte Carlo runs the three-voltmeter outputs, each its own interval; the DC
+                // method's rows have none.
+                match (r.name.as_str(), &r.m.mc) {
+                    ("L_dcr" | "XL_dcr", mc) => assert!(mc.is_none(), "{}: {mc:?}", r.name),
+                    (_, Some(mc)) => assert!(
+                        (mc.mean - r.m.value).abs() < 3.0 * r.m.u.max(mc.u),
+                        "{} at {:?}: {mc:?} for {}",
+                        r.name,
+                        r.f,
+                        r.m.value
+                    ),
+                    (n, None) => panic!("{n} at {:?} has no Monte Carlo", r.f),
+                }
             }
             for f in [300.0, 600.0, 1200.0] {
                 let rel = |n: &str| {
