@@ -1328,6 +1328,25 @@ mod tests {
         assert!(!noted("400 Hz"), "{:?}", out.flags);
     }
 
+    // A block of one row gets its row's Monte Carlo intervals too.
+    #[test]
+    fn a_single_row_gets_its_monte_carlo() {
+        let mut env = Env::new();
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
+        );
+        env.parts.insert("L3".into(), coil("L3", None));
+        let data = vec![ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec()];
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        for n in ["I", "Rac", "XL", "L", "Q"] {
+            let r = out.rows.iter().find(|r| r.name == n).unwrap();
+            assert!(r.m.mc.is_some(), "{n}");
+        }
+    }
+
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
     #[test]
     fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
