@@ -405,6 +405,33 @@ fn rl_uncertainties_match_the_uncertainties_package() {
     }
 }
 
+// The correlation of each row's Rac and XL (GUM 5.2.2 / H.2.3: both from the same readings),
+// against the `uncertainties` package's correlation matrix (tests/reference/rl_uncertainty.py,
+// output rl_correlation.out). First order both, so to rounding.
+#[test]
+fn rl_rac_xl_correlations_match_the_uncertainties_package() {
+    let b = reduce_file("tests/reference/rl_three_voltmeter.md");
+    let mut n = 0;
+    for line in include_str!("reference/rl_correlation.out").lines() {
+        if line.starts_with('#') {
+            continue;
+        }
+        let v: Vec<f64> = line
+            .split_whitespace()
+            .map(|x| x.parse().unwrap())
+            .collect();
+        let (f, want) = (v[0], v[1]);
+        let c = b
+            .correlations
+            .iter()
+            .find(|c| c.a == "Rac" && c.b == "XL" && c.f == Some(f))
+            .unwrap_or_else(|| panic!("no r(Rac, XL) at {f}: {:?}", b.correlations));
+        assert!((c.r - want).abs() < 1e-6, "at {f}: {} vs {want}", c.r);
+        n += 1;
+    }
+    assert_eq!(n, 3);
+}
+
 // JCGM 101 §5.11 and §9 (from memory): where the model is near-linear the Monte Carlo
 // standard deviation equals the GUM u. I = VR/R, XL and L are near-linear in the readings at
 // these uncertainties (relative u < 1 %); the adaptive run (§7.9) holds u to two digits, so

@@ -12,7 +12,8 @@ Model (three-voltmeter method, law of cosines; DC-resistance correction), per fr
   cos t = (Vs^2 - VR^2 - VL^2)/(2 VR VL), I = VR/R, Z = VL/I, Rac = Z cos t, XL = Z sin t,
   L = XL/(2 pi f), Q = XL/Rac; XL_dcr = sqrt(VL^2 - (I dcr)^2)/I, L_dcr = XL_dcr/(2 pi f).
 Block L, L_dcr, Rac: inverse-variance weighted means (weights 1/u_i^2, correlations kept).
-Writes rl_uncertainty.out beside this script. Run: python3 rl_uncertainty.py
+Writes rl_uncertainty.out and rl_correlation.out (r(Rac, XL) per row, by
+uncertainties.correlation_matrix) beside this script. Run: python3 rl_uncertainty.py
 """
 import math
 import os
@@ -35,6 +36,7 @@ DCR = 12.5
 off_u = 2 * 1e-4 / SQ3
 
 results = []  # (name, f or None, uncertain value)
+corr = []  # (f, r(Rac, XL))
 per = {"L": [], "L_dcr": [], "Rac": []}
 for f, vs_r, vr_r, vl_r in rows:
     vs = vs_r * gain["Vs"] + ufloat(0.0, off_u, f"off Vs {f}")
@@ -49,6 +51,7 @@ for f, vs_r, vr_r, vl_r in rows:
     xl_dcr = umath.sqrt(vl**2 - (i * DCR) ** 2) / i
     row = [("I", i), ("Rac", rac), ("XL", xl), ("L", xl / w), ("Q", xl / rac),
            ("XL_dcr", xl_dcr), ("L_dcr", xl_dcr / w)]
+    corr.append((f, uncertainties.correlation_matrix([rac, xl])[0][1]))
     for name, v in row:
         results.append((name, f, v))
         if name in per:
@@ -67,3 +70,10 @@ with open(out, "w") as fh:
         fs = "-" if f is None else repr(f)
         fh.write(f"{name} {fs} {v.nominal_value!r} {v.std_dev!r}\n")
 print(open(out).read())
+cout = os.path.join(HERE, "rl_correlation.out")
+with open(cout, "w") as fh:
+    fh.write(f"# rl_uncertainty.py: uncertainties {uncertainties.__version__}\n")
+    fh.write("# f(Hz) r(Rac, XL), the row's two results from the same readings\n")
+    for f, r in corr:
+        fh.write(f"{f!r} {float(r)!r}\n")
+print(open(cout).read())
