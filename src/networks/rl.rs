@@ -1345,6 +1345,15 @@ mod tests {
             let r = out.rows.iter().find(|r| r.name == n).unwrap();
             assert!(r.m.mc.is_some(), "{n}");
         }
+        // The figure draws each result's own rows: (f, value, u).
+        for (name, pts) in &out.plot.series {
+            let r = out.rows.iter().find(|r| &r.name == name);
+            let want: Vec<(f64, f64, f64)> = r
+                .map(|r| vec![(400.0, r.m.value, r.m.u)])
+                .unwrap_or_default();
+            assert_eq!(pts, &want, "{name}");
+        }
+        assert_eq!(out.plot.series.len(), 4);
     }
 
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
