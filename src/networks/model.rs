@@ -785,6 +785,13 @@ fn monte_carlo_rows(
                 .map(|k| outs.index(Out::Row(g, KEYS[k])))
                 .collect();
             let idx = idx?;
+            // Exact results have nothing to draw.
+            if idx
+                .iter()
+                .all(|&i| p_ro.results.get(i).is_none_or(|m| m.u == 0.0))
+            {
+                return None;
+            }
             // The distinct quantities the expressions read, each filled once per chunk.
             let mut kinds: Vec<Source> = Vec::new();
             let at: Vec<Vec<usize>> = sources

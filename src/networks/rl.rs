@@ -704,6 +704,14 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
     let runs: Vec<(usize, Vec<&'static str>, Vec<McInterval>)> = (0..ng)
         .into_par_iter()
         .filter(|&g| tri_ok.get(g).copied().unwrap_or(false))
+        // A row whose results are exact has nothing to draw (the adaptive rule would never
+        // see its zero spread settle).
+        .filter(|&g| {
+            layout
+                .iter()
+                .zip(&p.results)
+                .any(|(o, m)| matches!(o, Out::Row(gg, _) if *gg == g) && m.u > 0.0)
+        })
         .map(|g| {
             let names: Vec<&'static str> = layout
                 .iter()
@@ -1354,6 +1362,26 @@ mod tests {
             assert_eq!(pts, &want, "{name}");
         }
         assert_eq!(out.plot.series.len(), 4);
+    }
+
+    // Exact readings and an exact resistor: every row result has u = 0, so no r(Rac, XL) is
+    // reported (a correlation needs two variances, GUM 5.2.2).
+    #[test]
+    fn exact_rows_report_no_correlation() {
+        let mut env = Env::new();
+        env.parts.insert("R3".into(), resistor("R3", 100.0, None));
+        env.parts.insert("L3".into(), coil("L3", None));
+        let data = vec![
+            ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec(),
+            ideal(100.0, 0.0683, 27.5, 1.7, 800.0).to_vec(),
+        ];
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        let out = reduce(&env.ctx(), &b).unwrap();
+        assert!(out.rows.iter().all(|r| r.m.u == 0.0), "{:?}", out.rows);
+        assert!(out.correlations.is_empty(), "{:?}", out.correlations);
+        // Nothing to draw, so no Monte Carlo (its adaptive rule would run to its limit).
+        assert!(out.rows.iter().all(|r| r.m.mc.is_none()));
     }
 
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
