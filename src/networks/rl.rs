@@ -1384,6 +1384,77 @@ mod tests {
         assert!(out.rows.iter().all(|r| r.m.mc.is_none()));
     }
 
+    // A coil whose AC resistance rises with frequency (27.5, 35, 45 Ω at 0.3, 0.6, 1.2 kHz, as
+    // skin effect does; common practice) and whose L does not: the agreement test of each block
+    // value uses that result's own rows, so Rac disagrees and L agrees. The JCGM 101 §8 note
+    // names exactly the rows and results whose GUM interval Monte Carlo did not validate.
+    #[test]
+    fn each_block_value_is_tested_on_its_own_rows() {
+        let mut env = Env::new();
+        env.parts.insert(
+            "R3".into(),
+            resistor("R3", 100.0, Some(Tolerance::Relative(0.001))),
+        );
+        env.parts.insert("L3".into(), coil("L3", None));
+        env.instruments.insert(
+            "dmm".into(),
+            instrument(
+                "dmm",
+                Some(Accuracy::Relative {
+                    fraction: 0.001,
+                    counts: 2.0,
+                }),
+                Some(Quantity {
+                    value: 1e-4,
+                    unit: Unit::V,
+                }),
+            ),
+        );
+        let data: Vec<Vec<f64>> = [(300.0, 27.5), (600.0, 35.0), (1200.0, 45.0)]
+            .iter()
+            .map(|&(f, rc)| ideal(100.0, 0.0683, rc, 1.7, f).to_vec())
+            .collect();
+        let mut b = block(Network::RL, &cols(), &data);
+        b.parts = vec![named("R3"), named("L3")];
+        b.meter = Some(named("dmm"));
+        let out = reduce(&env.ctx(), &b).unwrap();
+        let says = |start: &str| out.flags.iter().find(|f| f.message.starts_with(start));
+        let rac = says("Rac: the frequencies").unwrap();
+        assert!(
+            rac.warn && rac.message.contains("disagree"),
+            "{}",
+            rac.message
+        );
+        let l = says("L: the ").unwrap();
+        assert!(!l.warn && l.message.contains("agree ("), "{}", l.message);
+        let mut want = Vec::new();
+        for f in [300.0, 600.0, 1200.0] {
+            let names: Vec<&str> = out
+                .rows
+                .iter()
+                .filter(|r| r.f == Some(f) && r.m.u > 0.0)
+                .filter(|r| r.m.mc.as_ref().is_some_and(|mc| !mc.gum_validated))
+                .map(|r| r.name.as_str())
+                .collect();
+            if !names.is_empty() {
+                want.push(format!("{} ({})", hz(f), names.join(", ")));
+            }
+        }
+        let note = says("the GUM intervals differ");
+        match (want.is_empty(), note) {
+            (true, None) => {}
+            (false, Some(n)) => {
+                assert!(
+                    n.message.contains(&format!("at {}:", want.join("; "))),
+                    "{want:?}: {}",
+                    n.message
+                )
+            }
+            (_, n) => panic!("{want:?} vs {n:?}"),
+        }
+        assert!(!want.is_empty(), "the case has unvalidated rows");
+    }
+
     // Inverse-variance weights (u_min/u_i)²; equal weights when a row is exact (u = 0).
     #[test]
     fn weights_are_inverse_variances_scaled_to_the_smallest_u() {
