@@ -29,6 +29,30 @@ pub const BATCH: usize = 10_000;
 /// GUM intervals, unvalidated, and says so ([`rows_skipped`]).
 pub const MAX_ROWS: usize = 100;
 
+/// The flag of a row whose Monte Carlo run left out trials (`iv.dropped`) because the model
+/// has no value there: `drew` says what those trials drew, `given` what the interval is then
+/// conditional on. Above 1 % of the trials drawn the interval describes a visibly different
+/// population: a warning.
+pub fn dropped_flag(
+    iv: &McInterval,
+    at: &str,
+    span: Option<crate::diag::Span>,
+    drew: &str,
+    given: &str,
+) -> Option<crate::networks::Flag> {
+    let drawn = iv.trials + iv.dropped;
+    (iv.dropped > 0).then(|| crate::networks::Flag {
+        warn: iv.dropped as f64 > 0.01 * drawn as f64,
+        span,
+        message: format!(
+            "at {at}: {} of {drawn} Monte Carlo trials drew {drew} ({}) and were left out: the Monte Carlo interval is conditional on {given}{}",
+            iv.dropped,
+            crate::print::percent(crate::print::round_sig(iv.dropped as f64 / drawn as f64, 2)),
+            if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
+        ),
+    })
+}
+
 /// The note of a block whose `rows` exceed [`MAX_ROWS`].
 pub fn rows_skipped(rows: usize, span: crate::diag::Span) -> crate::networks::Flag {
     crate::networks::Flag {

@@ -16,8 +16,8 @@ fn notebook_of(network: Network, table: &str) -> Notebook {
     parse(&src).unwrap_or_else(|d| panic!("the fixture parses: {d:?}"))
 }
 
-fn h2_block() -> BlockResult {
-    // GUM H.2, Table H.2: five sets of simultaneous V (V), I (mA), φ (rad).
+/// GUM H.2, Table H.2: five sets of simultaneous V (V), I (mA), φ (rad), as a readings table.
+fn h2_table() -> String {
     let sets = [
         [5.007, 19.663, 1.0456],
         [4.994, 19.639, 1.0438],
@@ -29,6 +29,11 @@ fn h2_block() -> BlockResult {
     for [v, i, phi] in sets {
         table.push_str(&format!("{v} {i} {phi}\n"));
     }
+    table
+}
+
+fn h2_block() -> BlockResult {
+    let table = h2_table();
     let mut red = networks::reduce(&notebook_of(Network::Z, &table)).expect("H.2 reduces");
     red.blocks.remove(0)
 }
@@ -118,17 +123,7 @@ fn gum_h2_resistance_reactance() {
 // Table H.3's values and uncertainties (approach 1), with ν_eff = 4 (GUM H.2.4).
 #[test]
 fn gum_h2_written_as_a_model() {
-    let sets = [
-        [5.007, 19.663, 1.0456],
-        [4.994, 19.639, 1.0438],
-        [5.005, 19.640, 1.0468],
-        [4.990, 19.685, 1.0428],
-        [4.999, 19.678, 1.0433],
-    ];
-    let mut table = String::from("V/V I/mA phi/rad\n");
-    for [v, i, phi] in sets {
-        table.push_str(&format!("{v} {i} {phi}\n"));
-    }
+    let table = h2_table();
     let src = format!(
         "---\nrecord: GUM-H2M\ntitle: Annex H.2 as a model\ndate: 2026-05-02\noperator: test\n---\n\n\
          ```readings\nid: h2m\nnetwork: model\nmodel:\n  R: {{ expr: \"V / I * cos(phi)\", unit: ohm }}\n  X: {{ expr: \"V / I * sin(phi)\", unit: ohm }}\n  Z: {{ expr: \"V / I\", unit: ohm }}\n---\n{table}```\n"

@@ -845,7 +845,15 @@ fn monte_carlo_rows(
         let when = grp
             .and_then(|gr| gr.f)
             .map_or_else(|| format!("row {}", g + 1), crate::print::hz);
-        flags.extend(mc.first().and_then(|iv| dropped_flag(iv, &when, grp)));
+        flags.extend(mc.first().and_then(|iv| {
+            crate::montecarlo::dropped_flag(
+                iv,
+                &when,
+                grp.map(|gr| gr.span),
+                "readings at which an expression of the model has no value",
+                "the expressions having a value",
+            )
+        }));
         let mut names = Vec::new();
         for ((&i, interval), r) in idx.iter().zip(mc).zip(results) {
             let Some(m) = p.results.get_mut(i) else {
@@ -891,22 +899,6 @@ fn col_fill<'a>(bi: &'a BlockInputs, g: usize, s: Source<'a>) -> ColFill<'a> {
             }
         }),
     }
-}
-
-/// Trials left out because an expression had no value there; above 1 % of those drawn the
-/// interval describes a visibly different population, a warning.
-fn dropped_flag(iv: &McInterval, when: &str, grp: Option<&super::inputs::Group>) -> Option<Flag> {
-    let drawn = iv.trials + iv.dropped;
-    (iv.dropped > 0).then(|| Flag {
-        warn: iv.dropped as f64 > 0.01 * drawn as f64,
-        span: grp.map(|gr| gr.span),
-        message: format!(
-            "at {when}: {} of {drawn} Monte Carlo trials drew readings at which an expression of the model has no value ({}), and were left out: the Monte Carlo interval is conditional on the expressions having a value{}",
-            iv.dropped,
-            crate::print::percent(crate::print::round_sig(iv.dropped as f64 / drawn as f64, 2)),
-            if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
-        ),
-    })
 }
 
 /// Per result, what each of its variables reads; the parts named become inputs of `bi`.

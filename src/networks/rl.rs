@@ -12,7 +12,7 @@
 //! computed in the same propagation as the rows so shared gains and R stay correlated; their
 //! consistency is tested by the generalised χ² (row covariance included) at 95 %.
 
-use super::inputs::{accuracy_limit, BlockInputs, Group, Spec};
+use super::inputs::{accuracy_limit, BlockInputs, Spec};
 use super::outputs::{Out, Outputs};
 use super::{
     check_positive, AtBlock, BlockResult, Context, Correlation, Descriptor, Flag, NamedResult,
@@ -339,24 +339,6 @@ fn weights_of(us: &[f64]) -> Vec<f64> {
         Some(w) if umin > 0.0 => w,
         _ => vec![1.0; us.len()],
     }
-}
-
-/// The flag for Monte Carlo trials left out of a row because their triangle did not close.
-fn dropped_flag(iv: &McInterval, f: Option<f64>, grp: Option<&Group>) -> Option<Flag> {
-    let drawn = iv.trials + iv.dropped;
-    // Above 1 % dropped the interval describes a visibly different population: a warning.
-    (iv.dropped > 0).then(|| Flag {
-        warn: iv.dropped as f64 > 0.01 * drawn as f64,
-        span: grp.map(|gr| gr.span),
-        message: format!(
-            "at {}: {} of {} Monte Carlo trials drew readings whose triangle does not close ({}) and were left out: the Monte Carlo interval is conditional on the triangle closing{}",
-            f.map(hz).unwrap_or_default(),
-            iv.dropped,
-            drawn,
-            crate::print::percent(crate::print::round_sig(iv.dropped as f64 / drawn as f64, 2)),
-            if iv.trials < 2 { ", and with fewer than two left there is none" } else { "" }
-        ),
-    })
 }
 
 pub fn reduce(ctx: &Context, block: &ReadingsBlock) -> Result<BlockResult, Vec<Diagnostic>> {
@@ -783,10 +765,15 @@ fn monte_carlo_rows(run: &Run, tri_ok: &[bool], rows: &mut [NamedResult], flags:
         let f = bi.groups.get(g).and_then(|gr| gr.f);
         let mut unvalidated = Vec::new();
         // Every output of a trial is kept or dropped together, so one count serves the row.
-        flags.extend(
-            mc.first()
-                .and_then(|iv| dropped_flag(iv, f, bi.groups.get(g))),
-        );
+        flags.extend(mc.first().and_then(|iv| {
+            crate::montecarlo::dropped_flag(
+                iv,
+                &f.map(hz).unwrap_or_default(),
+                bi.groups.get(g).map(|gr| gr.span),
+                "readings whose triangle does not close",
+                "the triangle closing",
+            )
+        }));
         for (n, interval) in names.iter().zip(mc) {
             if let Some(r) = rows.iter_mut().find(|r| r.f == f && r.name == *n) {
                 r.m.mc = Some(interval);
@@ -1013,6 +1000,15 @@ mod tests {
             high: 2.0,
             gum_validated: false,
         };
+        let dropped_flag = |iv: &McInterval, _f: Option<f64>, _g: Option<()>| {
+            crate::montecarlo::dropped_flag(
+                iv,
+                "100 Hz",
+                None,
+                "readings whose triangle does not close",
+                "the triangle closing",
+            )
+        };
         assert!(dropped_flag(&iv(1000, 0), Some(100.0), None).is_none());
         let many = dropped_flag(&iv(790_000, 210_000), Some(100.0), None).unwrap();
         assert!(many.warn);
@@ -1064,6 +1060,21 @@ mod tests {
             loss: Default::default(),
             span: Default::default(),
         }
+    }
+
+    /// The test meter `dmm`: `fraction` of reading + 2 counts of 0.1 mV.
+    fn dmm(fraction: f64) -> crate::notebook::Instrument {
+        instrument(
+            "dmm",
+            Some(Accuracy::Relative {
+                fraction,
+                counts: 2.0,
+            }),
+            Some(Quantity {
+                value: 1e-4,
+                unit: Unit::V,
+            }),
+        )
     }
 
     fn cols() -> Vec<(&'static str, Unit)> {
@@ -1304,20 +1315,7 @@ mod tests {
             resistor("R3", 100.0, Some(Tolerance::Relative(0.01))),
         );
         env.parts.insert("L3".into(), coil("L3", None));
-        env.instruments.insert(
-            "dmm".into(),
-            instrument(
-                "dmm",
-                Some(Accuracy::Relative {
-                    fraction: 0.003,
-                    counts: 2.0,
-                }),
-                Some(Quantity {
-                    value: 1e-4,
-                    unit: Unit::V,
-                }),
-            ),
-        );
+        env.instruments.insert("dmm".into(), dmm(0.003));
         let data = vec![
             ideal(100.0, 0.001, 50.0, 1.7, 50.0).to_vec(),
             ideal(100.0, 0.0683, 27.5, 1.7, 400.0).to_vec(),
@@ -1396,20 +1394,7 @@ mod tests {
             resistor("R3", 100.0, Some(Tolerance::Relative(0.001))),
         );
         env.parts.insert("L3".into(), coil("L3", None));
-        env.instruments.insert(
-            "dmm".into(),
-            instrument(
-                "dmm",
-                Some(Accuracy::Relative {
-                    fraction: 0.001,
-                    counts: 2.0,
-                }),
-                Some(Quantity {
-                    value: 1e-4,
-                    unit: Unit::V,
-                }),
-            ),
-        );
+        env.instruments.insert("dmm".into(), dmm(0.001));
         let data: Vec<Vec<f64>> = [(300.0, 27.5), (600.0, 35.0), (1200.0, 45.0)]
             .iter()
             .map(|&(f, rc)| ideal(100.0, 0.0683, rc, 1.7, f).to_vec())
@@ -1507,20 +1492,7 @@ mod tests {
             resistor("R3", r, Some(Tolerance::Relative(0.002))),
         );
         env.parts.insert("L3".into(), coil("L3", Some(rc)));
-        env.instruments.insert(
-            "dmm".into(),
-            instrument(
-                "dmm",
-                Some(Accuracy::Relative {
-                    fraction: 0.003,
-                    counts: 2.0,
-                }),
-                Some(Quantity {
-                    value: 1e-4,
-                    unit: Unit::V,
-                }),
-            ),
-        );
+        env.instruments.insert("dmm".into(), dmm(0.003));
         let mut b = block(Network::RL, &cols(), &data);
         b.parts = vec![named("R3"), named("L3")];
         b.meter = Some(named("dmm"));
